@@ -1,0 +1,7 @@
+"""bandcensus: a logging measurement receiver for the FM broadcast band.
+
+The capture side lives in :mod:`survey` (antenna to database), the analysis side in
+:mod:`analysis` (database to conclusion); this package holds the command line and the demo.
+"""
+
+__version__ = "0.1.0"

@@ -1,0 +1,6 @@
+"""Allow ``python -m bandcensus``."""
+import sys
+
+from bandcensus.cli import main
+
+sys.exit(main())

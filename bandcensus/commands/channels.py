@@ -1,0 +1,46 @@
+"""``bandcensus channels``: per-channel medians over the sweeps of a configuration."""
+
+from __future__ import annotations
+
+import csv
+import sys
+
+import click
+
+from analysis.channel_stats import channel_table
+from bandcensus.commands._common import db_option, echo_json
+from bandcensus.commands._tables import channel_rows_table, print_table
+from survey.records import INPUT_KINDS
+
+_CSV_FIELDS = ["freq_hz", "power_dbfs", "noise_dbfs", "cn_db", "received", "received_fraction", "sweeps"]
+
+
+@click.command("channels")
+@db_option
+@click.option("--config", "configuration", help="Configuration label (default: all).")
+@click.option("--input", "input_kind", type=click.Choice(INPUT_KINDS), default="antenna", show_default=True,
+              help="Input label of the sweeps to summarise.")
+@click.option("--since", help="Only sweeps started at or after this UTC time (ISO 8601).")
+@click.option("--until", help="Only sweeps started before this UTC time (ISO 8601).")
+@click.option("--json", "as_json", is_flag=True, help="Print machine-readable JSON.")
+@click.option("--csv", "as_csv", is_flag=True, help="Print CSV.")
+def command(db_path, configuration, input_kind, since, until, as_json, as_csv):
+    """Per channel: median power P, noise N, SNR (C/N) over sweeps, and how often it was received.
+
+    P is signal plus noise in the channel bandwidth (dBFS); N is the local noise floor times
+    the bandwidth (dBFS); C/N = (P - N)/N in dB, shown as not received when P does not exceed N
+    by the detection margin.
+    """
+    if as_json and as_csv:
+        raise click.UsageError("choose one of --json and --csv")
+    rows = channel_table(db_path, configuration=configuration, input=input_kind, since=since, until=until)
+    if as_json:
+        echo_json({"configuration": configuration, "input": input_kind, "channels": rows})
+    elif as_csv:
+        writer = csv.DictWriter(sys.stdout, fieldnames=_CSV_FIELDS, extrasaction="ignore", lineterminator="\n")
+        writer.writeheader()
+        for r in rows:
+            writer.writerow(r)
+    else:
+        label = configuration or "all configurations"
+        print_table(channel_rows_table(rows, f"Channels of {label} ({input_kind}), medians over sweeps"))

@@ -1,0 +1,118 @@
+"""``bandcensus replay``: measure SigMF recordings into the survey database."""
+
+from __future__ import annotations
+
+import click
+
+from bandcensus import __version__
+from bandcensus.commands._common import db_option, echo_json, json_option
+from bandcensus.commands._tables import channel_rows_table, print_table
+from survey.bandplan import parse_band
+from survey.records import INPUT_KINDS, RunInfo, SweepSettings
+from survey.runner import record_sweep
+from survey.sources.recording import open_recording
+from survey.store import SurveyStore
+from survey.sweep import plan_for_source
+
+
+@click.command("replay")
+@click.argument("recordings", nargs=-1, required=True, type=click.Path(dir_okay=False))
+@db_option
+@click.option("--config", "configuration", help="Configuration label (default: from our own recordings).")
+@click.option("--input", "input_kind", type=click.Choice(INPUT_KINDS),
+              help="What the receiver input saw (default: from our own recordings, else antenna).")
+@click.option("--band", default="europe", show_default=True,
+              help="Band plan: europe, americas, japan[:UPPER_MHZ], oirt or custom:START-STOP:RASTER_KHZ.")
+@click.option("--channel-bw-khz", default=200.0, show_default=True, type=click.FloatRange(min=1.0),
+              help="Channel integration bandwidth in kHz.")
+@click.option("--usable-fraction", default=0.75, show_default=True, type=click.FloatRange(0.1, 1.0),
+              help="Flat inner fraction of each capture's sample rate that is measured.")
+@click.option("--dc-guard-khz", default=20.0, show_default=True, type=click.FloatRange(min=0.0),
+              help="Half-width in kHz around each capture's centre excluded for the DC spike.")
+@click.option("--fft-size", default=2048, show_default=True, type=click.IntRange(64, 1 << 18),
+              help="FFT length of the averaged periodogram.")
+@click.option("--quiet", is_flag=True, help="Do not print the per-channel table.")
+@json_option
+def command(recordings, db_path, configuration, input_kind, band, channel_bw_khz, usable_fraction,
+            dc_guard_khz, fft_size, quiet, as_json):
+    """Replay SigMF RECORDINGS (one sweep each) into the database at --db.
+
+    Any SigMF recording of the band replays: ours (one capture per hop) or a foreign one
+    (captures at arbitrary centres, datatype cu8, ci8, ci16_le or cf32_le). Every channel whose
+    whole bandwidth a capture covers is measured; the rest are listed as not covered.
+    """
+    plan_band = parse_band(band)
+    # Open (and so validate) every recording before anything is written.
+    sources = [open_recording(path) for path in recordings]
+    jobs = []
+    for path, source in zip(recordings, sources):
+        labels = source.metadata_labels()
+        cfg = configuration or labels.get("configuration")
+        if not cfg:
+            raise click.UsageError(f"{path} carries no configuration label; give --config LABEL")
+        inp = input_kind or labels.get("input") or "antenna"
+        if inp not in INPUT_KINDS:
+            raise click.UsageError(f"{path} has input label {inp!r}; give --input ({', '.join(INPUT_KINDS)})")
+        settings = SweepSettings(
+            band=plan_band.name,
+            channel_bw_hz=channel_bw_khz * 1e3,
+            sample_rate_hz=source.sample_rate_hz,
+            usable_fraction=usable_fraction,
+            dc_guard_hz=dc_guard_khz * 1e3,
+            dwell_s=source.dwell_s,
+            settle_s=0.0,
+            fft_size=fft_size,
+            gain_db=labels.get("gain_db"),
+            ppm=int(labels.get("ppm") or 0),
+        )
+        plan = plan_for_source(plan_band, source, settings)
+        jobs.append((path, source, cfg, inp, settings, plan))
+
+    store = SurveyStore(db_path)
+    summaries = []
+    try:
+        run_id = store.begin_run(RunInfo(
+            source_kind="recording",
+            device="; ".join(str(s.describe().get("hw") or s.describe().get("path")) for s in sources),
+            tool_version=__version__,
+            settings={"band": band, "channel_bw_hz": channel_bw_khz * 1e3, "usable_fraction": usable_fraction,
+                      "dc_guard_hz": dc_guard_khz * 1e3, "fft_size": fft_size,
+                      "recordings": [str(p) for p in recordings]},
+            seed=next((s.metadata_labels().get("seed") for s in sources if s.metadata_labels().get("seed") is not None), None),
+        ))
+        status = "failed"
+        try:
+            for path, source, cfg, inp, settings, plan in jobs:
+                outcome = record_sweep(store, run_id, source, plan, settings, cfg, inp)
+                summaries.append((path, outcome, plan))
+                source.close()
+            status = "finished"
+        finally:
+            store.end_run(run_id, status)
+    finally:
+        store.close()
+        for s in sources:
+            s.close()
+
+    payload = []
+    for path, outcome, plan in summaries:
+        rows = [
+            {"freq_hz": c.freq_hz, "power_dbfs": c.power_dbfs, "noise_dbfs": c.noise_dbfs,
+             "cn_db": c.cn_db, "received": c.received, "sweeps": 1}
+            for c in sorted(outcome.result.channels, key=lambda c: c.freq_hz)
+        ]
+        payload.append({"recording": str(path), "sweep_id": outcome.sweep_id,
+                        "configuration": outcome.result.configuration, "input": outcome.result.input,
+                        "channels": rows, "uncovered_hz": list(plan.uncovered_hz)})
+    if as_json:
+        echo_json({"run_id": run_id, "sweeps": payload})
+        return
+    for item in payload:
+        received = sum(1 for r in item["channels"] if r["received"])
+        click.echo(
+            f"{item['recording']}: sweep {item['sweep_id']} ({item['configuration']}, {item['input']}): "
+            f"{len(item['channels'])} channels measured, {received} received, "
+            f"{len(item['uncovered_hz'])} of band '{plan_band.name}' not covered by the recording"
+        )
+        if not quiet:
+            print_table(channel_rows_table(item["channels"], f"Recording {item['recording']}"))

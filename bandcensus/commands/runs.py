@@ -1,0 +1,36 @@
+"""``bandcensus runs``: list the runs in a database."""
+
+from __future__ import annotations
+
+import click
+from rich.table import Table
+
+from bandcensus.commands._common import db_option, echo_json, json_option
+from bandcensus.commands._tables import print_table
+from survey.store import list_runs, open_for_reading
+
+
+@click.command("runs")
+@db_option
+@json_option
+def command(db_path, as_json):
+    """List runs with their source, status, sweep counts, configurations and inputs."""
+    conn = open_for_reading(db_path)
+    try:
+        runs = list_runs(conn)
+    finally:
+        conn.close()
+    if as_json:
+        echo_json({"runs": runs})
+        return
+    if not runs:
+        click.echo(f"{db_path}: no runs yet")
+        return
+    table = Table(title=f"Runs in {db_path}", title_justify="left")
+    for col in ("id", "started (UTC)", "source", "status", "sweeps", "incomplete", "gaps", "configurations", "inputs"):
+        table.add_column(col)
+    for r in runs:
+        table.add_row(str(r["id"]), r["started_utc"][:19], r["source_kind"], r["status"],
+                      str(r["complete_sweeps"]), str(r["incomplete_sweeps"]), str(r["gaps"]),
+                      ", ".join(r["configurations"]), ", ".join(r["inputs"]))
+    print_table(table)

@@ -1,0 +1,5 @@
+"""Capture side of bandcensus: band plans, hop planning, IQ sources, DSP, sweeps and storage."""
+
+from bandcensus import __version__
+
+__all__ = ["__version__"]

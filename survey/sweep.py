@@ -1,0 +1,145 @@
+"""One sweep: a hop plan measured with an IQ source into typed hop and channel readings.
+
+The engine is the same for a live receiver, a SigMF replay and a simulated scene, so their
+results are comparable. It never touches the database; :mod:`survey.schedule` and the command
+line hand the :class:`~survey.records.SweepResult` to :class:`~survey.store.SurveyStore`.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Callable, Protocol
+
+from survey import dsp
+from survey.bandplan import assign_to_centers, plan_hops
+from survey.errors import PlanError
+from survey.records import (
+    BandPlan,
+    ChannelReading,
+    HopPlan,
+    HopReading,
+    IQBlock,
+    SweepResult,
+    SweepSettings,
+)
+from survey.sources.base import IQSource
+from survey.store import utc_now
+
+
+class BlockSink(Protocol):
+    """Receives each hop's raw block (e.g. the SigMF writer behind ``--keep-iq``)."""
+
+    def add_block(self, block: IQBlock) -> None: ...
+
+
+@dataclass(frozen=True)
+class HopProgress:
+    """What the progress callback is told after each hop."""
+
+    hop_index: int
+    n_hops: int
+    center_hz: float
+    floor_dbfs_hz: float
+
+
+def plan_for_source(band: BandPlan, source: IQSource, settings: SweepSettings) -> HopPlan:
+    """Hop plan for ``source``: the fewest hops for a tunable source, or the recording's captures.
+
+    Raises :class:`PlanError` when not one channel of the band can be measured.
+    """
+    fixed = source.fixed_centers_hz
+    if fixed is None:
+        plan = plan_hops(
+            band.channels_hz,
+            sample_rate_hz=source.sample_rate_hz,
+            usable_fraction=settings.usable_fraction,
+            dc_guard_hz=settings.dc_guard_hz,
+            channel_bw_hz=settings.channel_bw_hz,
+        )
+    else:
+        plan = assign_to_centers(
+            band.channels_hz,
+            centers_hz=fixed,
+            sample_rate_hz=source.sample_rate_hz,
+            usable_fraction=settings.usable_fraction,
+            dc_guard_hz=settings.dc_guard_hz,
+            channel_bw_hz=settings.channel_bw_hz,
+        )
+    if not plan.channels_hz:
+        raise PlanError(
+            f"no channel of band '{band.name}' ({band.start_hz / 1e6:.2f}-{band.stop_hz / 1e6:.2f} MHz) "
+            "fits in the usable spectrum; choose the band the recording covers (--band)"
+        )
+    return plan
+
+
+def run_sweep(
+    source: IQSource,
+    plan: HopPlan,
+    settings: SweepSettings,
+    configuration: str,
+    input: str,
+    *,
+    sink: BlockSink | None = None,
+    keep_psd: bool = False,
+    on_hop: Callable[[HopProgress], None] | None = None,
+    should_stop: Callable[[], bool] | None = None,
+) -> SweepResult:
+    """Measure every hop of ``plan`` with ``source``.
+
+    Parameters
+    ----------
+    source : IQSource
+        Tuned hop by hop; for a recording, ``plan`` must come from its capture centres.
+    settings : SweepSettings
+        Dwell (``dwell_s``), FFT size, channel bandwidth and detection margin.
+    sink : BlockSink, optional
+        Gets every raw block (to keep IQ as SigMF).
+    should_stop : callable, optional
+        Checked between hops; when it returns True the sweep ends early and is returned with
+        ``complete=False`` (never stored as if complete).
+
+    Returns
+    -------
+    SweepResult
+        Hop and channel readings; times from the source's block timestamps (UTC).
+    """
+    hops: list[HopReading] = []
+    channels: list[ChannelReading] = []
+    started = None
+    ended = None
+    complete = True
+    dwell_samples = None if source.fixed_centers_hz is not None else max(
+        settings.fft_size, int(round(settings.dwell_s * source.sample_rate_hz))
+    )
+    for hop in plan.hops:
+        if should_stop is not None and should_stop():
+            complete = False
+            break
+        source.tune(hop.center_hz)
+        block = source.read(dwell_samples)
+        if started is None:
+            started = block.started_utc
+        if sink is not None:
+            sink.add_block(block)
+        hop_reading, channel_readings = dsp.measure_hop(
+            block, hop.channels_hz, settings, hop_index=hop.index, keep_psd=keep_psd
+        )
+        hops.append(hop_reading)
+        channels.extend(channel_readings)
+        ended = dsp.block_end_utc(block)
+        if on_hop is not None:
+            on_hop(HopProgress(hop.index, len(plan.hops), hop.center_hz, hop_reading.floor_dbfs_hz))
+    if len(hops) != len(plan.hops):
+        complete = False
+    now = utc_now()
+    return SweepResult(
+        configuration=configuration,
+        input=input,
+        started_utc=started or now,
+        ended_utc=ended or now,
+        settings=settings,
+        hops=tuple(hops),
+        channels=tuple(channels),
+        complete=complete,
+    )
