@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import statistics
+
 import click
 
 from bandcensus import __version__
@@ -59,7 +61,7 @@ def command(recordings, db_path, configuration, input_kind, band, channel_bw_khz
             sample_rate_hz=source.sample_rate_hz,
             usable_fraction=usable_fraction,
             dc_guard_hz=dc_guard_khz * 1e3,
-            dwell_s=source.dwell_s,
+            dwell_s=float(statistics.median(source.capture_lengths())) / source.sample_rate_hz,
             settle_s=0.0,
             fft_size=fft_size,
             gain_db=labels.get("gain_db"),

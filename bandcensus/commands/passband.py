@@ -1,0 +1,132 @@
+"""``bandcensus passband``: measure a preamp's passband, check a target band, advise retuning."""
+
+from __future__ import annotations
+
+import click
+from rich.table import Table
+
+from analysis.errors import BadParameterError
+from analysis.passband import analyse_passband
+from analysis.passband_data import load_gain_curve, load_readings_csv
+from bandcensus.commands._common import echo_json, json_option, parse_mhz_range
+from bandcensus.commands._tables import print_table
+
+
+def _target_from_band(band: str) -> tuple[float, float]:
+    from survey.bandplan import parse_band
+    from survey.errors import PlanError
+
+    try:
+        plan = parse_band(band)
+    except PlanError as exc:
+        raise BadParameterError(f"{exc}; or give the target band directly with --target START-STOP (MHz)") from exc
+    return float(plan.start_hz), float(plan.stop_hz)
+
+
+def _mhz(v: float | None, digits: int = 2) -> str:
+    return "-" if v is None or v != v else f"{v / 1e6:.{digits}f}"
+
+
+@click.command(name="passband")
+@click.option("--db", "db_path", type=click.Path(dir_okay=False), default=None,
+              help="Survey database holding sweeps with and without the preamp.")
+@click.option("--base", default=None, help="Configuration label of the sweeps without the preamp.")
+@click.option("--test", default=None, help="Configuration label of the sweeps with the preamp.")
+@click.option("--points", "points_path", type=click.Path(dir_okay=False), default=None,
+              help="CSV of hand readings with columns freq_mhz,level_db (relative levels).")
+@click.option("--target", default=None, help="Band the preamp should cover, START-STOP in MHz (default: the band plan).")
+@click.option("--band", default=None,
+              help="Band plan giving the default target (default: the sweeps' band, or europe for readings).")
+@click.option("--source", "source", type=click.Choice(["best", "noise-source", "stations", "noise-floor"]),
+              default="best", show_default=True,
+              help="Which database data give the gain (best: noise source, else stations, else floor rise).")
+@click.option("--bin-khz", default=100.0, show_default=True, type=float,
+              help="Bin width dense spectra are averaged into, kHz.")
+@json_option
+@click.option("--plot", "plot_path", type=click.Path(dir_okay=False), default=None, help="Write a PNG figure.")
+def command(db_path, base, test, points_path, target, band, source, bin_khz, as_json, plot_path) -> None:
+    """Measure the passband of a preamp and how well it covers a band.
+
+    Gain against frequency comes from the database (noise-source sweeps, else stations received
+    in both configurations, else the noise-floor rise, shape only) or from hand readings
+    (--points). A model of 1 to 3 tuned circuits is fitted; the -3 dB and -6 dB widths, the
+    stations outside the passband and a maximally flat stagger tuning that would cover the
+    target are printed.
+    """
+    if (db_path is None) == (points_path is None):
+        raise click.UsageError("give either --db PATH with --base and --test, or --points FILE.csv (not both)")
+    if db_path is not None and (not base or not test):
+        raise click.UsageError("--db needs --base LABEL (without the preamp) and --test LABEL (with it)")
+    if points_path is not None and (base or test or source != "best"):
+        raise click.UsageError("--base, --test and --source go with --db, not with --points")
+    if bin_khz <= 0:
+        raise click.BadParameter("must be positive", param_hint="--bin-khz")
+    target_hz = parse_mhz_range(target, "--target") if target is not None else None
+    if points_path is not None:
+        curve = load_readings_csv(points_path)
+    else:
+        curve = load_gain_curve(db_path, base, test, bin_hz=bin_khz * 1e3,
+                                prefer=None if source == "best" else source)
+    if target_hz is None:
+        target_hz = _target_from_band(band or curve.band or "europe")
+    report = analyse_passband(curve, target_hz)
+    if plot_path:
+        from analysis.passband_plots import plot_passband
+
+        plot_passband(report, plot_path)
+    if as_json:
+        echo_json(report.to_dict())
+        return
+    _print_report(report, plot_path)
+
+
+def _print_report(report, plot_path) -> None:
+    fit, cov, plan, curve = report.fit, report.coverage, report.plan, report.curve
+    click.echo(report.verdict())
+    rel = " (relative)" if curve.relative else ""
+    click.echo(f"data: {curve.source}, {curve.n_points} points{rel}; model chosen by {fit.criterion}")
+    for note in list(curve.notes) + list(fit.notes):
+        click.echo(f"note: {note}")
+    t = Table(title="Measured passband (from the fitted curve)", title_justify="left")
+    for col in ("quantity", "value"):
+        t.add_column(col, justify="left" if col == "quantity" else "right")
+    t.add_row("peak", f"{_mhz(fit.peak_hz, 3)} MHz, {fit.peak_gain_db:.1f} dB{rel}")
+    t.add_row("-3 dB edges", f"{_mhz(fit.edges_3db_hz[0], 3)} - {_mhz(fit.edges_3db_hz[1], 3)} MHz")
+    t.add_row("-3 dB width", f"{_mhz(fit.bw_3db_hz, 3)} MHz")
+    t.add_row("-6 dB edges", f"{_mhz(fit.edges_6db_hz[0], 3)} - {_mhz(fit.edges_6db_hz[1], 3)} MHz")
+    t.add_row("-6 dB width", f"{_mhz(fit.bw_6db_hz, 3)} MHz")
+    t.add_row("residual rms", f"{fit.residual_rms_db:.2f} dB")
+    t.add_row("target", f"{_mhz(cov.target_hz[0])} - {_mhz(cov.target_hz[1])} MHz")
+    t.add_row("ripple over target", f"{cov.ripple_db:.1f} dB (worst {cov.worst_db:.1f} dB below peak)")
+    t.add_row("stations outside -3 dB", ", ".join(_mhz(s) for s in cov.uncovered_stations_hz) or "-")
+    print_table(t)
+    c = Table(title=f"Fitted tuned circuits ({fit.n_circuits}, {fit.shape})", title_justify="left")
+    for col in ("circuit", "f0 MHz", "loaded Q", "own -3 dB width MHz"):
+        c.add_column(col, justify="right")
+    for i, s in enumerate(fit.stages, 1):
+        c.add_row(str(i), _mhz(s.f0_hz, 3), f"{s.q:.1f}", _mhz(s.bw_hz, 3))
+    print_table(c)
+    p = Table(title=f"Maximally flat stagger plan for {_mhz(plan.bandwidth_hz, 1)} MHz around "
+                    f"{_mhz(plan.center_hz, 3)} MHz ({plan.center_kind} centre)", title_justify="left")
+    for col in ("circuit", "f0 MHz", "loaded Q", "own -3 dB width MHz"):
+        p.add_column(col, justify="right")
+    for i, s in enumerate(plan.stages, 1):
+        p.add_row(str(i), _mhz(s.f0_hz, 3), f"{s.q:.1f}", _mhz(s.bw_hz, 3))
+    print_table(p)
+    click.echo(
+        f"plan checked with the exact circuit response: edges {plan.edge_atten_db[0]:.2f} / "
+        f"{plan.edge_atten_db[1]:.2f} dB, ripple {plan.ripple_db:.2f} dB over the target"
+    )
+    r = report.refined_plan
+    if r is not None and plan.n_circuits > 1:
+        click.echo(
+            "refined (same proportions, centre and width adjusted so the exact response is -3.01 dB at "
+            "both edges): " + ", ".join(f"{_mhz(s.f0_hz, 3)} MHz Q {s.q:.1f}" for s in r.stages)
+            + f"; ripple {r.ripple_db:.2f} dB"
+        )
+    if plan.peak_gain_change_db is not None:
+        click.echo(
+            f"peak gain change at the same gain-bandwidth per stage: {plan.peak_gain_change_db:+.1f} dB"
+        )
+    if plot_path:
+        click.echo(f"figure: {plot_path}")

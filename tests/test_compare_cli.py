@@ -1,0 +1,114 @@
+"""``bandcensus compare`` as the user sees it: JSON, CSV, terminal text, figure, exit codes."""
+
+from __future__ import annotations
+
+import csv
+import io
+import json
+
+import pytest
+
+from bandcensus.cli import main
+from compare_truth import FREQS_HZ, make_truth, write_db
+from survey.records import SweepSettings
+
+ROW_KEYS = {"freq_hz", "base_cn_db", "test_cn_db", "delta_cn_db", "ci_low_db", "ci_high_db", "gain_db",
+            "noise_rise_db", "verdict"}
+
+
+@pytest.fixture(scope="module")
+def db(tmp_path_factory):
+    path = tmp_path_factory.mktemp("cli") / "ab.db"
+    write_db(path, make_truth(17, n_per_side=20))
+    return str(path)
+
+
+def _reject_nan(text):
+    raise AssertionError(f"non-JSON constant {text} in output")
+
+
+def test_json_shape(db, capsys):
+    assert main(["compare", "--db", db, "--base", "bare", "--test", "preamp-a", "--json"]) == 0
+    doc = json.loads(capsys.readouterr().out, parse_constant=_reject_nan)
+    assert {"base", "test", "method", "thresholds", "channels", "summary", "warnings"} <= set(doc)
+    assert doc["base"] == "bare" and doc["test"] == "preamp-a" and doc["warnings"] == []
+    assert doc["method"].startswith("paired")
+    assert doc["thresholds"]["min_change_db"] == 0.5 and doc["thresholds"]["usable_cn_db"] == 12.0
+    assert len(doc["channels"]) == FREQS_HZ.size
+    for row in doc["channels"]:
+        assert ROW_KEYS <= set(row)
+        if row["verdict"] == "not received":
+            assert row["delta_cn_db"] is None and row["base_cn_db"] is None
+    assert [r["freq_hz"] for r in doc["channels"]] == FREQS_HZ.tolist()
+    counts = doc["summary"]["verdict_counts"]
+    assert sum(counts.values()) == FREQS_HZ.size and counts["improved"] >= 8
+
+
+def test_csv_rows(db, capsys):
+    assert main(["compare", "--db", db, "--base", "bare", "--test", "preamp-a", "--csv",
+                 "--min-change-db", "1", "--confidence", "0.9"]) == 0
+    rows = list(csv.DictReader(io.StringIO(capsys.readouterr().out)))
+    assert len(rows) == FREQS_HZ.size and set(rows[0]) == ROW_KEYS
+    assert rows[3]["verdict"] == "not received" and rows[3]["delta_cn_db"] == ""
+    assert float(rows[0]["delta_cn_db"]) == pytest.approx(5.0, abs=0.5)
+
+
+def test_terminal_summary_then_rows(db, capsys, tmp_path):
+    png = tmp_path / "cmp.png"
+    assert main(["compare", "--db", db, "--base", "bare", "--test", "preamp-a", "--plot", str(png)]) == 0
+    out = capsys.readouterr().out
+    assert out.count("SNR (C/N)") == 1 and "(P - N) / N" in out
+    assert out.index("Median change") < out.index("│ 88.10") < out.index("│ 88.30") < out.index("│ 92.70")
+    assert "common practice, no source" in out and "Verdicts:" in out
+    assert png.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n" and png.stat().st_size > 20_000
+
+
+def _one_line_error(capsys, argv):
+    code = main(argv)
+    err = capsys.readouterr().err.strip().splitlines()
+    return code, err
+
+
+def test_no_data_is_one_line_exit_1(db, capsys):
+    code, err = _one_line_error(capsys, ["compare", "--db", db, "--base", "bare", "--test", "preamp-q"])
+    assert code == 1 and len(err) == 1 and err[0].startswith("Error: ") and "labels present" in err[0]
+    code, err = _one_line_error(capsys, ["compare", "--db", db + ".missing", "--base", "a", "--test", "b"])
+    assert code == 1 and len(err) == 1 and "does not exist" in err[0]
+
+
+def test_mismatch_is_one_line_exit_1(tmp_path, capsys):
+    path = tmp_path / "mm.db"
+    write_db(path, make_truth(2, n_per_side=3), base_settings=SweepSettings(band="simulated-europe"),
+             test_settings=SweepSettings(band="simulated-japan"))
+    code, err = _one_line_error(capsys, ["compare", "--db", str(path), "--base", "bare", "--test", "preamp-a"])
+    assert code == 1 and len(err) == 1 and "band plan differs" in err[0]
+
+
+@pytest.mark.parametrize(
+    "extra",
+    [
+        ["--base", "bare"],                                              # --test missing
+        ["--base", "bare", "--test", "preamp-a", "--json", "--csv"],     # two output formats
+        ["--base", "bare", "--test", "bare"],                            # same label twice
+        ["--base", "bare", "--test", "preamp-a", "--confidence", "1.5"],
+        ["--base", "bare", "--test", "preamp-a", "--min-change-db", "-1"],
+        ["--base", "bare", "--test", "preamp-a", "--since", "yesterday"],
+    ],
+)
+def test_bad_usage_exit_2(db, capsys, extra):
+    code = main(["compare", "--db", db, *extra])
+    err = capsys.readouterr().err
+    assert code in (1, 2)
+    if extra[-1] == "yesterday":  # a value only the library can judge: one-line error, exit 1
+        assert code == 1 and "ISO 8601" in err
+    else:
+        assert code == 2 and ("Usage" in err or "Error" in err)
+
+
+def test_help_names_the_definitions(capsys):
+    assert main(["compare", "--help"]) == 0
+    out = capsys.readouterr().out
+    for opt in ("--base", "--test", "--json", "--csv", "--plot", "--since", "--until", "--min-change-db",
+                "--usable-cn-db", "--confidence"):
+        assert opt in out
+    assert "Wilcoxon" in out and "Hodges-Lehmann" in out
