@@ -21,7 +21,7 @@ when the lower quartile is censored).
 
 Medians and IQRs are order statistics, robust to the occasional burst of interference or a
 fading dip (Hampel et al., *Robust Statistics*, 1986, on the median's 50 % breakdown point).
-All reductions are vectorised over sweeps (``numpy.nanmedian`` / ``nanpercentile`` along
+All reductions are vectorised over sweeps (``numpy.percentile`` / ``nanpercentile`` along
 axis 0).
 """
 
@@ -146,6 +146,35 @@ def select_sweeps(
     return rows
 
 
+def read_matrix(conn: sqlite3.Connection, rows: list[SweepRow]) -> ChannelMatrix:
+    """Channel readings of ``rows`` (time order kept), as :func:`survey.store.read_channel_matrix`.
+
+    Fast path for the usual case, every sweep on one frequency axis: the columnar blobs are
+    joined and decoded once (``numpy.frombuffer``) instead of sweep by sweep. Anything else
+    (mixed axes, a sweep without its columnar copy) goes through ``read_channel_matrix``.
+    """
+    ids = [int(r.id) for r in rows]
+    blobs: dict[int, tuple[bytes, bytes, bytes, bytes]] = {}
+    for start in range(0, len(ids), 900):
+        chunk = ids[start:start + 900]
+        marks = ",".join("?" * len(chunk))
+        for sid, fr, pw, nz, rc in conn.execute(
+            f"SELECT sweep_id, freqs_hz, power_dbfs, noise_dbfs, received FROM channel_vectors"
+            f" WHERE sweep_id IN ({marks})", chunk,
+        ):
+            blobs[int(sid)] = (fr, pw, nz, rc)
+    if not ids or len(blobs) != len(ids) or len({b[0] for b in blobs.values()}) != 1:
+        return read_channel_matrix(conn, ids)
+    freqs = np.frombuffer(blobs[ids[0]][0], dtype="<i8").astype(np.int64)
+    n, m = len(ids), freqs.size
+    ordered = [blobs[i] for i in ids]
+    power = np.frombuffer(b"".join(b[1] for b in ordered), dtype="<f4").reshape(n, m).astype(np.float32)
+    noise = np.frombuffer(b"".join(b[2] for b in ordered), dtype="<f4").reshape(n, m).astype(np.float32)
+    received = np.frombuffer(b"".join(b[3] for b in ordered), dtype=np.uint8).reshape(n, m).astype(bool)
+    return ChannelMatrix(np.asarray(ids, np.int64), tuple(r.started_utc for r in rows), freqs, power, noise,
+                         received)
+
+
 def cn_db_from(power_dbfs: np.ndarray, noise_dbfs: np.ndarray, received: np.ndarray) -> np.ndarray:
     """Per-sweep C/N ``10 log10((P - N)/N)`` in dB (float32), NaN where not received or P <= N.
 
@@ -191,11 +220,13 @@ def statistics_from_arrays(
     cn_db: np.ndarray | None = None,
     configuration: str | None = None,
     input: str = "antenna",
+    levels: bool = True,
 ) -> ConfigurationStats:
     """Reduce ``(n_sweeps, n_freqs)`` readings to per-channel medians and IQRs.
 
     ``power_dbfs`` / ``noise_dbfs`` are NaN where a sweep did not measure a channel;
-    ``cn_db`` (optional, from :func:`cn_db_from`) saves recomputing the per-sweep C/N.
+    ``cn_db`` (optional, from :func:`cn_db_from`) saves recomputing the per-sweep C/N;
+    ``levels=False`` skips the power and noise medians (left NaN) when only C/N is needed.
 
     Returns
     -------
@@ -214,8 +245,11 @@ def statistics_from_arrays(
     n_measured = measured.sum(axis=0)
     received_count = (received & measured).sum(axis=0)
     received_fraction = received_count / np.maximum(n_measured, 1)
-    p_med, p_iqr = median_iqr(power)
-    n_med, n_iqr = median_iqr(noise)
+    if levels:
+        p_med, p_iqr = median_iqr(power)
+        n_med, n_iqr = median_iqr(noise)
+    else:
+        p_med = p_iqr = n_med = n_iqr = np.full(power.shape[1], np.nan)
     c_med, c_iqr = median_iqr(cn)
     return ConfigurationStats(
         configuration=configuration,
@@ -256,7 +290,7 @@ def configuration_statistics(
     conn = open_for_reading(db_path)
     try:
         rows = select_sweeps(conn, configuration, input, since, until)
-        matrix = read_channel_matrix(conn, [r.id for r in rows])
+        matrix = read_matrix(conn, rows)
     finally:
         conn.close()
     return statistics_from_matrix(matrix, configuration, input)
@@ -276,10 +310,11 @@ def channel_table(
     """One dict per channel (ascending frequency) summarising the selected sweeps.
 
     Keys: ``freq_hz`` (int, Hz), ``power_dbfs`` and ``noise_dbfs`` (medians, dBFS), ``cn_db``
-    (median C/N over the sweeps that received the channel, dB; None when it was received in
+    (left-censored median C/N, dB, see the module notes; None when the channel was received in
     fewer than half of the sweeps), ``received`` (received in at least half), ``received_fraction``,
     ``sweeps`` (number of sweeps that measured the channel), ``cn_spread_db`` (IQR of C/N, dB;
-    None where ``cn_db`` is None). ``configuration=None`` takes every configuration of ``input``.
+    None where ``cn_db`` is None or the lower quartile is censored). ``configuration=None`` takes
+    every configuration of ``input``.
     """
     stats = configuration_statistics(db_path, configuration, input=input, since=since, until=until)
     table = []

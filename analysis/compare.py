@@ -29,6 +29,18 @@ Statistics follow how the data was taken:
   base differences) with the distribution-free interval from the Mann-Whitney statistic
   (Hodges & Lehmann 1963; Lehmann, *Nonparametrics*, 1975, ch. 2; normal approximation of
   the critical rank, from memory) and the Mann-Whitney p-value (:func:`scipy.stats.mannwhitneyu`).
+
+A channel counts as received by a configuration when received in at least half of its sweeps;
+``base_cn_db`` / ``test_cn_db`` are the left-censored medians of
+:mod:`analysis.channel_stats`. ``delta_cn_db`` uses only the pairs (or sweeps) in which the
+channel was received by both. An interval needs at least ``min_samples_for_interval`` pairs
+(6 at 95 %: with fewer the signed-rank test cannot reach the significance level).
+
+Verdicts (thresholds settable and stated in ``Comparison.thresholds``): *improved* when the
+interval lies above 0 dB and the change is at least ``min_change_db``; *worse* likewise below;
+*unchanged* otherwise; without an interval (too few sweeps) the threshold alone decides and
+the method says so. *gained* / *lost*: received only with test / only with base; *not
+received*: by neither; *undetermined*: received by both but never in the same pair.
 """
 
 from __future__ import annotations
@@ -41,6 +53,7 @@ import numpy as np
 
 from analysis.channel_stats import (
     cn_db_from,
+    read_matrix,
     select_sweeps,
     statistics_from_arrays,
     utc_to_epoch_s,
@@ -51,19 +64,20 @@ from analysis.compare_estimators import (
     hodges_lehmann_shift,
     mannwhitney_p,
     min_n_for_interval,
+    min_n_unpaired,
     pair_sweeps,
     quiet_nanmedian,
     wilcoxon_p,
 )
 from analysis.errors import BadParameterError, MismatchError
-from survey.store import ChannelMatrix, SweepRow, open_for_reading, read_channel_matrix
+from survey.store import ChannelMatrix, SweepRow, open_for_reading
 
 VERDICTS = ("improved", "unchanged", "worse", "gained", "lost", "not received", "undetermined")
 
 #: Monte Carlo bootstrap is used while ``n_boot * n_pairs * n_channels`` stays below this.
 MC_BOOTSTRAP_BUDGET = 40_000_000
 #: Unpaired Hodges-Lehmann uses at most this many sweeps per side (seeded random subset).
-UNPAIRED_MAX_PER_SIDE = 1000
+UNPAIRED_MAX_PER_SIDE = 600
 
 
 @dataclass(frozen=True)
@@ -183,15 +197,15 @@ def noise_source_note(broadband_db: float | None, median_gain_db: float | None, 
     if median_gain_db is None:
         return (f"broadband noise rise {broadband_db:+.1f} dB over {n_empty} unoccupied channels; "
                 "no channel received by both, so no gain to compare it with")
-    lead = f"broadband noise rise {broadband_db:+.1f} dB (median of {n_empty} unoccupied channels), median gain {median_gain_db:+.1f} dB: "
+    head = f"broadband noise rise {broadband_db:+.1f} dB (median of {n_empty} unoccupied channels), median gain {median_gain_db:+.1f} dB: "
     if broadband_db > median_gain_db + 1.0:
-        return lead + ("the floor rose more than the signals; the test chain adds noise beyond its gain "
+        return head + ("the floor rose more than the signals; the test chain adds noise beyond its gain "
                        "(oscillation, supply noise or overload): check it")
     if broadband_db >= median_gain_db - 1.0:
-        return lead + ("the floor rose about as much as the signals, so noise from ahead of the receiver "
+        return head + ("the floor rose about as much as the signals, so noise from ahead of the receiver "
                        "(outside noise or the preamp's own noise) dominates; more gain will not help. "
                        "Noise-figure runs (terminated input) separate the two")
-    return lead + (f"the floor rose {median_gain_db - broadband_db:.1f} dB less than the signals: the "
+    return head + (f"the floor rose {median_gain_db - broadband_db:.1f} dB less than the signals: the "
                    "receiver's own noise dominated the base configuration and the test configuration lifts "
                    "signals above it")
 
@@ -276,14 +290,6 @@ def _align(matrix: ChannelMatrix, freqs_hz: np.ndarray) -> tuple[np.ndarray, ...
     return power, noise, received, cn_db_from(power, noise, received)
 
 
-def _signal_db(power: np.ndarray, noise: np.ndarray) -> np.ndarray:
-    """Signal-only power ``10 log10(P - N)`` in dBFS, NaN where ``P <= N``."""
-    from survey.units import db_to_ratio, ratio_to_db
-
-    s = np.asarray(ratio_to_db(np.asarray(db_to_ratio(power)) - np.asarray(db_to_ratio(noise))))
-    return np.where(np.isfinite(s), s, np.nan)
-
-
 def _opt(x: float | None, digits: int = 4) -> float | None:
     """A finite value as a float rounded to ``digits`` decimals (dB: far below any uncertainty),
     else None."""
@@ -343,8 +349,8 @@ def compare_matrices(
     freqs = np.union1d(base.freqs_hz, test.freqs_hz).astype(np.int64)
     pb, nb, rb_, cb = _align(base, freqs)
     pt, nt, rt_, ct = _align(test, freqs)
-    st_b = statistics_from_arrays(freqs, pb, nb, rb_, cb, base_label, input)
-    st_t = statistics_from_arrays(freqs, pt, nt, rt_, ct, test_label, input)
+    st_b = statistics_from_arrays(freqs, pb, nb, rb_, cb, base_label, input, levels=False)
+    st_t = statistics_from_arrays(freqs, pt, nt, rt_, ct, test_label, input, levels=False)
     rf_b, rf_t = st_b.received_fraction, st_t.received_fraction
     med_b, med_t = st_b.cn_db, st_t.cn_db
 
@@ -362,8 +368,8 @@ def compare_matrices(
     if paired:
         d_cn = ct[ti] - cb[bi]
         d_n = nt[ti] - nb[bi]
-        d_gain = _signal_db(pt[ti], nt[ti]) - _signal_db(pb[bi], nb[bi])
-        d_gain = np.where(np.isfinite(d_cn), d_gain, np.nan)
+        # signal-only power 10 log10(P - N) = N + C/N (dB), so the per-pair gain is d_cn + d_n
+        d_gain = d_cn + d_n
         n_used = np.sum(np.isfinite(d_cn), axis=0)
         delta = quiet_nanmedian(d_cn, 0)
         rise = quiet_nanmedian(d_n, 0)
@@ -387,14 +393,11 @@ def compare_matrices(
         n_used = np.minimum(np.sum(np.isfinite(cb), axis=0), np.sum(np.isfinite(ct), axis=0))
         sb, stt = _subsample(cb.shape[0], rng), _subsample(ct.shape[0], rng)
         delta, lo, hi, rise, gain_direct = (np.full(m, np.nan) for _ in range(5))
-        sig_b, sig_t = _signal_db(pb, nb), _signal_db(pt, nt)
+        sig_b, sig_t = nb + cb, nt + ct  # signal-only power N + C/N (dBFS), NaN where not received
         for j in range(m):
             delta[j], lo[j], hi[j] = hodges_lehmann_shift(ct[stt, j], cb[sb, j], confidence)
             rise[j] = hodges_lehmann_shift(nt[stt, j], nb[sb, j])[0]
-            gain_direct[j] = hodges_lehmann_shift(
-                np.where(np.isfinite(ct[stt, j]), sig_t[stt, j], np.nan),
-                np.where(np.isfinite(cb[sb, j]), sig_b[sb, j], np.nan),
-            )[0]
+            gain_direct[j] = hodges_lehmann_shift(sig_t[stt, j], sig_b[sb, j])[0]
             if n_used[j] >= 1:
                 p_values[j] = _nan(mannwhitney_p(ct[:, j], cb[:, j]))
         capped = max(cb.shape[0], ct.shape[0]) > UNPAIRED_MAX_PER_SIDE
@@ -406,7 +409,7 @@ def compare_matrices(
             + (f"; shift and interval on a seeded random subset of {UNPAIRED_MAX_PER_SIDE} sweeps per side"
                if capped else "")
         )
-        min_n = max(2, min_n // 2)
+        min_n = min_n_unpaired(alpha)
     too_few = n_used < min_n
     lo = np.where(too_few, np.nan, lo)
     hi = np.where(too_few, np.nan, hi)
@@ -490,8 +493,8 @@ def summarise(result: Comparison, usable_cn_db: float) -> dict:
                 "ci_high_db": c.ci_high_db}
 
     return {
-        "received_base": sum(c.base_cn_db is not None for c in ch),
-        "received_test": sum(c.test_cn_db is not None for c in ch),
+        "received_base": sum(c.base_received_fraction >= 0.5 for c in ch),
+        "received_test": sum(c.test_received_fraction >= 0.5 for c in ch),
         "received_both": len(both),
         "usable_base": sum(c.base_cn_db is not None and c.base_cn_db >= usable_cn_db for c in ch),
         "usable_test": sum(c.test_cn_db is not None and c.test_cn_db >= usable_cn_db for c in ch),
@@ -526,6 +529,7 @@ def compare_configurations(
     input: str = "antenna",
     pairing: str = "auto",
     noise_options: dict | None = None,
+    with_diagnosis: bool = False,
 ) -> Comparison:
     """Compare configuration ``test`` against ``base`` channel by channel.
 
@@ -568,8 +572,8 @@ def compare_configurations(
         rows_b = select_sweeps(conn, base, input, since, until)
         rows_t = select_sweeps(conn, test, input, since, until)
         notes = settings_warnings(rows_b, rows_t, base, test)
-        mat_b = read_channel_matrix(conn, [r.id for r in rows_b])
-        mat_t = read_channel_matrix(conn, [r.id for r in rows_t])
+        mat_b = read_matrix(conn, rows_b)
+        mat_t = read_matrix(conn, rows_t)
         result = compare_matrices(
             mat_b, mat_t, base, test, input=input, pairing=pairing, min_change_db=min_change_db,
             confidence=confidence, usable_cn_db=usable_cn_db, n_boot=n_boot, seed=seed,
@@ -579,4 +583,19 @@ def compare_configurations(
                                                                     noise_options)
     finally:
         conn.close()
+    if with_diagnosis:
+        summary["findings"] = _diagnosis_lines(db_path, base, test, noise_options)
     return replace(result, summary=summary, warnings=tuple(notes))
+
+
+def _diagnosis_lines(db_path: str | Path, base: str, test: str, noise_options: dict | None) -> list[str]:
+    """One line per finding of the chain diagnosis, or one line saying why it could not run."""
+    from analysis.diagnose import diagnose, summarise_findings
+    from analysis.errors import AnalysisError
+
+    try:
+        found = diagnose(db_path, base, test, enr_db=(noise_options or {}).get("enr_db"))
+    except AnalysisError as exc:
+        return [f"diagnosis not available: {exc}"]
+    lines = summarise_findings(found.findings)
+    return lines or ["no trouble found (" + "; ".join(c.split(":")[0] for c in found.checked) + " checked)"]

@@ -77,6 +77,7 @@ def pair_sweeps(
 
 # -- robust estimators ----------------------------------------------------------------------
 def quiet_nanmedian(values: np.ndarray, axis: int) -> np.ndarray:
+    """``numpy.nanmedian`` that returns NaN for all-NaN slices without a RuntimeWarning."""
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", RuntimeWarning)  # all-NaN slices give NaN: wanted
         return np.nanmedian(values, axis=axis)
@@ -88,7 +89,9 @@ def bootstrap_median_ci(
     """Percentile bootstrap CI of the column medians of ``diffs`` (rows = pairs, NaN ignored).
 
     One replicate draws ``n`` pair indices with replacement and applies them to every column,
-    so channels are resampled jointly, vectorised in chunks of replicates.
+    so channels are resampled jointly, vectorised in chunks of replicates (Efron & Tibshirani
+    1993, ch. 13, percentile interval). A replicate in which a column drew only NaN is ignored
+    for that column.
     """
     n, m = diffs.shape
     alpha = 1.0 - confidence
@@ -172,6 +175,17 @@ def hodges_lehmann_shift(
 def min_n_for_interval(alpha: float) -> int:
     """Smallest sample for which the signed-rank test can reach ``alpha`` (2**(1-n) < alpha)."""
     return int(np.floor(1 + np.log2(1 / alpha))) + 1
+
+
+def min_n_unpaired(alpha: float) -> int:
+    """Smallest equal sample size ``k`` per side for which the two-sided Mann-Whitney test can
+    reach ``alpha`` (smallest p-value ``2 / C(2k, k)``)."""
+    from math import comb
+
+    k = 1
+    while 2.0 / comb(2 * k, k) >= alpha:
+        k += 1
+    return k
 
 
 def wilcoxon_p(d: np.ndarray) -> float | None:

@@ -48,14 +48,17 @@ class InputGroup:
 
     @property
     def name(self) -> str:
+        """Label and input, for messages."""
         return f"'{self.configuration}' {self.input}"
 
     @property
     def gain_db(self) -> float | None:
+        """Receiver gain setting of the group's sweeps, dB (None: not recorded)."""
         return self.sweeps[0].gain_db
 
     @property
     def channel_bw_hz(self) -> float:
+        """Channel integration bandwidth of the group's sweeps, Hz."""
         return self.sweeps[0].channel_bw_hz
 
 
@@ -79,7 +82,8 @@ def pooled_sigma(sigma: np.ndarray, width: int = 5) -> np.ndarray:
         return np.where(den > 0, np.sqrt(num / np.maximum(den, 1e-300)), np.nan)
 
 
-def _make_group(cfg: str, inp: str, sweeps: list[SweepRow], power_dbfs, noise_dbfs, received) -> InputGroup:
+def _make_group(cfg: str, inp: str, sweeps: list[SweepRow], power_dbfs: np.ndarray, noise_dbfs: np.ndarray,
+                received: np.ndarray) -> InputGroup:
     gains = {s.gain_db for s in sweeps}
     bws = {s.channel_bw_hz for s in sweeps}
     if len(gains) > 1 or len(bws) > 1:
@@ -115,7 +119,16 @@ def _make_group(cfg: str, inp: str, sweeps: list[SweepRow], power_dbfs, noise_db
     return InputGroup(cfg, inp, tuple(sweeps), mean, sigma, sig_mean, sig_sigma, occupied, empirical, floor_offset)
 
 
-def read_input_groups(db_path: str | Path, labels: list[str], inputs: tuple[str, ...] = NOISE_INPUTS) -> tuple[np.ndarray, dict[tuple[str, str], InputGroup]]:
+def read_input_groups(
+    db_path: str | Path, labels: list[str], inputs: tuple[str, ...] = NOISE_INPUTS
+) -> tuple[np.ndarray, dict[tuple[str, str], InputGroup]]:
+    """Average every complete sweep of each (label, input) present, on one frequency axis.
+
+    Returns ``(freqs_hz, groups)`` with ``groups[(label, input)]`` an :class:`InputGroup`.
+    Raises :class:`NoDataError` (naming the labels present) when a label has no such sweeps,
+    :class:`MismatchError` when one group mixes receiver gains or channel bandwidths, and
+    ``StoreError`` when the database cannot be read.
+    """
     conn = open_for_reading(db_path)
     try:
         found: dict[tuple[str, str], list[SweepRow]] = {}
@@ -151,6 +164,10 @@ def read_input_groups(db_path: str | Path, labels: list[str], inputs: tuple[str,
 
 
 def check_same_setting(a: InputGroup, b: InputGroup, why: str) -> None:
+    """Refuse to divide readings of two groups taken at another bandwidth or receiver gain.
+
+    ``why`` names the ratio that needs them equal; :class:`MismatchError` names the remedy.
+    """
     if a.channel_bw_hz != b.channel_bw_hz:
         raise MismatchError(
             f"{a.name} used a {a.channel_bw_hz:g} Hz channel bandwidth but {b.name} {b.channel_bw_hz:g} Hz; "

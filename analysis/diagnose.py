@@ -249,6 +249,12 @@ def diagnose(
         findings += f4; checked += c4; notes += n4
     finally:
         conn.close()
+    if any(f.kind == "clipping" for f in findings):
+        weak = [f for f in findings if f.kind == "oscillation" and "line_freq_hz" not in f.evidence]
+        for f in weak:
+            notes.append(f"{f.freq_hz / 1e6:.3f} MHz rose more than the gain explains, but the converter clips: "
+                         "most likely a clipping product, so it is not called an oscillation")
+        findings = [f for f in findings if f not in weak]
     if any(f.kind == "clipping" for f in findings) and any(f.kind != "clipping" for f in findings):
         notes.append("the converter clips: clipping itself makes spurious products and raises the floor, so "
                      "cure it first and repeat the survey before trusting the other findings")

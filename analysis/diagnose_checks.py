@@ -48,6 +48,10 @@ IMAGE_MATCH_DB = 3.0
 #: An image the base could not have shown is accepted only this far below its mirror, dB
 #: (receivers of this class reject their image by roughly 25-40 dB; from memory).
 IMAGE_UNSEEN_MIN_DB = 20.0
+#: An unexplained channel must stand at least this far above its floor (C/N, dB): the local
+#: floor can be a couple of dB low at a hop edge on a steep passband slope (common practice,
+#: no source).
+CANDIDATE_MIN_CN_DB = 6.0
 #: Strong carriers: received with at least this C/N in the test configuration, dB.
 CARRIER_MIN_CN_DB = 10.0
 #: Rail of ``cu8`` in full-scale units: bytes 0 and 255 are ``|x| >= 127/127.5``.
@@ -91,8 +95,8 @@ def check_clipping(test_hops: list[dict], base_hops: list[dict], threshold: floa
         return findings, [f"clipping: not checked ('{test}' hops carry no clip fraction: not 8-bit samples)"], notes
     above = {k: v for k, v in worst.items() if v > threshold}
     (w_inp, w_fc), w_val = max(worst.items(), key=lambda kv: kv[1])
-    checked.append(f"clipping: {len(above)} of {len(worst)} hops of '{test}' above {threshold:g} "
-                   f"(largest fraction {w_val:.3g} at {w_fc / 1e6:.3f} MHz)")
+    worst_txt = (f"largest fraction {w_val:.3g} at {w_fc / 1e6:.3f} MHz" if w_val > 0 else "no sample at the rails")
+    checked.append(f"clipping: {len(above)} of {len(worst)} hops of '{test}' above {threshold:g} ({worst_txt})")
     b_worst = _worst_per_hop(base_hops)
     b_max = max(b_worst.values()) if b_worst else float("nan")
     if b_worst and b_max > threshold:
@@ -194,11 +198,12 @@ def rise_groups(base: ChannelSummary, test: ChannelSummary, expected_db: np.ndar
     s_b, up_b, rec_b = _aligned(base, test)
     with np.errstate(invalid="ignore", divide="ignore"):
         rise_lb = np.where(s_t > 0, _db(s_t / up_b), np.nan)
+        cn_t = _db(s_t / test.noise_lin)
     exp = np.where(np.isfinite(expected_db), expected_db, -np.inf)
-    flag = test.received & np.isfinite(rise_lb) & (rise_lb > exp + RISE_MARGIN_DB)
+    flag = test.received & np.isfinite(rise_lb) & (rise_lb > exp + RISE_MARGIN_DB) & (cn_t >= CANDIDATE_MIN_CN_DB)
     flag &= ~np.isin(test.freqs_hz, list(skip_hz))
     if not np.any(np.isfinite(expected_db)):
-        flag = test.received & ~rec_b & ~np.isin(test.freqs_hz, list(skip_hz))
+        flag = test.received & ~rec_b & ~np.isin(test.freqs_hz, list(skip_hz)) & (cn_t >= CANDIDATE_MIN_CN_DB)
     raster = raster_step_hz(test.freqs_hz)
     groups: list[list[int]] = []
     for j in np.flatnonzero(flag):

@@ -55,8 +55,10 @@ def fit_unshaped_floor(gain_lin: np.ndarray, base_noise: np.ndarray, test_noise:
                        n_boot: int = N_BOOT, seed: int = 0) -> dict:
     """Fit ``N_t = G N_b + a G + beta`` (see the module docstring); all arrays linear, same length.
 
-    Returns ``{"a", "beta", "beta_boot", "rms_rel"}`` (``beta_boot`` the bootstrap replicates,
-    ``rms_rel`` the weighted residual RMS as a fraction of ``N_t``).
+    Returns ``{"a", "beta", "beta_boot", "beta_sigma_ls", "rms_rel"}``: ``beta_boot`` the
+    bootstrap replicates, ``beta_sigma_ls`` the standard error of ``beta`` from the covariance
+    of the unconstrained weighted fit (large when the gain is nearly flat and ``a G`` and
+    ``beta`` cannot be told apart), ``rms_rel`` the weighted residual RMS as a fraction of ``N_t``.
     """
     g = np.asarray(gain_lin, dtype=np.float64)
     nb = np.asarray(base_noise, dtype=np.float64)
@@ -74,7 +76,16 @@ def fit_unshaped_floor(gain_lin: np.ndarray, base_noise: np.ndarray, test_noise:
     resid = a_mat @ x - yw
     rng = np.random.default_rng(seed)
     boot = np.array([solve(rng.integers(0, g.size, g.size))[2] for _ in range(n_boot)])
+    # unconstrained weighted least squares on [G, 1]: its covariance shows a flat gain's degeneracy
+    a2 = np.column_stack([a_mat[:, 0], a_mat[:, 2]])
+    x2, *_ = np.linalg.lstsq(a2, yw, rcond=None)
+    r2 = a2 @ x2 - yw
+    dof = max(g.size - 2, 1)
+    m = a2.T @ a2
+    cov = (float(np.sum(r2 ** 2) / dof) * np.linalg.inv(m) if np.linalg.cond(m) < 1e12
+           else np.full((2, 2), np.inf))
     return {"a": float(x[0] - x[1]), "beta": float(x[2]), "beta_boot": boot,
+            "beta_sigma_ls": float(np.sqrt(max(cov[1, 1], 0.0))),
             "rms_rel": float(np.sqrt(np.mean(resid ** 2)))}
 
 
@@ -151,34 +162,42 @@ def check_added_noise(conn, db_path, base: str, test: str, gain: GainModel | Non
     b_term = sums[(base, "terminated")]
     ev: dict = {}
     q = quantisation_noise_lin(conn, b, t.channel_bw_hz)
+    thermal_ok = False
     if b_term is not None:
         nbt = nb if inp == "terminated" else np.interp(f[use], b_term.freqs_hz, b_term.noise_lin)
         nbt_med = float(np.median(nbt)) - q  # thermal part: c B (Tamb + Tr)
-    if tr_k is not None and b_term is not None:
+        thermal_ok = nbt_med > q
+        if not thermal_ok:
+            notes.append("the base terminated floor lies within 3 dB of the converter's quantisation noise, so it "
+                         "cannot be read as kelvin: raise the receiver gain for the terminated runs")
+    if tr_k is not None and b_term is not None and thermal_ok:
         rx = q + nbt_med * tr_k / (ambient_k + tr_k)
         bound_how = f"known exactly ({tr_how}, base terminated floor = Tamb + Tr)"
     elif b_term is not None:
         rx = nbt_med + q
+        if not thermal_ok:
+            tr_k = None
         bound_how = "bounded by the base terminated floor (Tamb + Tr)"
     else:
         rx = float(np.median(nb))
         bound_how = f"bounded by the base {inp} floor"
-    sigma_beta = float(np.std(boot, ddof=1))
+    sigma_beta = max(float(np.std(boot, ddof=1)), fit["beta_sigma_ls"])
     excess_db = float(ratio_to_db(beta / rx)) if beta > 0 else float("-inf")
     with np.errstate(divide="ignore", invalid="ignore"):
-        boot_db = np.asarray(ratio_to_db(np.maximum(boot, 1e-300) / rx))
-    sigma_db = float(np.std(boot_db[np.isfinite(boot_db)], ddof=1)) if np.isfinite(boot_db).sum() > 2 else float("nan")
+        sigma_db = float(ratio_to_db((max(beta, 0.0) + sigma_beta) / max(beta, 1e-300)))
     checked = [f"added-noise: fitted N = G N_base + a G + beta on {int(use.sum())} unoccupied channels of the {inp} "
                f"input; unshaped part beta {float(ratio_to_db(max(beta, 1e-300))):.1f} dBFS is "
                f"{excess_db:+.1f} +- {sigma_db:.1f} dB against the receiver's own floor ({bound_how})"]
     if not (excess_db >= MIN_EXCESS_DB and beta - rx > MIN_EXCESS_SIGMA * sigma_beta):
+        if excess_db >= MIN_EXCESS_DB:
+            checked[-1] += ": not significant (under two standard deviations)"
         return [], checked, notes
     ev.update({"unshaped_noise_dbfs": float(ratio_to_db(beta)), "receiver_floor_dbfs": float(ratio_to_db(rx)),
                "excess_db": excess_db, "excess_uncertainty_db": sigma_db, "fit_channels_count": int(use.sum()),
                "gain_span_db": span_db, "fit_residual_rms_fraction": fit["rms_rel"],
                "quantisation_noise_dbfs": float(ratio_to_db(q)) if q > 0 else float("-inf")})
     kelvin = ""
-    if b_term is not None:
+    if b_term is not None and thermal_ok:
         r = (beta - q) / nbt_med
         if tr_k is not None:
             ts = r * ambient_k + tr_k * (r - 1.0)

@@ -292,12 +292,14 @@ def analyse_noise(
             workflows.append("station gain")
             assumptions.append(
                 f"preamp gain from {np.count_nonzero(good)} stations received in both configurations "
-                "(ratio of P - N), interpolated between them (monotone cubic in dB) and undefined beyond the outermost; assumes the "
-                "stations' levels did not change between the runs: record noise-hot/noise-cold sweeps of "
-                "both configurations for a gain at every channel"
+                "(ratio of P - N), interpolated between them (monotone cubic in dB) and undefined beyond "
+                "the outermost; assumes the stations' levels did not change between the runs: record "
+                "noise-hot/noise-cold sweeps of both configurations for a gain at every channel"
             )
     if len(y_ok) == 2:
-        gain = lambda v: np.asarray(nz.gain_from_hot_cold(v["n_sys_hot"], v["n_sys_cold"], v["n_rx_hot"], v["n_rx_cold"]))  # noqa: E731
+        def gain(v: Values) -> np.ndarray:
+            return np.asarray(nz.gain_from_hot_cold(v["n_sys_hot"], v["n_sys_cold"], v["n_rx_hot"], v["n_rx_cold"]))
+
         gain_method = "y-factor"
         workflows.append("hot-minus-cold gain")
 
@@ -337,7 +339,9 @@ def analyse_noise(
     if ant_rx is not None and term_rx is not None:
         check_same_setting(ant_rx, term_rx, "the antenna-to-terminated ratio")
         if rx_temp is not None:
-            ta = lambda v: np.asarray(nz.antenna_temp_from_ratio_k(v["n_rx_ant"] / v["n_rx_term"], cold_k, rx_temp(v)))  # noqa: E731
+            def ta(v: Values) -> np.ndarray:
+                return np.asarray(nz.antenna_temp_from_ratio_k(v["n_rx_ant"] / v["n_rx_term"], cold_k, rx_temp(v)))
+
             workflows.append("outside noise")
             assumptions.append(
                 "antenna noise from the local floor (N) of antenna sweeps against the channel power of "

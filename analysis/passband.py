@@ -17,9 +17,11 @@ synchronous shape lets a handful of hand readings constrain a multi-circuit skir
 
 Fit and model choice
 --------------------
-Least squares on the gain in dB (:func:`scipy.optimize.least_squares`, bounded, several
-starts). The model is chosen by the Bayesian information criterion,
-``BIC = N ln(RSS/N) + k ln N`` (G. Schwarz, "Estimating the dimension of a model", Annals of
+Weighted least squares on the gain in dB (:func:`scipy.optimize.least_squares`, bounded,
+analytic Jacobian, several starts; weights ``1/sigma_dB`` scaled to rms 1; resonances bounded to
+the measured span). For a noise-floor rise the model gains a floor term (``floor_offset``).
+The model is chosen by the Bayesian information criterion, ``BIC = N ln(RSS_w/N) + k ln N``
+on the weighted residuals (G. Schwarz, "Estimating the dimension of a model", Annals of
 Statistics 6(2), 461-464, 1978). A model is admissible only with at least two residual degrees
 of freedom (``N >= k + 2``); the residual rms is floored at :data:`RMS_FLOOR_DB` so that
 noiseless data do not give ``-inf`` and ties go to the fewer parameters. With fewer than five

@@ -225,8 +225,9 @@ def quantisation_margin_db(spectra_lin: Sequence[np.ndarray], sample_rate_hz: fl
     return float(ratio_to_db(weakest)) - quantisation_floor_dbfs_hz(sample_rate_hz)
 
 
-def _settings_check(groups: dict[str, list[SweepRow]]) -> None:
-    gains = {sw.gain_db for rows in groups.values() for sw in rows}
+def _settings_check(sweeps: Sequence[SweepRow]) -> None:
+    """Refuse a gain ratio across sweeps measured at different receiver gains."""
+    gains = {sw.gain_db for sw in sweeps}
     if len(gains) > 1:
         shown = ", ".join("auto" if g is None else f"{g:g} dB" for g in sorted(gains, key=lambda v: (v is None, v or 0)))
         raise MismatchError(
@@ -286,7 +287,7 @@ def _noise_source_curve(conn, base, test, bin_hz):
     need = ("noise-hot", "noise-cold")
     if not all(k in b and k in t for k in need):
         return None
-    _settings_check({"a": b["noise-hot"] + b["noise-cold"] + t["noise-hot"] + t["noise-cold"]})
+    _settings_check(b["noise-hot"] + b["noise-cold"] + t["noise-hot"] + t["noise-cold"])
     used = {"test noise-hot": len(t["noise-hot"]), "test noise-cold": len(t["noise-cold"]),
             "base noise-hot": len(b["noise-hot"]), "base noise-cold": len(b["noise-cold"])}
     dense = _dense_ratio(conn, [t["noise-hot"], t["noise-cold"], b["noise-hot"], b["noise-cold"]], bin_hz)
@@ -345,7 +346,7 @@ def _stations_curve(conn, base, test):
     b, t = _by_input(base), _by_input(test)
     if "antenna" not in b or "antenna" not in t:
         return None
-    _settings_check({"a": b["antenna"] + t["antenna"]})
+    _settings_check(b["antenna"] + t["antenna"])
     nt, nb = len(t["antenna"]), len(b["antenna"])
     m = read_channel_matrix(conn, [sw.id for sw in t["antenna"] + b["antenna"]])
     p = np.asarray(db_to_ratio(m.power_dbfs.astype(np.float64)))
@@ -386,7 +387,7 @@ def _floor_curve(conn, base, test, bin_hz):
     b, t = _by_input(base), _by_input(test)
     for kind in ("terminated", "noise-cold", "antenna"):
         if kind in b and kind in t:
-            _settings_check({"a": b[kind] + t[kind]})
+            _settings_check(b[kind] + t[kind])
             used = {f"test {kind}": len(t[kind]), f"base {kind}": len(b[kind])}
             edges_info = _dense_ratio(conn, [t[kind], b[kind]], bin_hz)
             if edges_info is not None:

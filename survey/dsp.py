@@ -67,7 +67,6 @@ _NATIVE = {"cu8": np.dtype(np.uint8), "ci8": np.dtype(np.int8),
            "ci16_le": np.dtype("<i2"), "cf32_le": np.dtype("<f4")}
 _SCALE = {"ci8": 1.0 / 128.0, "ci16_le": 1.0 / 32768.0}
 _DB_PER_NEPER = 10.0 / np.log(10.0)  # 10 log10(e): converts a natural-log variance/mean to dB
-_DEBUG = {}
 _PBSV = scipy.linalg.get_lapack_funcs("pbsv", dtype=np.float64)  # banded SPD solver, as solveh_banded
 _CHUNK_SEGMENTS = 128  # FFT segments per chunk: keeps the working set in cache for long blocks
 
@@ -354,13 +353,18 @@ def _penalty_bands(curve: np.ndarray, tension: np.ndarray) -> np.ndarray:
 
 
 def _whittaker(y: np.ndarray, weight: np.ndarray, penalty: np.ndarray) -> np.ndarray:
-    """Minimise ``sum w (y - z)^2 + z' P z`` for the banded penalty ``P`` (Whittaker [3]_)."""
-    ab = penalty.copy()
-    ab[2] += weight + 1e-9
-    _, z, info = _PBSV(ab, weight * y, lower=0, overwrite_ab=1, overwrite_b=1)
-    if info != 0:  # not positive definite: cannot happen with the ridge above; fall back
-        return scipy.linalg.solveh_banded(penalty + np.array([[0.0], [0.0], [1e-6]]) + 0.0, weight * y)
-    return z
+    """Minimise ``sum w (y - z)^2 + z' P z`` for the banded penalty ``P`` (Whittaker [3]_).
+
+    Solved with LAPACK's banded Cholesky (``pbsv``, as ``scipy.linalg.solveh_banded`` does,
+    without its per-call checks); a tiny ridge keeps the system definite where no weight is.
+    """
+    for ridge in (1e-9, 1e-6, 1e-3):
+        ab = penalty.copy()
+        ab[2] += weight + ridge
+        _, z, info = _PBSV(ab, weight * y, lower=0, overwrite_ab=1, overwrite_b=1)
+        if info == 0:
+            return z
+    raise PlanError("the noise-floor fit did not converge; check the PSD for NaN or infinite values")
 
 
 @lru_cache(maxsize=32)
@@ -404,7 +408,7 @@ def local_noise_floor(
     *,
     effective_averages: float,
     smooth_hz: float = 150_000.0,
-    tension_hz: float = 60_000.0,
+    tension_hz: float = 40_000.0,
     group_hz: float = 8_000.0,
     core_sigma: float = 4.0,
     skirt_sigma: float = 1.0,
@@ -423,26 +427,34 @@ def local_noise_floor(
        deviation ``sigma`` follows from ``K_eff`` (the trigamma function gives the variance of
        ``ln chi2(2K)/(2K)``) and the Hann correlation of adjacent bins; it is not estimated
        from the data.
-    2. Start: asymmetric least squares [2]_, a stiff Whittaker smoother [3]_ refitted with weight
+    2. Start: asymmetric least squares [2]_, a Whittaker smoother [3]_ refitted with weight
        ``asymmetry`` above it and ``1 - asymmetry`` below, which slides under the signals.
     3. Repeat until the classification settles: mark groups holding signal by hysteresis on the
        residual above the current floor (cores above ``core_sigma`` sigmas, grown through their
-       skirts while the running mean stays above ``skirt_sigma``); refit the Whittaker smoother
-       with equal weights on the other groups. Nothing is rejected for lying *below* the floor:
-       signals only ever add power. The smoother penalises curvature on a scale ``smooth_hz``
-       (it follows a tuned-circuit peak or a filter roll-off) and slope on a scale
-       ``tension_hz``, so occupied stretches are bridged by a near-straight line and an occupied
-       hop edge is continued flat rather than along a noisy slope.
+       skirts while a 3-group running mean stays above ``skirt_sigma`` of its sigma, then
+       widened by ``reach_hz``); refit the smoother with equal weights on the other groups.
+       Nothing is rejected for lying *below* the floor: signals only ever add power. The
+       smoother penalises curvature on a scale ``smooth_hz`` (it follows a tuned-circuit peak)
+       and slope on a scale ``tension_hz``, so occupied stretches are bridged by a
+       near-straight line and an occupied hop edge is continued nearly flat. Beyond
+       ``edge_fraction * fs`` from the centre both penalties are scaled by ``edge_limber``: the
+       receiver's anti-alias roll-off lives there, and the floor must be free to fall with it.
     4. Bias correction: the fit estimates the mean of the log-periodogram, which for Gaussian
        noise lies :func:`log_average_bias_db` (``10 log10(e) (psi(K_eff) - ln K_eff)``) below
        the log of the true density [1]_; this is removed.
 
-    Bias and limits: within a few hundredths of a dB on white or smoothly shaped noise. Skirt
-    power below the hysteresis threshold (about ``sigma / sqrt(3)`` in a running mean) is
-    kept and raises the floor locally. Under an occupied stretch the floor is interpolated, not
-    measured: curvature of the true floor under it is missed (about 0.05 dB across 256 kHz at
-    the peak of a Q = 40 circuit near 95 MHz); where a whole hop edge is occupied the floor
-    there is an extrapolation from the nearest free spectrum.
+    Bias and limits (measured on simulated hops like those of tests/test_dsp.py: 0.1 s at
+    2.4 MS/s, FFT 2048, 200 kHz channels, half of them holding FM signals 180-256 kHz wide at
+    C/N 10-40 dB, 12 layouts per floor shape): on pure white noise the mean error is below
+    0.01 dB for K_eff from 4 to 117 (spread 0.01 dB at K = 117). Channel-averaged floor within
+    0.3 dB of truth on a flat floor; within 0.45 dB behind a Q = 40 tuned circuit except for
+    an occupied channel at the hop edge, whose floor is extrapolated from one side (up to
+    0.65 dB); on an anti-alias roll-off within 0.5 dB except for occupied or roll-off channels
+    at the very edge (up to 0.85 dB). Three or more adjacent occupied channels reaching a hop
+    edge are not measurable from that hop (errors of 1 dB and more). A floor that slopes or
+    bends steeply under a crowded stretch (several dB per MHz behind a sharper preamp) is
+    bridged too straight: errors up to about 1 dB were seen there. Skirt power below the
+    hysteresis threshold is kept and raises the floor locally.
 
     Parameters
     ----------
@@ -452,6 +464,10 @@ def local_noise_floor(
         Bins that may be used (:func:`usable_bins`).
     effective_averages : float
         ``K_eff`` of the PSD (:func:`welch_effective_averages`).
+    smooth_hz, tension_hz, group_hz, core_sigma, skirt_sigma, reach_hz, asymmetry,
+    envelope_stiffness, edge_fraction, edge_limber : float
+        Tuning of the steps above (defaults chosen on the simulated hops; keep them fixed
+        for sweeps that are to be compared).
 
     Returns
     -------
@@ -504,15 +520,15 @@ def local_noise_floor(
         fit = np.full(n_groups, np.sum(weight * y) / np.sum(weight))
     else:
         fit = _whittaker(y, weight, stiff)
-        for _ in range(10):  # asymmetric least squares: a lower envelope to start from
-            new = _whittaker(y, weight * np.where(y > fit, asymmetry, 1.0 - asymmetry), stiff)
-            settled = np.max(np.abs(new - fit)) < 0.05 * sigma_db
-            fit = new
-            if settled:
-                break
-        _DEBUG.update(centers=centers, y=y, als=fit.copy(), sigma=sigma_db)
+        above = None
+        for _ in range(6):  # asymmetric least squares: a lower envelope to start from
+            now_above = y > fit
+            if above is not None and np.array_equal(now_above, above):
+                break  # weights unchanged: converged (Eilers & Boelens)
+            above = now_above
+            fit = _whittaker(y, weight * np.where(above, asymmetry, 1.0 - asymmetry), stiff)
         previous = None
-        for _ in range(8):
+        for _ in range(5):
             busy = _occupied(y - fit, sigma_db, has_data, core_sigma, skirt_sigma, reach)
             free = ~busy & has_data
             if previous is not None and np.array_equal(busy, previous):
@@ -522,7 +538,6 @@ def local_noise_floor(
             fit = _whittaker(y, weight * free, penalty)
             previous = busy
     floor_db = fit - log_average_bias_db(k_eff)
-    _DEBUG.update(keep=free, fit=fit.copy())
     span = slice(max(lo - 1, 0), min(hi + 1, len(out)))
     out[span] = db_to_ratio(np.interp(offsets_hz[span], centers, floor_db))
     return out

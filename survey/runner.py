@@ -54,14 +54,15 @@ def record_sweep(
     keep_iq_dir : path, optional
         Keep the sweep's raw IQ as one SigMF recording (one capture per hop) in this folder.
     keep_spectra : bool, optional
-        Store compact spectra per hop. Default: yes for noise-only inputs (``terminated``,
-        ``noise-hot``, ``noise-cold``), whose dense spectra the passband analysis uses; no for
-        ``antenna``.
+        Store compact spectra per hop (int16 centi-dB, about 4 KB per hop at 2048 bins).
+        Default: yes. The passband analysis uses the dense spectra of noise-source runs and the
+        diagnosis looks for narrow lines in antenna runs; a long live survey can thin them out
+        (``scan --spectra-every N``).
     recording_fields : dict, optional
         Extra fields for the recorder (device, seed, gain ...), passed as keyword arguments.
     """
     if keep_spectra is None:
-        keep_spectra = input != "antenna"
+        keep_spectra = True
     sink = None
     if keep_iq_dir is not None:
         from survey.recorder import SweepRecorder  # sigmf is needed only when IQ is kept

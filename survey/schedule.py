@@ -306,6 +306,9 @@ def run_schedule(
             def on_hop(h: HopProgress, _label=label) -> None:
                 tell("hop", configuration=_label, hop_index=h.hop_index, n_hops=h.n_hops)
 
+            if hasattr(source, "plan_ahead") and source.fixed_centers_hz is None:
+                source.plan_ahead([h.center_hz for h in plan.hops],
+                                  max(settings.fft_size, int(round(settings.dwell_s * source.sample_rate_hz))))
             try:
                 outcome = record_sweep(store, run_id, source, plan, settings, label, input,
                                        keep_iq_dir=keep_iq_dir, on_hop=on_hop, should_stop=stop.is_set)

@@ -177,6 +177,7 @@ class WatchedSource:
         self._conn = None
         self._bias_tee = False
         self._consecutive_faults = 0
+        self._reset_ahead()
         self.faults = 0
         self.gaps = 0
         self.gap_s = 0.0
@@ -212,6 +213,7 @@ class WatchedSource:
                 raise ReceiverError(f"receiver did not accept the bias tee: {gone.reason}") from None
 
     def _kill(self) -> None:
+        self._reset_ahead()
         proc, conn = self._proc, self._conn
         self._proc = self._conn = None
         if proc is not None and proc.is_alive():
@@ -338,41 +340,95 @@ class WatchedSource:
         d["watchdog"] = {"stall_timeout_s": self.settings.stall_timeout_s, "max_reopen": self.settings.max_reopen}
         return d
 
+    def plan_ahead(self, centers_hz, n_samples: int | None) -> None:
+        """Announce the hops of the coming sweep so the child reads hop k+1 while hop k is processed.
+
+        Optional (the schedule calls it): without it every hop is requested on demand. A tune or
+        read that differs from the announcement simply discards the read-ahead.
+        """
+        self._ahead = [float(c) for c in centers_hz] if n_samples is not None else []
+        self._ahead_n = None if n_samples is None else int(n_samples)
+
+    def _collect(self) -> IQBlock:
+        header = None
+        parts: list[np.ndarray] = []
+        while True:
+            msg = self._recv(self.settings.stall_timeout_s)
+            if msg[0] == "chunk":
+                if header is None:
+                    header = msg
+                data = self._conn.recv_bytes()
+                parts.append(np.frombuffer(data, dtype=np.dtype(msg[5])))
+            elif msg[0] == "done":
+                break
+            elif msg[0] == "error":
+                raise _ChildGone(msg[3])
+        raw = np.concatenate(parts) if len(parts) > 1 else parts[0].copy()
+        return IQBlock(center_hz=header[1], sample_rate_hz=header[2], datatype=header[3], raw=raw,
+                       started_utc=header[4])
+
+    def _wait_ok(self) -> None:
+        msg = self._recv(self.settings.stall_timeout_s + self._settle_allowance())
+        if msg[0] == "error":
+            raise _ChildGone(msg[3])
+
+    def _drain(self) -> None:
+        """Receive and discard a read-ahead that is not wanted after all."""
+        if self._pending_tune is not None:
+            self._pending_tune = None
+            self._wait_ok()
+        if self._pending_read is not None:
+            self._pending_read = None
+            self._collect()
+
+    def _reset_ahead(self) -> None:
+        self._ahead, self._ahead_n = [], None
+        self._pending_tune = self._pending_read = None
+
     def tune(self, center_hz: float) -> None:
         """Tune the child's receiver (including its settle time)."""
         self._ensure_open()
+        c = float(center_hz)
+        if self._ahead and self._ahead[0] == c:
+            self._ahead.pop(0)
         try:
-            self._request(("tune", float(center_hz)))
+            if self._pending_tune is not None and self._pending_tune == c:
+                self._pending_tune = None
+                self._wait_ok()  # the read-ahead already tuned there
+                return
+            self._drain()
+            self._request(("tune", c))
+        except (OSError, EOFError):
+            self._reset_ahead()
+            self._fault(_ChildGone("receiver process is gone (pipe closed)"), f"tuning to {c / 1e6:.3f} MHz")
         except _ChildGone as gone:
-            self._fault(gone, f"tuning to {center_hz / 1e6:.3f} MHz")
+            self._reset_ahead()
+            self._fault(gone, f"tuning to {c / 1e6:.3f} MHz")
 
     def read(self, n_samples: int | None) -> IQBlock:
         """Read one hop's samples, streamed from the child in chunks (each one a heartbeat)."""
         self._ensure_open()
+        n = None if n_samples is None else int(n_samples)
         try:
-            self._conn.send(("read", None if n_samples is None else int(n_samples)))
-            header = None
-            parts: list[np.ndarray] = []
-            while True:
-                msg = self._recv(self.settings.stall_timeout_s)
-                if msg[0] == "chunk":
-                    if header is None:
-                        header = msg
-                    data = self._conn.recv_bytes()
-                    parts.append(np.frombuffer(data, dtype=np.dtype(msg[5])))
-                elif msg[0] == "done":
-                    break
-                elif msg[0] == "error":
-                    raise _ChildGone(msg[3])
+            if self._pending_read is not None and self._pending_read == n and self._pending_tune is None:
+                self._pending_read = None
+            else:
+                self._drain()
+                self._conn.send(("read", n))
+            block = self._collect()
+            if self._ahead and self._ahead_n == n:
+                nxt = self._ahead[0]
+                self._conn.send(("tune", nxt))
+                self._conn.send(("read", n))
+                self._pending_tune, self._pending_read = nxt, n
         except (OSError, EOFError):
-            gone = _ChildGone("receiver process is gone (pipe closed)")
-            self._fault(gone, "reading samples")
+            self._reset_ahead()
+            self._fault(_ChildGone("receiver process is gone (pipe closed)"), "reading samples")
         except _ChildGone as gone:
+            self._reset_ahead()
             self._fault(gone, "reading samples")
         self._consecutive_faults = 0
-        raw = np.concatenate(parts) if len(parts) > 1 else parts[0].copy()
-        return IQBlock(center_hz=header[1], sample_rate_hz=header[2], datatype=header[3], raw=raw,
-                       started_utc=header[4])
+        return block
 
     def set_bias_tee(self, enabled: bool) -> None:
         """Switch the bias tee in the child (reapplied after every reopening).
@@ -390,6 +446,12 @@ class WatchedSource:
         """Ask the child to close the receiver; kill it if it does not end promptly. Safe twice."""
         proc, conn = self._proc, self._conn
         if proc is None:
+            return
+        try:
+            self._drain()  # a read-ahead in flight would block the child on a full pipe
+        except (_ChildGone, OSError, EOFError):
+            self._reset_ahead()
+            self._kill()
             return
         try:
             conn.send(("close",))

@@ -298,3 +298,29 @@ def test_end_to_end_on_simulated_scene(tmp_path):
     assert station.delta_cn_db == pytest.approx(delta_truth[95_900_000], abs=0.6)
     assert station.gain_db == pytest.approx(gain_truth[95_900_000], abs=0.5)
     assert res.summary["broadband_noise_rise_db"] == pytest.approx(float(np.median(rise_truth)), abs=0.5)
+    # noise-figure runs (and a terminated run of the receiver alone, for the antenna temperature):
+    # the noise rise the measured preamp predicts joins the summary
+    for cfg, inputs in (("bare", ("noise-hot", "noise-cold", "terminated")),
+                        ("preamp-staggered", ("noise-hot", "noise-cold"))):
+        for inp in inputs:
+            assert main(["simulate", str(scene_path), "--db", str(db), "--config", cfg, "--input", inp,
+                         "--sweeps", "2", "--band", "custom:95.0-97.0:100", "--dwell-ms", "20", "--seed", "5",
+                         "--json"]) == 0
+    missing_enr = compare_configurations(db, "bare", "preamp-staggered").summary["predicted_noise_rise"]
+    assert missing_enr.startswith("not available:") and "enr" in missing_enr.lower()
+    pred = compare_configurations(db, "bare", "preamp-staggered",
+                                  noise_options={"enr_db": 15.0}).summary["predicted_noise_rise"]
+    assert isinstance(pred, dict) and abs(pred["excess_db"]) < 1.0 and "agrees" in pred["note"]
+    assert pred["median_predicted_db"] == pytest.approx(float(np.median(rise_truth)), abs=0.5)
+
+
+def test_smallest_samples_that_can_reach_significance():
+    from analysis.compare_estimators import min_n_for_interval, min_n_unpaired
+
+    # signed-rank: smallest two-sided p is 2 * 2**-n (0.0625 at n = 5, 0.03125 at n = 6)
+    assert min_n_for_interval(0.05) == 6 and sps.wilcoxon(np.arange(1.0, 7.0)).pvalue < 0.05
+    assert sps.wilcoxon(np.arange(1.0, 6.0)).pvalue > 0.05
+    # rank-sum: smallest two-sided p is 2 / C(2k, k) (0.1 at k = 3, 0.029 at k = 4)
+    assert min_n_unpaired(0.05) == 4
+    assert sps.mannwhitneyu([5.0, 6, 7, 8], [1.0, 2, 3, 4]).pvalue < 0.05
+    assert sps.mannwhitneyu([5.0, 6, 7], [1.0, 2, 3]).pvalue > 0.05

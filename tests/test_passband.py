@@ -20,6 +20,7 @@ from analysis.passband_data import (
     load_gain_curve,
     load_readings_csv,
     reading_sigma_db,
+    station_peaks,
 )
 from passband_truth import STATIONS_HZ, build_db, preamp_gain_db
 
@@ -224,3 +225,13 @@ def test_floor_rise_per_channel_without_spectra(tmp_path):
     # at the band edges and misses by more than a dB
     plain = fit_passband(curve.freqs_hz, curve.gain_db)
     assert plain.residual_rms_db > 5 * fit.residual_rms_db
+
+
+def test_station_spill_into_raster_neighbours_counts_once():
+    # 100 kHz raster, 200 kHz channels: a station at 90.2 MHz also lifts 90.1 and 90.3 MHz
+    f = np.array([90.0e6, 90.1e6, 90.2e6, 90.3e6, 94.5e6])
+    lev = np.array([np.nan, 30.0, 38.0, 31.0, 20.0])
+    assert station_peaks(f, lev, 200e3).tolist() == [False, False, True, False, True]
+    # 200 kHz raster (47 CFR 73.201): adjacent channels 200 kHz apart are separate stations
+    f2 = np.array([88.1e6, 88.3e6, 88.5e6])
+    assert station_peaks(f2, np.array([10.0, 12.0, 9.0]), 200e3).tolist() == [True, True, True]

@@ -4,7 +4,6 @@ from __future__ import annotations
 
 import json
 import re
-import sqlite3
 from dataclasses import replace
 
 import numpy as np
@@ -397,3 +396,32 @@ def test_peaked_preamp_shapes_the_floor(crowded_sweeps):
     sc, result, rows = crowded_sweeps["peaked"]
     n = {int(t.freq_hz): t.noise_density_dbfs_hz for _, t in rows}
     assert n[94_500_000] - n[90_000_000] > 10.0  # the floor follows G(f) (Ta + Tp) + Tr
+
+
+def test_truth_noise_equals_station_free_render(crowded_sweeps):
+    # Independent of any floor estimator: the same hops rendered without stations (the thermal
+    # noise draw does not depend on the stations) must hold the truth's noise in every channel;
+    # the empty hop's truth differs only in the quantiser model (less dither without stations).
+    sc, result, rows = crowded_sweeps["peaked"]
+    empty = replace(sc, stations=())
+    src = SimulatedSource(empty, "peaked", seed=21)
+    settings = SweepSettings(band="europe", dwell_s=0.1)
+    plan = plan_for_source(band_plan("europe"), src, settings)
+    errors = []
+    by_hop = {}
+    for m, t in rows:
+        by_hop.setdefault(m.hop_index, []).append(t)
+    for hop in plan.hops:
+        truths = by_hop[hop.index]
+        block = SimulatedSource(empty, "peaked", seed=21)
+        block.advance(truths[0].time_s)
+        block.tune(hop.center_hz)
+        off, psd = _psd(block.read(240_000))
+        freqs = np.array([t.freq_hz for t in truths])
+        p = dsp.channel_power(off, psd, freqs - block.lo_hz(hop.center_hz), 200e3)
+        empty_truths = block.truth(hop.center_hz, freqs, 200e3)
+        errors.extend(10 * np.log10(p) - [t.noise_dbfs for t in empty_truths])
+    errors = np.array(errors)
+    # radiometer: 1/sqrt(B tau) = 0.7 % (0.03 dB) per channel for 200 kHz x 0.1 s (Dicke 1946)
+    assert np.abs(errors).max() < 0.15
+    assert abs(errors.mean()) < 0.02

@@ -172,3 +172,43 @@ def test_bias_tee_reapplied_after_reopening(tmp_path):
     src.set_bias_tee(False)
     assert src.describe()["bias_tee"] is False
     src.close()
+
+
+def test_read_ahead_in_order_and_out_of_order(tmp_path):
+    src = WatchedSource(FaultFactory(str(tmp_path)), FAST)
+    centers = [90e6, 94e6, 98e6]
+    src.plan_ahead(centers, 20_000)
+    for c in centers:
+        src.tune(c)
+        block = src.read(20_000)
+        assert block.center_hz == c and block.n_samples == 20_000
+    src.plan_ahead(centers, 20_000)
+    src.tune(90e6)
+    src.read(20_000)
+    src.tune(98e6)  # not the announced next hop: the read-ahead at 94 MHz is discarded
+    assert src.read(20_000).center_hz == 98e6
+    block = src.read(10_000)  # another length than announced
+    assert block.n_samples == 10_000 and block.center_hz == 98e6
+    src.close()
+
+
+def test_fault_during_read_ahead_surfaces_at_next_hop(tmp_path):
+    log = Log()
+    src = WatchedSource(FaultFactory(str(tmp_path), "unplug", at_read=2), FAST, on_event=log)
+    src.plan_ahead([90e6, 94e6], 20_000)
+    src.tune(90e6)
+    src.read(20_000)
+    with pytest.raises(SweepInterrupted):
+        src.tune(94e6)
+    assert log.kinds() == ["receiver-error", "gap"] and "unplugged" in log.events[0][1]
+    src.close()
+
+
+def test_close_with_read_ahead_in_flight_is_quick(tmp_path):
+    src = WatchedSource(FaultFactory(str(tmp_path)), FAST)
+    src.plan_ahead([90e6, 94e6], 400_000)  # the read-ahead exceeds the pipe's buffer
+    src.tune(90e6)
+    src.read(400_000)
+    t0 = time.monotonic()
+    src.close()
+    assert time.monotonic() - t0 < 1.0

@@ -36,6 +36,25 @@ def comparison_payload(result: Comparison) -> dict:
     }
 
 
+def _iso_time(ctx, param, value):
+    """Validate an ISO 8601 time option at parse time (bad usage: exit code 2)."""
+    if value is None:
+        return None
+    from analysis.channel_stats import normalise_utc
+    from analysis.errors import BadParameterError
+
+    try:
+        return normalise_utc(value, param.opts[0])
+    except BadParameterError as exc:
+        raise click.BadParameter(str(exc)) from None
+
+
+def _png_path(ctx, param, value):
+    if value is not None and not str(value).lower().endswith(".png"):
+        raise click.BadParameter(f"{value} must end in .png (the figure is written as PNG)")
+    return value
+
+
 def _num(value, fmt: str = "{:+.1f}") -> str:
     return "-" if value is None else fmt.format(value)
 
@@ -65,6 +84,8 @@ def _summary_lines(result: Comparison) -> list[str]:
     lines.append(f"Noise: {s['noise_source']}.")
     pred = s["predicted_noise_rise"]
     lines.append(f"Predicted noise rise: {pred['note'] if isinstance(pred, dict) else pred}.")
+    for finding in s.get("findings", []):
+        lines.append(f"Diagnosis: {finding}")
     return lines
 
 
@@ -90,9 +111,10 @@ def _table(result: Comparison) -> Table:
 @click.option("--test", required=True, help="Configuration label compared against it (e.g. preamp-a).")
 @json_option
 @click.option("--csv", "as_csv", is_flag=True, help="Print the channel rows as CSV.")
-@click.option("--plot", "plot_path", type=click.Path(dir_okay=False), help="Also write a PNG figure here.")
-@click.option("--since", help="Only sweeps started at or after this UTC time (ISO 8601).")
-@click.option("--until", help="Only sweeps started before this UTC time (ISO 8601).")
+@click.option("--plot", "plot_path", type=click.Path(dir_okay=False), callback=_png_path,
+              help="Also write a PNG figure here.")
+@click.option("--since", callback=_iso_time, help="Only sweeps started at or after this UTC time (ISO 8601).")
+@click.option("--until", callback=_iso_time, help="Only sweeps started before this UTC time (ISO 8601).")
 @click.option("--min-change-db", type=click.FloatRange(min=0.0), default=0.5, show_default=True,
               help="Smallest SNR change (dB) called improved or worse.")
 @click.option("--usable-cn-db", type=float, default=12.0, show_default=True,
@@ -101,8 +123,10 @@ def _table(result: Comparison) -> Table:
               help="Confidence level of the intervals.")
 @click.option("--enr-db", type=float, help="ENR of the noise source (dB), used when noise-hot/noise-cold runs "
               "exist, to predict the noise rise from the preamp's measured noise figure.")
+@click.option("--no-diagnosis", is_flag=True, help="Skip the chain diagnosis (clipping, intermodulation, "
+              "oscillation, added noise) in the summary.")
 def command(db_path, base, test, as_json, as_csv, plot_path, since, until, min_change_db, usable_cn_db,
-            confidence, enr_db):
+            confidence, enr_db, no_diagnosis):
     """Which stations gained or lost SNR (C/N) with TEST compared to BASE, by how much, how sure.
 
     SNR (C/N) is (P - N)/N in dB. Sweeps that alternated between the two configurations are
@@ -119,6 +143,7 @@ def command(db_path, base, test, as_json, as_csv, plot_path, since, until, min_c
         db_path, base, test, since=since, until=until, min_change_db=min_change_db,
         confidence=confidence, usable_cn_db=usable_cn_db,
         noise_options=None if enr_db is None else {"enr_db": enr_db},
+        with_diagnosis=not no_diagnosis,
     )
     if plot_path:
         from analysis.compare_plots import plot_comparison

@@ -143,6 +143,7 @@ class SimulatedSource:
             for i, s in enumerate(scene.stations)
         ]
         self._noise_cache: dict[tuple, np.ndarray] = {}
+        self._grid_cache: dict[int, tuple] = {}
         self.set_chain(configuration, input)
 
     # -- protocol ----------------------------------------------------------------------------
@@ -251,15 +252,26 @@ class SimulatedSource:
     def _full_scale_mw(self) -> float:
         return float(db_to_ratio(self.scene.receiver.full_scale_dbm))
 
-    def noise_density_fs2_hz(self, center_hz: float, baseband_hz: np.ndarray) -> np.ndarray:
+    def noise_density_fs2_hz(self, center_hz: float, baseband_hz: np.ndarray,
+                             rolloff: np.ndarray | None = None) -> np.ndarray:
         """Thermal noise density at the ADC before IQ imbalance, FS^2/Hz, incl. roll-off.
 
-        ``k T_rx(f) R(fb) * 1e3 / P_fs(mW)`` with ``f = fb + f_LO``.
+        ``k T_rx(f) R(fb) * 1e3 / P_fs(mW)`` with ``f = fb + f_LO`` (``rolloff``: R precomputed).
         """
         fb = np.asarray(baseband_hz, dtype=np.float64)
         rx = self.chain_truth(fb + self.lo_hz(center_hz)).rx_input_temp_k
-        roll = self.scene.receiver.rolloff(fb, self._fs)
+        roll = self.scene.receiver.rolloff(fb, self._fs) if rolloff is None else rolloff
         return BOLTZMANN_J_PER_K * rx * 1e3 * roll / self._full_scale_mw()
+
+    def _baseband_grid(self, n: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """FFT-order baseband frequencies, roll-off R and sqrt(R) (float32) for blocks of n."""
+        grid = self._grid_cache.get(n)
+        if grid is None:
+            fb = scipy.fft.fftfreq(n, 1.0 / self._fs)
+            roll = self.scene.receiver.rolloff(fb, self._fs)
+            grid = (fb, roll, np.sqrt(roll).astype(np.float32))
+            self._grid_cache = {n: grid}
+        return grid
 
     def _station_levels_dbm(self, t_s: float) -> np.ndarray:
         return np.array([s.level_dbm + self._fading[i].level_db(t_s) for i, s in enumerate(self.scene.stations)])
@@ -320,8 +332,8 @@ class SimulatedSource:
         key = (self._configuration, self._input, float(center_hz), n)
         amp = self._noise_cache.get(key)
         if amp is None:
-            fb = scipy.fft.fftfreq(n, 1.0 / self._fs)
-            density = self.noise_density_fs2_hz(center_hz, fb)
+            fb, roll, _ = self._baseband_grid(n)
+            density = self.noise_density_fs2_hz(center_hz, fb, roll)
             # E|X_k|^2 = n fs S(f_k) for x = ifft(X): complex Gaussian with half that per part
             amp = np.sqrt(n * self._fs * density / 2.0).astype(np.float32)
             if len(self._noise_cache) > 64:
@@ -362,9 +374,7 @@ class SimulatedSource:
                 else:
                     ph = np.full(n, self._hop_rng(center_hz, t_s, 999).uniform(0, 2 * np.pi))
                 sig += fm.carrier(ph, e.freq_hz - lo, fs, a)
-            fb = scipy.fft.fftfreq(n, 1.0 / fs)
-            root_roll = np.sqrt(self.scene.receiver.rolloff(fb, fs)).astype(np.float32)
-            spec += scipy.fft.fft(sig) * root_roll
+            spec += scipy.fft.fft(sig) * self._baseband_grid(n)[2]
         x = scipy.fft.ifft(spec).astype(np.complex64, copy=False)
         mu, nu = self.scene.receiver.iq_mu_nu
         dc = complex(*self.scene.receiver.dc_offset)

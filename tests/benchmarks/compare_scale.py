@@ -124,16 +124,22 @@ def build(path: Path, days: float, seed: int = 0) -> dict:
     conn.execute("PRAGMA journal_mode = WAL")
     conn.close()
     return {"sweeps": n_sweeps, "channel_rows": rows_written, "build_s": time.perf_counter() - t0,
-            "db_bytes": path.stat().st_size}
+            "db_bytes": path.stat().st_size, "true_delta_db": (gain - rise).tolist(), "cn0_db": cn0.tolist()}
+
+
+def _cpu_s() -> float:
+    r = resource.getrusage(resource.RUSAGE_SELF)
+    return r.ru_utime + r.ru_stime
 
 
 def stage_compare(path: str) -> dict:
     from analysis.compare import compare_configurations
 
-    t0 = time.perf_counter()
+    t0, c0 = time.perf_counter(), _cpu_s()
     res = compare_configurations(path, "bare", "preamp-a")
     elapsed = time.perf_counter() - t0
-    return {"seconds": elapsed, "peak_rss_mb": resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024,
+    return {"seconds": elapsed, "cpu_s": _cpu_s() - c0,
+            "peak_rss_mb": resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024,
             "method": res.method, "n_pairs": res.n_pairs,
             "median_delta_cn_db": res.summary["median_delta_cn_db"],
             "verdicts": res.summary["verdict_counts"],
@@ -142,7 +148,7 @@ def stage_compare(path: str) -> dict:
 
 def stage_baseline(path: str) -> dict:
     """Plain Python over the rows table: group C/N by sweep and channel, pair, take medians."""
-    t0 = time.perf_counter()
+    t0, c0 = time.perf_counter(), _cpu_s()
     conn = sqlite3.connect(f"file:{path}?mode=ro", uri=True)
     label = dict(conn.execute("SELECT id, configuration FROM sweeps WHERE input = 'antenna' AND complete = 1"))
     cn: dict[tuple[int, int], float] = {}
@@ -158,7 +164,7 @@ def stage_baseline(path: str) -> dict:
         d = [cn[(b, f)] - cn[(a, f)] for a, b in pairs if (a, f) in cn and (b, f) in cn]
         deltas.append(statistics.median(d) if len(d) >= max(1, len(pairs) // 2) else None)
     conn.close()
-    return {"seconds": time.perf_counter() - t0,
+    return {"seconds": time.perf_counter() - t0, "cpu_s": _cpu_s() - c0,
             "peak_rss_mb": resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024, "deltas": deltas}
 
 
@@ -173,38 +179,52 @@ def main() -> None:
     ap.add_argument("--days", type=float, default=7.0)
     ap.add_argument("--keep", action="store_true")
     ap.add_argument("--stage", choices=["compare", "baseline"])
-    ap.add_argument("--db")
+    ap.add_argument("--db", help="time an existing database (e.g. one kept with --keep) instead of building one")
     args = ap.parse_args()
     if args.stage:
         fn = stage_compare if args.stage == "compare" else stage_baseline
         print(json.dumps(fn(args.db)))
         return
-    folder = Path(tempfile.mkdtemp(prefix="bandcensus-bench-", dir="/tmp"))
-    path = folder / "week.db"
+    reuse = args.db is not None
+    folder = Path(args.db).parent if reuse else Path(tempfile.mkdtemp(prefix="bandcensus-bench-", dir="/tmp"))
+    path = Path(args.db) if reuse else folder / "week.db"
     try:
-        info = build(path, args.days)
-        print(f"built {info['sweeps']} sweeps, {info['channel_rows']:,} channel rows, "
-              f"{info['db_bytes'] / 1e9:.2f} GB in {info['build_s']:.0f} s (not the benchmark)")
+        info = {"sweeps": 0, "channel_rows": 0, "db_bytes": path.stat().st_size, "build_s": 0.0} if reuse \
+            else build(path, args.days)
+        if reuse:
+            print(f"timing the existing database {path} ({info['db_bytes'] / 1e9:.2f} GB)")
+        else:
+            print(f"built {info['sweeps']} sweeps, {info['channel_rows']:,} channel rows, "
+                  f"{info['db_bytes'] / 1e9:.2f} GB in {info['build_s']:.0f} s (not the benchmark)")
         cmp_ = _child("compare", path)
-        print(f"compare_configurations: {cmp_['seconds']:.2f} s, peak RSS {cmp_['peak_rss_mb']:.0f} MB "
+        print(f"compare_configurations: {cmp_['seconds']:.2f} s wall, {cmp_['cpu_s']:.2f} s CPU, peak RSS {cmp_['peak_rss_mb']:.0f} MB "
               f"(goal <= 10 s, < 1500 MB); {cmp_['n_pairs']} pairs; median delta "
               f"{cmp_['median_delta_cn_db']:+.2f} dB; verdicts {cmp_['verdicts']}")
         print(f"  method: {cmp_['method']}")
         base = _child("baseline", path)
-        print(f"baseline (rows table in plain Python, medians only, no intervals): {base['seconds']:.2f} s, "
+        print(f"baseline (rows table in plain Python, medians only, no intervals): {base['seconds']:.2f} s wall, "
+              f"{base['cpu_s']:.2f} s CPU, "
               f"peak RSS {base['peak_rss_mb']:.0f} MB")
-        print(f"ratio baseline / compare: {base['seconds'] / cmp_['seconds']:.1f}x "
+        print(f"ratio baseline / compare: {base['seconds'] / cmp_['seconds']:.1f}x wall, "
+              f"{base['cpu_s'] / cmp_['cpu_s']:.1f}x CPU "
               "(compare also computes intervals and tests)")
         a = np.asarray([np.nan if v is None else v for v in cmp_["deltas"]], float)
         b = np.asarray([np.nan if v is None else v for v in base["deltas"]], float)
         both = np.isfinite(a) & np.isfinite(b)
         print(f"agreement on {both.sum()} channels: max |delta difference| {np.max(np.abs(a[both] - b[both])):.4f} dB")
+        if not reuse:
+            true = np.asarray(info["true_delta_db"])
+            cn0 = np.asarray(info["cn0_db"])
+            strong = np.isfinite(a) & (cn0 > 6) & (cn0 + true > 6)
+            print(f"accuracy against truth on {strong.sum()} channels with C/N > 6 dB in both: "
+                  f"max |error| {np.max(np.abs(a[strong] - true[strong])):.3f} dB, "
+                  f"median {np.median(np.abs(a[strong] - true[strong])):.3f} dB")
     finally:
-        if not args.keep:
+        if not args.keep and not reuse:
             for p in folder.glob("*"):
                 p.unlink()
             folder.rmdir()
-        else:
+        elif not reuse:
             print(f"kept {path}")
 
 

@@ -1,0 +1,68 @@
+"""``bandcensus diagnose``: name how a preamp makes reception worse, with the evidence."""
+
+from __future__ import annotations
+
+import click
+
+from analysis.diagnose import DEFAULT_CLIP_THRESHOLD, diagnose
+from bandcensus.commands._common import db_option, echo_json, json_option
+
+
+def _fmt(key: str, value) -> str:
+    if isinstance(value, float):
+        if key.endswith("_hz"):
+            return f"{value / 1e6:.3f} MHz"
+        if key.endswith("_fraction"):
+            return f"{value:.3g}"
+        return f"{value:.1f}"
+    return str(value)
+
+
+@click.command("diagnose")
+@db_option
+@click.option("--base", required=True, help="Configuration label without the preamp (e.g. bare).")
+@click.option("--test", required=True, help="Configuration label with the preamp.")
+@click.option("--attenuated", default=None,
+              help="Label of sweeps of the test chain through a known attenuator at its input.")
+@click.option("--attenuation-db", type=float, default=None, help="Loss of that attenuator, dB.")
+@click.option("--clip-threshold", type=float, default=DEFAULT_CLIP_THRESHOLD, show_default=True,
+              help="Fraction of 8-bit samples at the rails per hop counted as clipping.")
+@click.option("--receiver-nf-db", type=float, default=None,
+              help="Receiver noise figure, dB, to give added noise in kelvin exactly.")
+@click.option("--enr-db", type=float, default=None,
+              help="Noise source ENR, dB, to measure the receiver noise figure from noise-hot/noise-cold sweeps.")
+@json_option
+def command(db_path, base, test, attenuated, attenuation_db, clip_threshold, receiver_nf_db, enr_db, as_json):
+    """Check the --test configuration against --base for the four ways a preamp makes things worse.
+
+    Clipping of the receiver's 8-bit converter, intermodulation products of strong stations,
+    an oscillating preamp and noise added after the preamp's tuned circuits (a noisy supply).
+    A run through a known attenuator (--attenuated LABEL --attenuation-db X) separates real
+    stations (they drop by X) from third-order products (they drop by 3X).
+    """
+    if (attenuated is None) != (attenuation_db is None):
+        raise click.UsageError("give --attenuated LABEL together with --attenuation-db X")
+    result = diagnose(
+        db_path, base, test, attenuated=attenuated, attenuation_db=attenuation_db,
+        clip_threshold=clip_threshold, receiver_nf_db=receiver_nf_db, enr_db=enr_db,
+    )
+    if as_json:
+        echo_json(result.to_dict())
+        return
+    click.echo(f"Diagnosis of '{test}' against '{base}'")
+    if not result.findings:
+        click.echo("No fault found. Checked:")
+    for f in result.findings:
+        where = "broadband" if f.freq_hz is None else f"at {f.freq_hz / 1e6:.3f} MHz"
+        click.echo("")
+        click.echo(f"{f.severity.upper()}: {f.kind} {where}")
+        click.echo(f"  {f.advice}")
+        for key, value in f.evidence.items():
+            click.echo(f"  {key}: {_fmt(key, value)}")
+    if result.findings:
+        click.echo("")
+        click.echo("Checked:")
+    for line in result.checked:
+        click.echo(f"  {line}")
+    for note in result.notes:
+        click.echo(f"note: {note}")

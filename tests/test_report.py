@@ -1,0 +1,282 @@
+"""The one-file HTML report: its model, its page, its figures and its command (no browser here)."""
+
+from __future__ import annotations
+
+import base64
+import html
+import io
+import re
+from html.parser import HTMLParser
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from analysis.compare import compare_configurations
+from analysis.diagnose import summarise_findings
+from analysis.errors import BadParameterError, NoDataError
+from analysis.noise_workflow import analyse_noise
+from analysis.report import SECTIONS, build_report, preamp_verdict
+from analysis.report_html import render_html, write_report
+from analysis.report_plots import mpl_text, png_data_uri
+from bandcensus.cli import main
+from report_fixtures import (
+    ENR_DB, HOSTILE_BASE, HOSTILE_DEVICE, HOSTILE_NOTES, HOSTILE_TEST, N_CHANNELS, STRONGEST_HZ,
+    hostile_db, simulated_db,
+)
+
+DEMO_SIGMF = Path(__file__).resolve().parent.parent / "recordings_demo" / "sigmf"
+
+
+class _Page(HTMLParser):
+    """Collects tags, attributes, section ids, channel-table rows and text of a page."""
+
+    def __init__(self):
+        super().__init__(convert_charrefs=True)
+        self.tags: list[tuple[str, dict]] = []
+        self.text: list[str] = []
+        self.rows = 0
+        self._in_table = False
+
+    def handle_starttag(self, tag, attrs):
+        a = dict(attrs)
+        self.tags.append((tag, a))
+        if tag == "table" and a.get("id") == "channel-table":
+            self._in_table = True
+        if self._in_table and tag == "tr" and "data-freq-hz" in a:
+            self.rows += 1
+
+    def handle_endtag(self, tag):
+        if tag == "table":
+            self._in_table = False
+
+    def handle_data(self, data):
+        self.text.append(data)
+
+    def all(self, tag):
+        return [a for t, a in self.tags if t == tag]
+
+
+def _parse(page: str) -> _Page:
+    p = _Page()
+    p.feed(page)
+    return p
+
+
+@pytest.fixture(scope="module")
+def sim(tmp_path_factory):
+    folder = tmp_path_factory.mktemp("report")
+    db = simulated_db(folder / "sim.db")
+    written = write_report(db, "bare", "preamp-peaked", folder / "report.html", enr_db=ENR_DB)
+    return db, written
+
+
+def test_model_reuses_the_analyses(sim):
+    db, written = sim
+    r = written.report
+    assert r.unavailable == {}, r.unavailable
+    # the comparison in the report is the comparison module's own result, not a re-derivation
+    direct = compare_configurations(db, "bare", "preamp-peaked", noise_options={"enr_db": ENR_DB})
+    assert r.comparison.to_dict() == direct.to_dict()
+    assert r.noise.to_dict() == analyse_noise(db, "bare", "preamp-peaked", enr_db=ENR_DB).to_dict()
+    assert len(r.comparison.channels) == N_CHANNELS
+    # strongest received station of the invented scene inside the band (quorrelby_hill.toml)
+    assert r.series.strongest_hz == STRONGEST_HZ
+    assert r.series.weakest_hz != r.series.strongest_hz
+    # preamp NF of the scene is 1.0 dB (quorrelby_hill.toml): the report carries the workflow's figure
+    assert r.noise.summary["preamp_nf_db"] == pytest.approx(1.0, abs=0.6)
+    assert r.settings.simulated and "simulation" in r.settings.simulated_because[0]
+    titles = [name for name, _ in r.assumptions]
+    assert {"Definitions", "Comparison", "Passband", "Noise figures", "Diagnosis"} <= set(titles)
+    noise_items = dict(r.assumptions)["Noise figures"]
+    assert all(a in noise_items for a in r.noise.assumptions)
+
+
+def test_summary_in_plain_words(sim):
+    _, written = sim
+    r = written.report
+    s = r.comparison.summary
+    text = "\n".join(r.summary)
+    assert r.summary[0] == preamp_verdict(r.comparison)
+    assert f"{s['received_base']} with 'bare'" in text and f"{s['received_test']} with 'preamp-peaked'" in text
+    assert f"{s['median_delta_cn_db']:+.1f} dB" in text
+    for f in s["gained_hz"]:
+        assert f"{f / 1e6:.2f}" in text
+    assert "Main finding:" in text and r.passband.verdict()[1:] in text
+
+
+def test_page_is_self_contained(sim):
+    _, written = sim
+    page = written.path.read_text(encoding="utf-8")
+    p = _parse(page)
+    assert "<script" not in page.lower()
+    assert not p.all("link") and not p.all("iframe") and not p.all("object")
+    assert not re.search(r"""(src|href)\s*=\s*["']?(https?:|//|file:)""", page, re.I)
+    assert "url(" not in page and "@import" not in page
+    imgs = p.all("img")
+    assert len(imgs) == 5  # comparison, passband, noise, overnight, time-by-frequency
+    for img in imgs:
+        assert img["src"].startswith("data:image/png;base64,") and img["alt"]
+        png = base64.b64decode(img["src"].split(",", 1)[1])
+        assert png[:8] == b"\x89PNG\r\n\x1a\n"
+    csp = [m for m in p.all("meta") if m.get("http-equiv") == "Content-Security-Policy"]
+    assert csp and "default-src 'none'" in csp[0]["content"]
+    ids = [a.get("id") for t, a in p.tags if t == "section"]
+    assert ids == [k for k, _ in SECTIONS]
+    assert p.rows == N_CHANNELS
+    assert "@media print" in page and "break-inside: avoid" in page and "table-header-group" in page
+
+
+def test_figures_are_not_blank(sim):
+    import matplotlib.image as mpimg
+
+    _, written = sim
+    p = _parse(written.path.read_text(encoding="utf-8"))
+    for img in p.all("img"):
+        pixels = mpimg.imread(io.BytesIO(base64.b64decode(img["src"].split(",", 1)[1])), format="png")
+        grey = pixels[..., :3].mean(axis=2)
+        assert pixels.shape[0] > 200 and pixels.shape[1] > 400
+        assert np.mean(grey < 0.95) > 0.02 and grey.std() > 0.05
+
+
+def test_table_rows_carry_the_comparison_numbers(tmp_path):
+    # known truth (compare_truth): channel 88.1 MHz has gain 14 dB and noise rise 9 dB, so +5 dB
+    db = hostile_db(tmp_path / "truth.db")
+    r = build_report(db, HOSTILE_BASE, HOSTILE_TEST)
+    page = render_html(r, {})
+    row = re.search(r'<tr class="v-[a-z-]+" data-freq-hz="88100000">(.*?)</tr>', page).group(1)
+    cells = re.findall(r"<td[^>]*>(.*?)</td>", row)
+    ch = next(c for c in r.comparison.channels if c.freq_hz == 88_100_000)
+    assert cells[0] == "88.10" and float(cells[3]) == pytest.approx(ch.delta_cn_db, abs=0.005)
+    assert float(cells[3]) == pytest.approx(5.0, abs=1.0)
+    assert float(cells[5]) == pytest.approx(14.0, abs=1.0) and float(cells[6]) == pytest.approx(9.0, abs=0.5)
+    assert cells[7].endswith(ch.verdict)
+
+
+def test_user_text_is_escaped(tmp_path):
+    db = hostile_db(tmp_path / "hostile.db")
+    out = write_report(db, HOSTILE_BASE, HOSTILE_TEST, tmp_path / "h.html").path
+    page = out.read_text(encoding="utf-8")
+    for raw in (HOSTILE_BASE, HOSTILE_TEST, HOSTILE_DEVICE, HOSTILE_NOTES, "<x>.sigmf-meta"):
+        assert raw not in page
+    assert "&lt;script&gt;alert(1)&lt;/script&gt;" in page
+    assert "&lt;img src=x onerror=alert(2)&gt;" in page
+    p = _parse(page)
+    assert not p.all("script") and not [a for a in p.all("img") if a.get("src") == "x"]
+    assert len(p.all("h1")) == 1 and len(p.all("table")) == len(re.findall(r"</table>", page))
+    text = "".join(p.text)
+    assert HOSTILE_BASE in text and HOSTILE_DEVICE in text and HOSTILE_TEST in text
+
+
+def test_sections_without_data_say_why(tmp_path):
+    db = simulated_db(tmp_path / "antenna-only.db", noise_runs=False)
+    r = build_report(db, "bare", "preamp-peaked", target_hz=(93e6, 96e6))
+    assert set(r.unavailable) == {"noise"}, r.unavailable
+    reason = r.unavailable["noise"]
+    assert reason.startswith("not available: ") and "\n" not in reason
+    page = render_html(r, {})
+    assert f'<section id="noise" class="unavailable"><h2>Noise figure and outside noise</h2><p class="na">' in page
+    assert r.passband is not None and r.passband.coverage.target_hz == (93e6, 96e6)
+
+
+def test_not_simulated_runs_carry_no_banner(tmp_path):
+    db = hostile_db(tmp_path / "measured.db", source_kind="rtl")
+    r = build_report(db, HOSTILE_BASE, HOSTILE_TEST)
+    assert not r.settings.simulated
+    page = render_html(r, {})
+    assert "SIMULATED" not in page
+    sim_page = render_html(build_report(hostile_db(tmp_path / "s.db"), HOSTILE_BASE, HOSTILE_TEST), {})
+    assert 'id="simulated-banner"' in sim_page
+
+
+def test_findings_listed_with_summary_lines(sim):
+    _, written = sim
+    r = written.report
+    page = written.path.read_text(encoding="utf-8")
+    if r.diagnosis.findings:
+        for line in summarise_findings(r.diagnosis.findings):
+            assert line in page
+    else:
+        assert "No clipping, intermodulation, oscillation or added noise found" in page
+    for check in r.diagnosis.checked:
+        assert html.escape(f"Checked: {check}") in page
+
+
+def test_refusals(tmp_path, sim):
+    db, _ = sim
+    with pytest.raises(NoDataError, match="configurations present: bare, preamp-peaked"):
+        build_report(db, "bare", "preamp-q")
+    with pytest.raises(BadParameterError, match="both 'bare'"):
+        build_report(db, "bare", "bare")
+    with pytest.raises(BadParameterError, match=r"must end in \.html"):
+        write_report(db, "bare", "preamp-peaked", tmp_path / "r.pdf")
+    with pytest.raises(BadParameterError, match="positive range"):
+        build_report(db, "bare", "preamp-peaked", target_hz=(100e6, 90e6))
+
+
+def test_mpl_text_and_data_uri():
+    assert mpl_text("a$b") == r"a\$b"
+    assert png_data_uri(b"\x89PNG") == "data:image/png;base64,iVBORw=="
+
+
+def test_command_writes_and_prints_the_path(sim, tmp_path, capsys):
+    db, _ = sim
+    out = tmp_path / "cli.html"
+    code = main(["report", "--db", str(db), "--base", "bare", "--test", "preamp-peaked", "--out", str(out),
+                 "--target", "92-97", "--enr-db", "15"])
+    assert code == 0 and capsys.readouterr().out.strip() == str(out)
+    assert out.stat().st_size > 100_000 and "92.00 – 97.00 MHz (target band as given)" in out.read_text("utf-8")
+
+
+def test_command_errors_are_one_line(sim, tmp_path, capsys):
+    db, _ = sim
+    code = main(["report", "--db", str(db), "--base", "bare", "--test", "nothing", "--out", str(tmp_path / "x.html")])
+    err = capsys.readouterr().err.strip().splitlines()
+    assert code == 1 and len(err) == 1 and err[0].startswith("Error: no complete sweeps of configuration 'nothing'")
+    code = main(["report", "--db", str(db), "--base", "bare", "--test", "preamp-peaked", "--out",
+                 str(tmp_path / "x.html"), "--target", "97-92"])
+    assert code == 2 and "--target" in capsys.readouterr().err
+    code = main(["report", "--db", str(tmp_path / "none.db"), "--base", "a", "--test", "b", "--out",
+                 str(tmp_path / "x.html")])
+    err = capsys.readouterr().err.strip().splitlines()
+    assert code == 1 and len(err) == 1 and "does not exist" in err[0]
+    assert main(["report", "--help"]) == 0 and "self-contained" in capsys.readouterr().out
+    assert not (tmp_path / "x.html").exists()
+
+
+@pytest.mark.slow
+def test_report_from_replayed_demo_recordings(tmp_path, capsys):
+    metas = sorted(DEMO_SIGMF.glob("*_bare_antenna.sigmf-meta"))[:3] + \
+        sorted(DEMO_SIGMF.glob("*_preamp-peaked_antenna.sigmf-meta"))[:3]
+    if len(metas) < 6:
+        pytest.skip("recordings_demo/sigmf holds no bare and preamp-peaked recordings yet "
+                    "(regenerate with recordings_demo/generate.py)")
+    db = tmp_path / "replay.db"
+    assert main(["replay", *map(str, metas), "--db", str(db), "--quiet"]) == 0
+    out = tmp_path / "replay.html"
+    assert main(["report", "--db", str(db), "--base", "bare", "--test", "preamp-peaked", "--out", str(out),
+                 "--target", "88-100"]) == 0
+    page = out.read_text(encoding="utf-8")
+    p = _parse(page)
+    assert p.rows == 206  # europe band plan: 87.5-108 MHz on 100 kHz (GE84)
+    assert 'id="simulated-banner"' in page and "replays recordings marked simulated" in page
+    assert 'class="unavailable"' in page  # antenna recordings only: no noise-source runs
+    capsys.readouterr()
+
+
+def test_verdict_rule_and_default_target(tmp_path):
+    from dataclasses import replace
+
+    db = hostile_db(tmp_path / "truth.db")
+    r = build_report(db, HOSTILE_BASE, HOSTILE_TEST)
+    n = r.comparison.summary["verdict_counts"]
+    # known truth: 14 stations gain 9.6-14 dB against a 9 dB noise rise, one (2 dB gain) loses
+    assert n["improved"] + n["gained"] > n["worse"] + n["lost"]
+    assert r.summary[0].startswith(f"On balance '{HOSTILE_TEST}' helps: {n['improved']} better")
+    flipped = dict(r.comparison.summary, median_delta_cn_db=-2.0,
+                   verdict_counts={**n, "improved": 0, "gained": 0, "worse": 5, "lost": 2})
+    assert "makes reception worse: 0 better, 5 worse" in preamp_verdict(replace(r.comparison, summary=flipped))
+    mixed = dict(flipped, median_delta_cn_db=+1.0)
+    assert preamp_verdict(replace(r.comparison, summary=mixed)).startswith("The result of")
+    # no --target and a band name that is no band plan: the span of the channels compared
+    assert r.target_hz == (88_100_000.0, 92_700_000.0) and "span of the channels" in r.target_note
