@@ -521,14 +521,14 @@ def local_noise_floor(
     else:
         fit = _whittaker(y, weight, stiff)
         above = None
-        for _ in range(6):  # asymmetric least squares: a lower envelope to start from
+        for _ in range(10):  # asymmetric least squares: a lower envelope to start from
             now_above = y > fit
             if above is not None and np.array_equal(now_above, above):
                 break  # weights unchanged: converged (Eilers & Boelens)
             above = now_above
             fit = _whittaker(y, weight * np.where(above, asymmetry, 1.0 - asymmetry), stiff)
         previous = None
-        for _ in range(5):
+        for _ in range(8):
             busy = _occupied(y - fit, sigma_db, has_data, core_sigma, skirt_sigma, reach)
             free = ~busy & has_data
             if previous is not None and np.array_equal(busy, previous):

@@ -206,7 +206,7 @@ class Receiver:
         f1 = self.rolloff_start_fraction * half
         u = np.clip((fb - f1) / max(half - f1, 1e-9), 0.0, 1.0)
         atten_db = self.rolloff_edge_db * (1.0 - np.cos(np.pi * u)) / 2.0
-        # beyond fs/2 (never sampled) keep falling at the edge slope
+        # held at -rolloff_edge_db beyond fs/2 (those offsets are never sampled)
         return np.power(10.0, -atten_db / 10.0)
 
 

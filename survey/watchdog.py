@@ -389,8 +389,10 @@ class WatchedSource:
         """Tune the child's receiver (including its settle time)."""
         self._ensure_open()
         c = float(center_hz)
-        if self._ahead and self._ahead[0] == c:
-            self._ahead.pop(0)
+        if c in self._ahead:
+            del self._ahead[: self._ahead.index(c) + 1]
+        else:
+            self._ahead = []  # off the announced plan: no more read-ahead this sweep
         try:
             if self._pending_tune is not None and self._pending_tune == c:
                 self._pending_tune = None

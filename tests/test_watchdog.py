@@ -195,11 +195,12 @@ def test_read_ahead_in_order_and_out_of_order(tmp_path):
 def test_fault_during_read_ahead_surfaces_at_next_hop(tmp_path):
     log = Log()
     src = WatchedSource(FaultFactory(str(tmp_path), "unplug", at_read=2), FAST, on_event=log)
-    src.plan_ahead([90e6, 94e6], 20_000)
+    src.plan_ahead([90e6, 94e6], 10_000)
     src.tune(90e6)
-    src.read(20_000)
+    src.read(10_000)  # one chunk: the second source read is the read-ahead, which fails
     with pytest.raises(SweepInterrupted):
         src.tune(94e6)
+        src.read(10_000)
     assert log.kinds() == ["receiver-error", "gap"] and "unplugged" in log.events[0][1]
     src.close()
 

@@ -21,6 +21,7 @@ from datetime import datetime, timedelta, timezone
 
 import numpy as np
 import scipy.fft
+import scipy.signal
 
 from survey import fm
 from survey.errors import SceneError
@@ -81,11 +82,8 @@ class _FadingTrack:
             need = k - self._path.size + 256
             a = np.exp(-self.dt_s / self.tau_s)
             shocks = self._rng.standard_normal(need) * self.spread_db * np.sqrt(1.0 - a * a)
-            ext = np.empty(need)
-            x = self._path[-1]
-            for i in range(need):  # short loop: one step per tau/20 of simulated time
-                x = a * x + shocks[i]
-                ext[i] = x
+            # x[k] = a x[k-1] + shock[k]: a first-order recursion, run by lfilter
+            ext, _ = scipy.signal.lfilter([1.0], [1.0, -a], shocks, zi=[a * self._path[-1]])
             self._path = np.concatenate([self._path, ext])
         u = t_s / self.dt_s
         i = int(u)
