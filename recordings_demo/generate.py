@@ -6,8 +6,11 @@ Run from the source checkout::
 
 It replaces ``recordings_demo/sigmf/`` with one SigMF recording per sweep of the invented scene
 ``quorrelby_hill.toml``: antenna sweeps alternating bare / preamp in time (so A/B pairs exist)
-for each preamp, then terminated and noise-source (hot/cold, ENR 15 dB) sweeps for ``bare`` and
-``preamp-staggered``. Dwell is 10 ms per hop to keep the whole set small; the budget is checked.
+for each preamp (seven pairs each, enough for the comparison's confidence intervals), then
+terminated and noise-source (hot/cold, ENR 15 dB) sweeps for ``bare`` and ``preamp-staggered``.
+Dwell is 5 ms per hop (12 000 samples) to keep the whole set small; the budget is checked.
+Sweeps start every 60 simulated seconds, so a bare sweep and its preamp partner are a minute
+apart and see nearly the same station fading.
 """
 
 from __future__ import annotations
@@ -34,22 +37,32 @@ SCENE = HERE / "quorrelby_hill.toml"
 OUT = HERE / "sigmf"
 SEED = 20260601
 EPOCH_UTC = "2026-06-01T20:00:00Z"
-DWELL_S = 0.010
-INTERVAL_S = 120.0
+DWELL_S = 0.005
+INTERVAL_S = 60.0
+#: Alternating bare/preamp pairs per preamp (the comparison needs at least 6 for an interval).
+PAIRS_PER_PREAMP = 7
 BUDGET_BYTES = 25 * 1024 * 1024
 
 #: (configuration, input) in time order.
 SCHEDULE: tuple[tuple[str, str], ...] = (
-    *(pair for _ in range(3) for pair in (("bare", "antenna"), ("preamp-peaked", "antenna"))),
-    *(pair for _ in range(3) for pair in (("bare", "antenna"), ("preamp-staggered", "antenna"))),
-    *(pair for _ in range(3) for pair in (("bare", "antenna"), ("preamp-bench-supply", "antenna"))),
+    *(
+        pair
+        for preamp in ("preamp-peaked", "preamp-staggered", "preamp-bench-supply")
+        for _ in range(PAIRS_PER_PREAMP)
+        for pair in (("bare", "antenna"), (preamp, "antenna"))
+    ),
     ("bare", "terminated"), ("bare", "noise-cold"), ("bare", "noise-hot"),
     ("preamp-staggered", "terminated"), ("preamp-staggered", "noise-cold"), ("preamp-staggered", "noise-hot"),
 )
 
 
-def generate(out_dir: Path = OUT) -> dict:
-    """Write every recording into ``out_dir`` (replaced); returns sizes and timing."""
+def generate(out_dir: Path = OUT, n_sweeps: int | None = None) -> dict:
+    """Write the recordings into ``out_dir`` (replaced); returns sizes and timing.
+
+    ``n_sweeps`` limits the run to the first sweeps of :data:`SCHEDULE` (same code path, same
+    order, so those files are byte-identical to the full set's); None renders all of them.
+    """
+    schedule = SCHEDULE if n_sweeps is None else SCHEDULE[: int(n_sweeps)]
     started = time.monotonic()
     scene = load_scene(SCENE)
     source = SimulatedSource(scene, "bare", "antenna", seed=SEED, epoch_utc=EPOCH_UTC)
@@ -70,7 +83,7 @@ def generate(out_dir: Path = OUT) -> dict:
         run_id = store.begin_run(RunInfo(source_kind="simulated", device=source.describe(),
                                          tool_version=__version__, settings={"scene": SCENE.name}, seed=SEED,
                                          notes="SIMULATED demo recordings"))
-        for k, (configuration, input_kind) in enumerate(SCHEDULE):
+        for k, (configuration, input_kind) in enumerate(schedule):
             source.set_chain(configuration, input_kind)
             start_s = source.time_s
             record_sweep(store, run_id, source, plan, settings, configuration, input_kind,
@@ -82,7 +95,7 @@ def generate(out_dir: Path = OUT) -> dict:
     total = sum(p.stat().st_size for p in files)
     if total > BUDGET_BYTES:
         raise SystemExit(f"recordings total {total} bytes, over the {BUDGET_BYTES} byte budget")
-    return {"sweeps": len(SCHEDULE), "hops_per_sweep": n_hops, "files": len(files), "bytes": total,
+    return {"sweeps": len(schedule), "hops_per_sweep": n_hops, "files": len(files), "bytes": total,
             "seconds": time.monotonic() - started}
 
 

@@ -4,9 +4,7 @@ from __future__ import annotations
 
 import os
 import signal
-import sqlite3
 import sys
-import threading
 import time
 from datetime import datetime, timedelta, timezone
 
