@@ -5,7 +5,7 @@
 
 * the channel-by-channel comparison (:func:`analysis.compare.compare_configurations`);
 * the passband fit, its coverage of a target band and a stagger plan
-  (:func:`analysis.passband_data.load_gain_curve`, :func:`analysis.passband.analyse_passband`);
+  (:func:`analysis.passband_data.load_gain_curve`, :func:`analysis.passband_report.analyse_passband`);
 * noise figures and the outside noise beside ITU-R P.372 (:func:`analysis.noise_workflow.analyse_noise`);
 * the fault diagnosis (:func:`analysis.diagnose.diagnose`);
 * the overnight series read straight from the store (hop floors, channel matrices);
@@ -30,7 +30,8 @@ from analysis.compare import Comparison, compare_configurations
 from analysis.diagnose import Diagnosis, diagnose, summarise_findings
 from analysis.errors import AnalysisError, BadParameterError, NoDataError
 from analysis.noise_workflow import NoiseResult, analyse_noise
-from analysis.passband import PassbandReport, analyse_passband, check_target
+from analysis.passband import check_target
+from analysis.passband_report import PassbandReport, analyse_passband
 from analysis.passband_data import load_gain_curve
 from bandcensus import __version__
 from survey.store import (

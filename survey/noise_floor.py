@@ -145,7 +145,7 @@ def local_noise_floor(
     carrier_db: float = 1.4,
     peak_hz: float = 40e3,
     occupancy_hz: float = 140_000.0,
-    occupancy_per_db_hz: float = 0.0,
+    occupancy_per_db_hz: float = 2_000.0,
 ) -> np.ndarray:
     """Local noise-floor density per bin, FS^2/Hz, from a smooth fit to the log-PSD below signals.
 

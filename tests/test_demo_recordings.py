@@ -36,11 +36,37 @@ def test_recordings_are_labelled_and_small():
     assert "SIMULATED" in readme and "invented" in readme
 
 
+def _same_bytes(new_dir: Path) -> None:
+    for new in sorted(new_dir.iterdir()):
+        old = DEMO / "sigmf" / new.name
+        assert old.exists(), new.name
+        assert hashlib.sha256(new.read_bytes()).hexdigest() == hashlib.sha256(old.read_bytes()).hexdigest(), new.name
+
+
+def test_schedule_alternates_enough_pairs_for_intervals():
+    # the comparison gives a confidence interval only from 6 alternating base/test pairs on
+    gen = _load_generator()
+    antenna = [c for c, i in gen.SCHEDULE if i == "antenna"]
+    for preamp in ("preamp-peaked", "preamp-staggered", "preamp-bench-supply"):
+        block = [k for k, c in enumerate(antenna) if c == preamp]
+        assert len(block) >= 6, preamp
+        assert all(antenna[k - 1] == "bare" for k in block), preamp
+    for config in ("bare", "preamp-staggered"):
+        for inp in ("terminated", "noise-cold", "noise-hot"):
+            assert (config, inp) in gen.SCHEDULE
+
+
+def test_first_sweeps_regenerate_byte_for_byte(tmp_path):
+    gen = _load_generator()
+    info = gen.generate(tmp_path / "sigmf", n_sweeps=2)
+    assert info["sweeps"] == 2 and info["files"] == 4
+    _same_bytes(tmp_path / "sigmf")
+
+
 @pytest.mark.slow
 def test_generate_is_deterministic(tmp_path):
     gen = _load_generator()
     info = gen.generate(tmp_path / "sigmf")
     assert info["bytes"] <= gen.BUDGET_BYTES
-    for new in sorted((tmp_path / "sigmf").iterdir()):
-        old = DEMO / "sigmf" / new.name
-        assert hashlib.sha256(new.read_bytes()).hexdigest() == hashlib.sha256(old.read_bytes()).hexdigest(), new.name
+    assert info["files"] == len(list((DEMO / "sigmf").iterdir()))
+    _same_bytes(tmp_path / "sigmf")

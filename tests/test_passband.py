@@ -6,12 +6,12 @@ import pytest
 from analysis.errors import BadParameterError, FitError, MismatchError, NoDataError
 from analysis.passband import (
     TunedStage,
-    analyse_passband,
     cascade_response_db,
     coverage,
     curve_features,
     fit_passband,
 )
+from analysis.passband_report import analyse_passband
 from analysis.passband_data import (
     SOURCE_FLOOR,
     SOURCE_NOISE,

@@ -6,7 +6,7 @@ import click
 from rich.table import Table
 
 from analysis.errors import BadParameterError
-from analysis.passband import analyse_passband
+from analysis.passband_report import analyse_passband
 from analysis.passband_data import load_gain_curve, load_readings_csv
 from bandcensus.commands._common import echo_json, json_option, parse_mhz_range
 from bandcensus.commands._tables import print_table
