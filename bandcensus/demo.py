@@ -101,7 +101,7 @@ def demo_steps(out: Path, recordings: Sequence[Path]) -> list[DemoStep]:
              "--plot", str(out / f"passband-{test}.png")),
         ))
     steps.append(DemoStep(
-        "Trouble in the chain: preamp-bench-supply", ("diagnose", "--db", db, "--base", "bare", "--test", "preamp-bench-supply"),
+        "Trouble in the chain: preamp-bench-supply", ("diagnose", "--db", db, "--base", "bare", "--test", "preamp-bench-supply", "--enr-db", "15"),
     ))
     steps.append(DemoStep(
         "One-file HTML report for the staggered preamp",

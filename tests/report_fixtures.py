@@ -20,7 +20,7 @@ BAND = "custom:92-97:100"
 ENR_DB = 15.0
 #: Channels of BAND: 92.0 to 97.0 MHz on a 100 kHz raster.
 N_CHANNELS = 51
-#: The scene's strongest station inside BAND (-78 dBm at 93.2 MHz, quorrelby_hill.toml).
+#: The scene's strongest station inside BAND (-92 dBm at 93.2 MHz, quorrelby_hill.toml).
 STRONGEST_HZ = 93_200_000
 
 HOSTILE_BASE = "<script>alert(1)</script>"

@@ -27,7 +27,7 @@ def command(as_json):
         return
     if not devices:
         click.echo("No receiver found: plug it in, check that lsusb lists it, install the udev rule and "
-                   "unload the kernel DVB driver (see docs/receiver_setup.md).")
+                   "unload the kernel DVB driver (see the README, 'Setting up the receiver on Linux').")
         return
     for d in devices:
         tuner = d.tuner or "unknown (could not open: busy or no permission)"

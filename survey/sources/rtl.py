@@ -68,7 +68,7 @@ DEFAULT_TUNING_RANGE_HZ = ((24e6, 1766e6),)
 
 _SETUP_HINT = (
     "plug the receiver in, check that lsusb lists it, install the udev rule for non-root access "
-    "and unload the kernel DVB driver (see docs/receiver_setup.md)"
+    "and unload the kernel DVB driver (see the README, 'Setting up the receiver on Linux')"
 )
 
 
@@ -131,7 +131,7 @@ def errno_message(errno: int | None) -> str:
     if errno == -7:
         return "the receiver timed out delivering samples; check USB power and cabling"
     if errno == -3:
-        return "access to the receiver was denied; install the udev rule (see docs/receiver_setup.md)"
+        return "access to the receiver was denied; install the udev rule (see the README, 'Setting up the receiver on Linux')"
     if errno == -9:
         return "USB pipe error (wedged receiver); unplug and replug it"
     return f"driver error {errno}; unplug and replug the receiver"
@@ -282,7 +282,7 @@ class RtlSource:
                 raise ReceiverError(f"cannot open receiver {index}: {errno_message(-3)}") from exc
             raise ReceiverFault(
                 f"cannot open receiver {index} (driver error {errno}); it may be held by the kernel DVB "
-                "driver or another program, or need the udev rule: see docs/receiver_setup.md",
+                "driver or another program, or need the udev rule: see the README, 'Setting up the receiver on Linux'",
                 errno,
             ) from exc
         try:
