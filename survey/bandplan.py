@@ -528,16 +528,7 @@ def plan_hops(
     owner = _assign(freqs, centers, limits)
     if np.any(owner < 0):  # cannot happen for an exact cover; guard against a solver fault
         raise PlanError("the hop planner left a channel uncovered; report this with the settings used")
-    hops = tuple(
-        Hop(i, int(c), tuple(int(f) for f in freqs[owner == i])) for i, c in enumerate(centers)
-    )
-    return HopPlan(
-        sample_rate_hz=float(sample_rate_hz),
-        usable_fraction=float(usable_fraction),
-        dc_guard_hz=float(dc_guard_hz),
-        channel_bw_hz=float(channel_bw_hz),
-        hops=hops,
-    )
+    return _hop_plan(freqs, centers, owner, sample_rate_hz, usable_fraction, dc_guard_hz, channel_bw_hz)
 
 
 def assign_to_centers(
@@ -577,6 +568,12 @@ def assign_to_centers(
         rounded.append(int(round(c)))
     centers = np.asarray(rounded, dtype=np.int64)
     owner = _assign(freqs, centers, limits)
+    return _hop_plan(freqs, centers, owner, sample_rate_hz, usable_fraction, dc_guard_hz, channel_bw_hz)
+
+
+def _hop_plan(freqs: np.ndarray, centers: np.ndarray, owner: np.ndarray, sample_rate_hz: float,
+              usable_fraction: float, dc_guard_hz: float, channel_bw_hz: float) -> HopPlan:
+    """The :class:`HopPlan` for channels ``freqs`` assigned to hop ``owner`` (-1: uncovered)."""
     hops = tuple(
         Hop(i, int(c), tuple(int(f) for f in freqs[owner == i])) for i, c in enumerate(centers)
     )

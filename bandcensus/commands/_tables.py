@@ -32,4 +32,4 @@ def channel_rows_table(rows: Iterable[dict], title: str) -> Table:
 
 def print_table(table: Table) -> None:
     """Print a table on standard output, wide enough not to wrap."""
-    Console(width=max(100, Console().width)).print(table)
+    Console(width=max(120, Console().width)).print(table)

@@ -27,10 +27,12 @@ def command(db_path, as_json):
         click.echo(f"{db_path}: no runs yet")
         return
     table = Table(title=f"Runs in {db_path}", title_justify="left")
-    for col in ("id", "started (UTC)", "source", "status", "sweeps", "incomplete", "gaps", "configurations", "inputs"):
-        table.add_column(col)
+    for col in ("id", "started (UTC)", "source", "status", "sweeps", "incomplete", "gaps"):
+        table.add_column(col, no_wrap=True, justify="right" if col in ("id", "sweeps", "incomplete", "gaps") else "left")
+    table.add_column("configurations")
+    table.add_column("inputs")
     for r in runs:
-        table.add_row(str(r["id"]), r["started_utc"][:19], r["source_kind"], r["status"],
+        table.add_row(str(r["id"]), r["started_utc"][:16].replace("T", " "), r["source_kind"], r["status"],
                       str(r["complete_sweeps"]), str(r["incomplete_sweeps"]), str(r["gaps"]),
                       ", ".join(r["configurations"]), ", ".join(r["inputs"]))
     print_table(table)
