@@ -139,5 +139,5 @@ def run_demo(
             raise SurveyError("replaying the demo recordings failed; see the message above")
     echo("")
     echo(f"Demo finished in {time.monotonic() - started:.1f} s. Outputs in {folder}")
-    echo(BANNER.splitlines()[0])
+    echo(BANNER)
     return folder, results
