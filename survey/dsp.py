@@ -22,7 +22,8 @@ Pipeline of :func:`measure_hop`
 2. :func:`averaged_psd`: averaged periodogram (Welch 1967), periodic Hann window, density in
    FS^2/Hz (FS^2 is full-scale power), two-sided, ordered by ascending offset from the hop centre.
 3. :func:`usable_bins`: the flat inner part of the hop minus a guard around the DC spike.
-4. :func:`local_noise_floor`: a smooth floor fitted to the log-PSD, rejecting bins above it.
+4. :func:`local_noise_floor` (in :mod:`survey.noise_floor`): a smooth floor fitted to the
+   log-PSD below the signals, with an FM-shaped occupancy mask.
 5. Per channel: ``P`` (:func:`channel_power`), ``N = integral of N0 over the band``,
    ``C/N = 10 log10((P - N) / N)`` (called SNR in the tool's output).
 
@@ -138,6 +139,8 @@ def clip_fraction(raw: np.ndarray, datatype: str) -> float | None:
     if datatype not in ("cu8", "ci8") or arr.size == 0:
         return None
     u = arr if datatype == "cu8" else arr.view(np.uint8) ^ np.uint8(0x80)  # -128..127 -> 0..255
+    if u.min() > 0 and u.max() < 255:
+        return 0.0  # two fast reductions settle the common unclipped block without temporaries
     at_rail = np.count_nonzero((u + np.uint8(1)) <= 1)  # 255 wraps to 0, 0 becomes 1
     return float(at_rail / arr.size)
 
@@ -261,11 +264,6 @@ def usable_bins(offsets_hz: np.ndarray, sample_rate_hz: float, usable_fraction: 
     return (a <= usable_fraction * sample_rate_hz / 2.0) & (a >= dc_guard_hz)
 
 
-def _bin_edges(offsets_hz: np.ndarray) -> np.ndarray:
-    width = float(offsets_hz[1] - offsets_hz[0])
-    return np.concatenate([offsets_hz - width / 2.0, [offsets_hz[-1] + width / 2.0]])
-
-
 def channel_power(offsets_hz: np.ndarray, psd: np.ndarray, channel_offsets_hz: np.ndarray,
                   bandwidth_hz: float) -> np.ndarray:
     """Power in each channel: the PSD integrated over ``offset +- bandwidth_hz / 2``.
@@ -295,19 +293,44 @@ def channel_power(offsets_hz: np.ndarray, psd: np.ndarray, channel_offsets_hz: n
     PlanError
         A channel band reaches outside the spectrum.
     """
-    edges = _bin_edges(np.asarray(offsets_hz, dtype=np.float64))
-    width = edges[1] - edges[0]
+    return _band_integrals(offsets_hz, np.asarray(psd)[np.newaxis], channel_offsets_hz, bandwidth_hz)[0]
+
+
+def _band_integrals(offsets_hz: np.ndarray, densities: np.ndarray, channel_offsets_hz: np.ndarray,
+                    bandwidth_hz: float) -> np.ndarray:
+    """:func:`channel_power` of each row of ``densities`` (one cumulative sum per row)."""
+    offsets = np.asarray(offsets_hz, dtype=np.float64)
+    width = float(offsets[1] - offsets[0])
+    first = float(offsets[0]) - width / 2.0
+    last = float(offsets[-1]) + width / 2.0
     centers = np.atleast_1d(np.asarray(channel_offsets_hz, dtype=np.float64))
     lo = centers - bandwidth_hz / 2.0
     hi = centers + bandwidth_hz / 2.0
     slack = 1e-6 * width
-    if centers.size and (lo.min() < edges[0] - slack or hi.max() > edges[-1] + slack):
+    if centers.size and (lo.min() < first - slack or hi.max() > last + slack):
         raise PlanError(
             f"a channel band ({lo.min():.0f}..{hi.max():.0f} Hz from the centre) reaches outside "
-            f"the spectrum ({edges[0]:.0f}..{edges[-1]:.0f} Hz); plan channels inside the hop"
+            f"the spectrum ({first:.0f}..{last:.0f} Hz); plan channels inside the hop"
         )
-    cumulative = np.concatenate([[0.0], np.cumsum(np.asarray(psd, dtype=np.float64)) * width])
-    return np.interp(hi, edges, cumulative) - np.interp(lo, edges, cumulative)
+    rows = densities.shape[0]
+    cumulative = np.zeros((rows, offsets.size + 1))
+    np.cumsum(densities, axis=1, dtype=np.float64, out=cumulative[:, 1:])
+    cumulative *= width
+    # linear interpolation of the cumulative integral at the band edges (fractional edge bins)
+    pos = (np.concatenate([hi, lo]) - first) / width
+    np.clip(pos, 0.0, float(offsets.size), out=pos)
+    k = np.minimum(pos.astype(np.int64), offsets.size - 1)
+    frac = pos - k
+    at = cumulative[:, k] * (1.0 - frac) + cumulative[:, k + 1] * frac
+    return at[:, : centers.size] - at[:, centers.size :]
+
+
+def _median_db(values: np.ndarray) -> float:
+    """``median(10 log10(values))`` without converting every value: the logarithm is monotonic,
+    so the middle value(s) of the linear values are the middle value(s) of their logarithms."""
+    n = values.size
+    mid = np.partition(values, [(n - 1) // 2, n // 2])[[(n - 1) // 2, n // 2]]
+    return float(np.mean(ratio_to_db(mid)))
 
 
 def _check_in_usable(freqs_hz: np.ndarray, center_hz: float, settings: SweepSettings,
@@ -370,15 +393,18 @@ def measure_hop(
     usable = usable_bins(offsets, fs, settings.usable_fraction, settings.dc_guard_hz)
     k_eff = welch_effective_averages(samples.size, settings.fft_size)
     floor = local_noise_floor(offsets, psd, usable, effective_averages=k_eff)
-    floor_db = float(np.median(ratio_to_db(floor[usable])))
+    floor_db = _median_db(floor[usable])
 
     freqs = np.asarray(list(channels_hz), dtype=np.float64)
     readings: list[ChannelReading] = []
     if freqs.size:
         _check_in_usable(freqs, center, settings, fs)
         bw = float(settings.channel_bw_hz)
-        p = channel_power(offsets, psd, freqs - center, bw)
-        n = channel_power(offsets, np.nan_to_num(floor, nan=0.0), freqs - center, bw)
+        densities = np.empty((2, psd.size))
+        densities[0] = psd
+        np.nan_to_num(floor, copy=False, nan=0.0)  # outside the usable span: no noise counted
+        densities[1] = floor
+        p, n = _band_integrals(offsets, densities, freqs - center, bw)
         with np.errstate(divide="ignore", invalid="ignore"):
             cn = np.asarray(ratio_to_db((p - n) / n))
         received = np.isfinite(cn) & (cn >= settings.received_margin_db)
