@@ -91,15 +91,9 @@ def cascade_noise_factor(
     """
     if len(factors) == 0:
         raise BadParameterError("a cascade needs at least one stage")
-    gains = _stage_gains(len(factors), gains_db)
-    total = np.asarray(factors[0], dtype=np.float64)
-    gain_before = np.ones_like(total)
-    steps = [total]
-    for k in range(1, len(factors)):
-        gain_before = gain_before * gains[k - 1]
-        total = total + (np.asarray(factors[k], dtype=np.float64) - 1.0) / gain_before
-        steps.append(total)
-    return _out(np.stack(np.broadcast_arrays(*steps))) if cumulative else _out(total)
+    # F = 1 + Te/T0 term by term: F1 + (F2-1)/G1 + ... = 1 + (Te1 + Te2/G1 + ...)/T0
+    temps = [(np.asarray(f, dtype=np.float64) - 1.0) * T0_K for f in factors]
+    return _out(1.0 + np.asarray(cascade_temperature_k(temps, gains_db, cumulative)) / T0_K)
 
 
 def cascade_temperature_k(
