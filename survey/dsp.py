@@ -147,7 +147,22 @@ def clip_fraction(raw: np.ndarray, datatype: str) -> float | None:
 
 @lru_cache(maxsize=16)
 def _hann(fft_size: int) -> np.ndarray:
-    return scipy.signal.get_window("hann", fft_size).astype(np.float32)
+    win = scipy.signal.get_window("hann", fft_size).astype(np.float32)
+    win.setflags(write=False)
+    return win
+
+
+@lru_cache(maxsize=16)
+def _hann_energy(fft_size: int) -> float:
+    """``sum w_n^2`` of the float32 window, accumulated in double precision."""
+    return float(np.sum(_hann(fft_size).astype(np.float64) ** 2))
+
+
+@lru_cache(maxsize=16)
+def _shifted_offsets(fft_size: int, sample_rate_hz: float) -> np.ndarray:
+    offsets = np.fft.fftshift(np.fft.fftfreq(fft_size, d=1.0 / sample_rate_hz))
+    offsets.setflags(write=False)
+    return offsets
 
 
 def _step(fft_size: int, overlap: float) -> int:
@@ -211,7 +226,10 @@ def averaged_psd(
     step = _step(fft_size, overlap)
     win = _hann(fft_size)
     n_seg = 1 + (z.size - fft_size) // step
-    segments = np.lib.stride_tricks.sliding_window_view(z, fft_size)[::step][:n_seg]
+    if step == fft_size:  # no overlap: the segments are consecutive rows of the block
+        segments = z[: n_seg * fft_size].reshape(n_seg, fft_size)
+    else:
+        segments = np.lib.stride_tricks.sliding_window_view(z, fft_size)[::step][:n_seg]
     acc = np.zeros(2 * fft_size, dtype=np.float64)
     buf = np.empty((min(n_seg, _CHUNK_SEGMENTS), fft_size), dtype=np.complex64)
     for k0 in range(0, n_seg, _CHUNK_SEGMENTS):
@@ -221,10 +239,14 @@ def averaged_psd(
         power = spec.view(np.float32)
         np.square(power, out=power)
         acc += power.sum(axis=0, dtype=np.float32)
-    scale = 1.0 / (n_seg * sample_rate_hz * float(np.sum(win.astype(np.float64) ** 2)))
-    psd = (acc.reshape(fft_size, 2).sum(axis=1) * scale).astype(np.float32)
-    offsets_hz = np.fft.fftshift(np.fft.fftfreq(fft_size, d=1.0 / sample_rate_hz))
-    return offsets_hz, np.fft.fftshift(psd)
+    scale = 1.0 / (n_seg * sample_rate_hz * _hann_energy(fft_size))
+    density = acc.reshape(fft_size, 2).sum(axis=1)
+    density *= scale
+    psd = np.empty(fft_size, dtype=np.float32)  # fftshift while rounding to single precision
+    half = fft_size // 2
+    psd[half:] = density[: fft_size - half]
+    psd[:half] = density[fft_size - half :]
+    return _shifted_offsets(fft_size, float(sample_rate_hz)).copy(), psd
 
 
 def welch_effective_averages(n_samples: int, fft_size: int, overlap: float = DEFAULT_OVERLAP) -> float:
@@ -244,10 +266,10 @@ def welch_effective_averages(n_samples: int, fft_size: int, overlap: float = DEF
     k = 1 + (int(n_samples) - fft_size) // step
     if k < 1:
         raise PlanError(f"{n_samples} samples cannot fill one FFT of {fft_size}; lengthen the dwell")
-    w = _hann(fft_size).astype(np.float64)
     lags = np.arange(1, min(k, -(-fft_size // step)))
     if lags.size == 0:
         return float(k)
+    w = _hann(fft_size).astype(np.float64)
     rho = np.array([np.dot(w[: fft_size - j * step], w[j * step :]) for j in lags]) / np.dot(w, w)
     return float(k / (1.0 + 2.0 * np.sum((1.0 - lags / k) * rho**2)))
 
@@ -300,10 +322,27 @@ def _band_integrals(offsets_hz: np.ndarray, densities: np.ndarray, channel_offse
                     bandwidth_hz: float) -> np.ndarray:
     """:func:`channel_power` of each row of ``densities`` (one cumulative sum per row)."""
     offsets = np.asarray(offsets_hz, dtype=np.float64)
-    width = float(offsets[1] - offsets[0])
-    first = float(offsets[0]) - width / 2.0
-    last = float(offsets[-1]) + width / 2.0
     centers = np.atleast_1d(np.asarray(channel_offsets_hz, dtype=np.float64))
+    k, frac, rest = _band_edges(offsets.size, float(offsets[0]), float(offsets[1] - offsets[0]),
+                                float(offsets[-1]), centers.tobytes(), float(bandwidth_hz))
+    width = float(offsets[1] - offsets[0])
+    rows = densities.shape[0]
+    cumulative = np.zeros((rows, offsets.size + 1))
+    np.cumsum(densities, axis=1, dtype=np.float64, out=cumulative[:, 1:])
+    cumulative *= width
+    # linear interpolation of the cumulative integral at the band edges (fractional edge bins)
+    at = cumulative[:, k] * rest + cumulative[:, k + 1] * frac
+    return at[:, : centers.size] - at[:, centers.size :]
+
+
+@lru_cache(maxsize=256)
+def _band_edges(n_bins: int, first_center_hz: float, width_hz: float, last_center_hz: float,
+                centers_bytes: bytes, bandwidth_hz: float) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Bin index, fraction and ``1 - fraction`` of the upper then lower band edges (read-only)."""
+    width = width_hz
+    first = first_center_hz - width / 2.0
+    last = last_center_hz + width / 2.0
+    centers = np.frombuffer(centers_bytes, dtype=np.float64)
     lo = centers - bandwidth_hz / 2.0
     hi = centers + bandwidth_hz / 2.0
     slack = 1e-6 * width
@@ -312,17 +351,14 @@ def _band_integrals(offsets_hz: np.ndarray, densities: np.ndarray, channel_offse
             f"a channel band ({lo.min():.0f}..{hi.max():.0f} Hz from the centre) reaches outside "
             f"the spectrum ({first:.0f}..{last:.0f} Hz); plan channels inside the hop"
         )
-    rows = densities.shape[0]
-    cumulative = np.zeros((rows, offsets.size + 1))
-    np.cumsum(densities, axis=1, dtype=np.float64, out=cumulative[:, 1:])
-    cumulative *= width
-    # linear interpolation of the cumulative integral at the band edges (fractional edge bins)
     pos = (np.concatenate([hi, lo]) - first) / width
-    np.clip(pos, 0.0, float(offsets.size), out=pos)
-    k = np.minimum(pos.astype(np.int64), offsets.size - 1)
+    np.clip(pos, 0.0, float(n_bins), out=pos)
+    k = np.minimum(pos.astype(np.int64), n_bins - 1)
     frac = pos - k
-    at = cumulative[:, k] * (1.0 - frac) + cumulative[:, k + 1] * frac
-    return at[:, : centers.size] - at[:, centers.size :]
+    rest = 1.0 - frac
+    for a in (k, frac, rest):
+        a.setflags(write=False)
+    return k, frac, rest
 
 
 def _median_db(values: np.ndarray) -> float:
@@ -406,15 +442,14 @@ def measure_hop(
         densities[1] = floor
         p, n = _band_integrals(offsets, densities, freqs - center, bw)
         with np.errstate(divide="ignore", invalid="ignore"):
-            cn = np.asarray(ratio_to_db((p - n) / n))
-        received = np.isfinite(cn) & (cn >= settings.received_margin_db)
-        p_db, n_db, n0_db = (np.atleast_1d(ratio_to_db(v)) for v in (p, n, n / bw))
-        for i, f in enumerate(channels_hz):
-            ok = bool(received[i])
+            levels = np.stack([p, n, n / bw, (p - n) / n])
+        p_db, n_db, n0_db, cn = np.asarray(ratio_to_db(levels)).reshape(4, -1)
+        received = (np.isfinite(cn) & (cn >= settings.received_margin_db)).tolist()
+        for f, ok, pw, nz, n0, c in zip(channels_hz, received, p_db.tolist(), n_db.tolist(),
+                                        n0_db.tolist(), cn.tolist()):
             readings.append(ChannelReading(
-                freq_hz=int(f), hop_index=int(hop_index), power_dbfs=float(p_db[i]),
-                noise_dbfs=float(n_db[i]), noise_density_dbfs_hz=float(n0_db[i]),
-                cn_db=float(cn[i]) if ok else None, received=ok,
+                freq_hz=int(f), hop_index=int(hop_index), power_dbfs=pw, noise_dbfs=nz,
+                noise_density_dbfs_hz=n0, cn_db=c if ok else None, received=ok,
             ))
     hop = HopReading(
         index=int(hop_index), center_hz=center, sample_rate_hz=fs, n_samples=int(samples.size),

@@ -117,17 +117,20 @@ def _window_ends(n: int, half: int) -> tuple[np.ndarray, np.ndarray]:
     return np.minimum(i + half + 1, n), np.maximum(i - half, 0)
 
 
+@lru_cache(maxsize=64)
+def _ones_u8(length: int) -> np.ndarray:
+    out = np.ones(length, dtype=np.uint8)
+    out.setflags(write=False)
+    return out
+
+
 def _dilate(mask: np.ndarray, half: int) -> np.ndarray:
-    """``mask`` grown by ``half`` elements on each side (a running OR, by cumulative sums)."""
+    """``mask`` grown by ``half`` elements on each side (a running OR)."""
     if half <= 0:
         return mask
-    if half <= 4:  # a few shifted ORs beat the cumulative sum for short reaches
-        out = mask.copy()
-        for k in range(1, half + 1):
-            out[k:] |= mask[:-k]
-            out[:-k] |= mask[k:]
-        return out
-    c = np.zeros(mask.size + 1, dtype=np.int64)
+    if 2 * half + 1 <= min(mask.size, 255):  # counts fit in uint8: one short correlation
+        return np.convolve(mask.view(np.uint8), _ones_u8(2 * half + 1), mode="same") > 0
+    c = np.zeros(mask.size + 1, dtype=np.int64)  # long reaches: cumulative sums
     np.cumsum(mask, out=c[1:])
     upper, lower = _window_ends(mask.size, half)
     return c[upper] > c[lower]
@@ -150,25 +153,31 @@ def _occupied(resid_db: np.ndarray, sigma_db: float, usable: np.ndarray, core_si
        carrier and is left to the fit.
     4. Everything claimed grows by ``reach`` groups.
     """
-    core = (resid_db > core_sigma * sigma_db) & usable
-    cores = np.flatnonzero(core)
-    if cores.size == 0:
+    core = resid_db > core_sigma * sigma_db
+    core &= usable
+    if not core.any():
         return core
     n = core.size
     r = resid_db * usable
     smooth = np.convolve(r, _THIRDS, mode="same")
-    rising = (smooth > skirt_sigma * sigma_db / np.sqrt(3.0)) | core
-    run = np.zeros(n, dtype=np.int64)  # id of the run of rising groups each group is in
+    rising = smooth > skirt_sigma * sigma_db / np.sqrt(3.0)
+    rising |= core
+    run = np.empty(n, dtype=np.int64)  # id of the run of rising groups each group is in
+    run[0] = 0
     np.cumsum(rising[1:] > rising[:-1], out=run[1:])
-    ok_run = np.zeros(run[-1] + 1, dtype=bool)
-    ok_run[run[cores]] = True
-    claimed = rising & ok_run[run] & _dilate(core, skirt_max)
-    local_max = scipy.ndimage.maximum_filter1d(r, 2 * peak_half + 1, mode="nearest")
-    at = cores[(r[cores] >= local_max[cores]) & (smooth[cores] > carrier_db)]
-    half = occupancy + np.rint(occupancy_per_db * np.maximum(smooth[at] - 10.0, 0.0)).astype(np.int64)
-    edges = (np.bincount(np.maximum(at - half, 0), minlength=n + 1)
-             - np.bincount(np.minimum(at + half + 1, n), minlength=n + 1))
-    claimed &= np.cumsum(edges[:n]) > 0
+    ok_run = np.zeros(int(run[-1]) + 1, dtype=bool)
+    ok_run[run[core]] = True
+    claimed = ok_run[run]
+    claimed &= rising
+    claimed &= _dilate(core, skirt_max)
+    carrier = r >= scipy.ndimage.maximum_filter1d(r, 2 * peak_half + 1, mode="nearest")
+    carrier &= smooth > carrier_db
+    carrier &= core
+    held = np.zeros(n, dtype=bool)
+    for at, height_db in zip(carrier.nonzero()[0].tolist(), smooth[carrier].tolist()):
+        half = occupancy + int(round(occupancy_per_db * max(height_db - 10.0, 0.0)))  # as np.rint
+        held[max(at - half, 0) : at + half + 1] = True
+    claimed &= held
     return _dilate(claimed, reach)
 
 
@@ -326,8 +335,9 @@ def local_noise_floor(
                   float(edge_fraction), float(edge_limber))
     lo, hi, n_groups = lay.lo, lay.hi, lay.count.size
     tiny = float(np.finfo(np.float32).tiny)
-    y_bins = np.asarray(ratio_to_db(np.maximum(np.asarray(psd[lo:hi], dtype=np.float64), tiny)))
-    y_bins = np.pad(y_bins, (0, lay.pad)).reshape(n_groups, lay.group)
+    linear = np.ones(n_groups * lay.group)  # the padding bins read 0 dB and carry no weight
+    np.maximum(np.asarray(psd[lo:hi], dtype=np.float64), tiny, out=linear[: hi - lo])
+    y_bins = np.asarray(ratio_to_db(linear)).reshape(n_groups, lay.group)
     y = np.einsum("ij,ij->i", y_bins, lay.mask_bins) / np.maximum(lay.count, 1.0)
     weight = lay.weight
     k_eff = float(effective_averages)
@@ -345,7 +355,7 @@ def local_noise_floor(
         above = None
         for _ in range(_ALS_ROUNDS):  # asymmetric least squares: a lower envelope to start from
             now_above = y > fit
-            if above is not None and np.array_equal(now_above, above):
+            if above is not None and not (now_above != above).any():
                 break  # weights unchanged: converged (Eilers & Boelens)
             above = now_above
             fit = _whittaker(y, weight * np.where(above, asymmetry, 1.0 - asymmetry), lay.stiff)
@@ -353,7 +363,7 @@ def local_noise_floor(
         for _ in range(_MASK_ROUNDS):
             busy = _occupied(y - fit, sigma_db, lay.has_data, core_sigma, skirt_sigma, *occupancy_args)
             free = ~busy & lay.has_data
-            if previous is not None and np.array_equal(busy, previous):
+            if previous is not None and not (busy != previous).any():
                 break
             if not free.any():
                 break  # the whole hop is occupied: keep the lower envelope
