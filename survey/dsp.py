@@ -32,10 +32,8 @@ References
 .. [1] P. D. Welch, "The use of fast Fourier transform for the estimation of power spectra: a
    method based on time averaging over short, modified periodograms," IEEE Trans. Audio
    Electroacoust., vol. AU-15, no. 2, pp. 70-73, 1967.
-.. [2] P. H. C. Eilers and H. F. M. Boelens, "Baseline correction with asymmetric least squares
-   smoothing," Leiden University Medical Centre report, 2005.
-.. [3] P. H. C. Eilers, "A perfect smoother," Anal. Chem., vol. 75, pp. 3631-3636, 2003
-   (Whittaker smoother solved as a banded linear system).
+
+The references of the noise-floor method are in :mod:`survey.noise_floor`.
 """
 
 from __future__ import annotations
