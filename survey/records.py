@@ -99,6 +99,32 @@ class ChannelReading:
 
 
 @dataclass(frozen=True)
+class EmissionReading:
+    """One emission found above the local floor in one hop of one sweep.
+
+    ``freq_hz`` is the carrier estimate; ``occupied_bw_hz`` the 99 % power bandwidth (ITU-R
+    SM.328 / SM.443); ``power_dbfs`` its own power (a neighbour's skirt removed); ``noise_dbfs``
+    the local floor times the channel bandwidth; ``cn_db`` = 10 log10(own power / N), kept even
+    below the detection margin; ``ci_db`` its own power over the neighbour power left in its
+    channel (None: no neighbour power); ``kind`` is ``"fm"`` (broadcast) or ``"narrow"``
+    (carrier, spur, supply line); ``channel_freq_hz`` the raster channel it sits on;
+    ``separable`` False when a neighbour is too close for its own power to be measured.
+    """
+
+    freq_hz: float
+    hop_index: int
+    kind: str
+    occupied_bw_hz: float
+    power_dbfs: float
+    noise_dbfs: float
+    cn_db: float
+    ci_db: float | None
+    stereo: bool
+    channel_freq_hz: int
+    separable: bool = True
+
+
+@dataclass(frozen=True)
 class HopReading:
     """One hop measured in one sweep."""
 
@@ -142,6 +168,7 @@ class SweepResult:
     hops: tuple[HopReading, ...]
     channels: tuple[ChannelReading, ...]
     complete: bool = True
+    emissions: tuple[EmissionReading, ...] = ()
     recording: str | None = None
     notes: str = ""
 

@@ -422,6 +422,11 @@ class ChannelMatrix:
     received: np.ndarray
 
     @property
+    def detected(self) -> np.ndarray:
+        """Same as ``received`` (C/N at or above the detection margin); the name analyses use."""
+        return self.received
+
+    @property
     def cn_db(self) -> np.ndarray:
         """Carrier-to-noise ``10 log10((P-N)/N)`` in dB; NaN where P <= N or not measured."""
         p = np.power(10.0, self.power_dbfs.astype(np.float64) / 10.0)
