@@ -1,0 +1,52 @@
+"""``bandcensus calibrate`` as the user sees it."""
+
+import csv
+import io
+import json
+
+import pytest
+
+import generator_bench as bench
+from bandcensus.cli import main
+
+
+@pytest.fixture(scope="module")
+def db(tmp_path_factory):
+    path = tmp_path_factory.mktemp("calcli") / "gen.db"
+    bench.record(path, "bare", "generator", [(90.5e6, -75.0), (99.5e6, -75.0), (106.5e6, -75.0)], seed=4)
+    return path
+
+
+def test_writes_the_file_and_prints_the_points(db, tmp_path, capsys, monkeypatch):
+    monkeypatch.chdir(tmp_path)
+    code = main(["calibrate", "--db", str(db), "--config", "bare", "--level-dbm", "-75", "--out", "cal.json"])
+    out = capsys.readouterr().out
+    assert code == 0
+    assert "Calibration at receiver gain 40.2 dB from 3 generator sweeps of 'bare'" in out
+    assert "90.50" in out and "99.50" in out and "106.50" in out
+    assert "dBm + 106.99" in out
+    assert "Written to cal.json;" in out  # relative to the current folder
+    data = json.loads((tmp_path / "cal.json").read_text())
+    assert data["gain_db"] == 40.2 and len(data["points"]) == 3
+
+
+def test_csv_points_are_rounded(db, tmp_path, capsys):
+    code = main(["calibrate", "--db", str(db), "--config", "bare", "--level-dbm", "-75",
+                 "--out", str(tmp_path / "c.json"), "--csv"])
+    text = capsys.readouterr().out
+    assert code == 0
+    rows = list(csv.DictReader(io.StringIO(text)))
+    assert [r["freq_hz"] for r in rows] == ["90500000", "99500000", "106500000"]
+    assert all(len(r["offset_db"].split(".")[1]) == 2 for r in rows)
+    assert float(rows[1]["offset_db"]) == pytest.approx(float(bench.full_scale_dbm(99.5e6)), abs=0.05)
+
+
+def test_usage_and_one_line_errors(db, tmp_path, capsys):
+    assert main(["calibrate", "--db", str(db), "--config", "bare", "--out", str(tmp_path / "c.json")]) == 2
+    assert "--level-dbm" in capsys.readouterr().err
+    code = main(["calibrate", "--db", str(db), "--config", "preamp", "--level-dbm", "-75",
+                 "--out", str(tmp_path / "c.json")])
+    err = capsys.readouterr().err.strip().splitlines()
+    assert code == 1 and len(err) == 1
+    assert err[0].startswith("Error: no complete generator sweeps of configuration 'preamp'")
+    assert not (tmp_path / "c.json").exists()
