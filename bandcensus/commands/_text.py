@@ -17,7 +17,7 @@ CN_EXPLAINED = (
     "but it is not the audio signal-to-noise ratio."
 )
 #: Said beside levels when no calibration was given.
-UNCALIBRATED_NOTE = "levels in dBFS (relative to the receiver's full scale): no calibration given"
+UNCALIBRATED_NOTE = "Levels are in dBFS (relative to the receiver's full scale): no calibration given."
 
 
 def plural(count: int, word: str, plural_form: str | None = None) -> str:
