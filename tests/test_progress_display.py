@@ -87,3 +87,24 @@ def test_open_ended_scan_uses_the_schedule_estimate():
     assert "sweep 1 [preamp-a] hop 1 of 12" in text and "1:00:00 left" in text
     assert "next sweep in 50 s" in text and "0:58:10 left" in text
     assert "receiver fault: sweep [preamp-a] dropped" in text
+
+
+def test_driven_by_the_sweep_engine():
+    import generator_bench as bench
+    from survey.sweep import plan_for_source, run_sweep
+
+    console, buffer = _terminal()
+    clock = _Clock()
+    source = bench.GeneratorBench(None, 0.0)
+    settings = bench.settings()
+    plan = plan_for_source(bench.BAND, source, settings)
+    with sweep_progress(2, console=console, clock=clock, auto_refresh=False) as progress:
+        for _ in range(2):
+            progress.start_sweep("bare, terminated")
+            run_sweep(source, plan, settings, "bare", "terminated", on_hop=progress.on_hop)
+            progress.on_sweep()
+    text = _ESCAPES.sub("", buffer.getvalue())
+    n = len(plan.hops)
+    assert n > 1
+    assert f"sweep 1 of 2 [bare, terminated] hop {n} of {n}" in text
+    assert f"sweep 2 of 2 [bare, terminated] hop 1 of {n}" in text
