@@ -13,7 +13,8 @@ reference measured with the same input and without the preamp:
   station (the identity ``delta C/N = gain - noise rise`` of the comparison holds for it).
 
 Every measure here is O(number of points) with numpy, so the display keeps its refresh rate:
-the peak (a least-squares parabola through the points within 1.5 dB of the highest one), the
+the peak (a least-squares parabola in reciprocal linear power, ``1/|H|^2 = 1 + x^2`` near a
+resonance, through the points within 1.5 dB of the highest one), the
 -3 dB edges (linear interpolation in dB between the last point above and the first point below
 ``peak - 3.01 dB``, walking outward from the peak, so the edges bound the contiguous region around
 the peak), the -3 dB width and the fraction of the target band within 3 dB of the peak (the curve
@@ -136,12 +137,15 @@ def _peak(f: np.ndarray, g: np.ndarray) -> tuple[int, float, float]:
     while hi < g.size - 1 and g[hi + 1] >= g[i] - PEAK_FIT_DB:
         hi += 1
     if hi - lo >= 2:
-        x = (f[lo:hi + 1] - f[i]) / 1e6
-        a, b, c = np.polyfit(x, g[lo:hi + 1], 2)
-        if a < 0:
+        fi = f[i]
+        x = f[lo:hi + 1] / fi - fi / f[lo:hi + 1]  # a tuned circuit is symmetric in f/f0 - f0/f
+        inv = np.power(10.0, -(g[lo:hi + 1] - g[i]) / 10.0)  # 1/|H|^2 = 1 + x^2 near one resonance
+        a, b, c = np.polyfit(x, inv, 2)
+        if a > 0:
             xv = -b / (2.0 * a)
-            if x[0] <= xv <= x[-1]:
-                return i, float(f[i] + xv * 1e6), float(c - b * b / (4.0 * a))
+            low = c - b * b / (4.0 * a)
+            if x[0] <= xv <= x[-1] and low > 0:
+                return i, float(fi * (xv + np.sqrt(xv * xv + 4.0)) / 2.0), float(g[i] - 10.0 * np.log10(low))
     return i, float(f[i]), float(g[i])
 
 

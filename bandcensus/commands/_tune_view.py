@@ -69,7 +69,7 @@ def plot_lines(frame: TuneFrame, width: int = 72) -> list[tuple[str, str]]:
             grid[r][c] = "█"
     lines = []
     for k in range(PLOT_ROWS):
-        label = f"{rows_db[k]:6.1f} dB │" if k % 2 == 0 else "         │"
+        label = f"{rows_db[k]:6.1f} dB │" if k % 2 == 0 else " " * 10 + "│"
         lines.append((label + "".join(grid[k]), ""))
     axis = ["─"] * width
     if m is not None:
@@ -80,12 +80,12 @@ def plot_lines(frame: TuneFrame, width: int = 72) -> list[tuple[str, str]]:
         for fx, mark in ((m.edge_low_hz, "["), (m.edge_high_hz, "]"), (m.peak_hz, "^")):
             if math.isfinite(fx) and f0 <= fx <= f1:
                 axis[int(round((fx - f0) / (f1 - f0) * (width - 1)))] = mark
-    lines.append(("         └" + "".join(axis), ""))
-    ticks = [" "] * (width + 10)
+    lines.append((" " * 10 + "└" + "".join(axis), ""))
+    ticks = [" "] * (width + 11)
     for fx in (f0, f1) + ((m.target_hz) if m else ()):
-        c = 10 + int(round((fx - f0) / (f1 - f0) * (width - 1)))
+        c = 11 + int(round((fx - f0) / (f1 - f0) * (width - 1)))
         text = f"{fx / 1e6:.1f}"
-        start = min(max(c - len(text) // 2, 10), width + 10 - len(text))
+        start = min(max(c - len(text) // 2, 11), width + 11 - len(text))
         if all(ch == " " for ch in ticks[max(start - 1, 0):start + len(text) + 1]):
             ticks[start:start + len(text)] = list(text)
     lines.append(("".join(ticks) + "  MHz", ""))
@@ -126,7 +126,7 @@ def render(frame: TuneFrame, width: int, simulated: bool):
     from rich.text import Text
 
     text = Text()
-    for line, style in plot_lines(frame, max(40, min(width - 12, 120))) + [("", "")] + summary_lines(frame, simulated):
+    for line, style in plot_lines(frame, max(40, min(width - 17, 120))) + [("", "")] + summary_lines(frame, simulated):
         text.append(line + "\n", style=style or None)
     return text
 
