@@ -125,7 +125,6 @@ def command(target, reference, reference_db, input_kind, db_path, configuration,
     if reference is None and reference_db is None and simulate is None:
         raise click.UsageError("give --reference LABEL: stored sweeps of the receiver alone with the same input "
                                f"(e.g. bandcensus scan --db {db_path} --config bare --input {input_label} --sweeps 4)")
-    err = click.get_text_stream("stderr")
     if bias_tee:
         click.echo("Caution: bias tee on: DC on the coax can damage equipment that shorts it (a DC-grounded antenna, "
                    "a splitter, a noise source's or generator's output); use it only to power a preamp made for it",
@@ -203,7 +202,7 @@ def command(target, reference, reference_db, input_kind, db_path, configuration,
                 except OSError as exc:
                     raise click.UsageError(f"cannot serve on 127.0.0.1:{port} ({exc.strerror}); choose another --port")
                 click.echo(f"{kind_word}tuning view at {page.url}", err=True)
-                err.flush()
+                sys.stderr.flush()
             info = RunInfo(source_kind=source.kind, device=json.dumps(source.describe()), tool_version=__version__,
                            settings={"mode": "tune", "target_hz": list(target_hz), "input": input_label,
                                      "configuration": configuration, "reference": reference or "bare",
