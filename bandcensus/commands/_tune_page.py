@@ -1,8 +1,9 @@
 """The tuning view as a local web page: a plain ``http.server`` on 127.0.0.1 in a thread.
 
-``/`` is a small self-contained page, ``/tune.js`` and ``/tune.css`` its script and style, and
+``/`` is a small self-contained page, ``/tune.js``, ``/tune.css`` and ``/icon.svg`` its script,
+style and icon, and
 ``/state.json`` the newest refresh (the same keys as ``--json`` plus the curves). The page polls
-the state four times a second and redraws an SVG plot. Every response carries a strict Content
+the state four times a second and redraws an SVG plot when a new refresh is there. Every response carries a strict Content
 Security Policy (no inline script or style, nothing from other origins) and ``nosniff``; nothing
 is loaded from anywhere else.
 """
@@ -18,7 +19,7 @@ CSP = ("default-src 'none'; script-src 'self'; style-src 'self'; connect-src 'se
 
 PAGE_HTML = """<!DOCTYPE html>
 <html lang="en"><head><meta charset="utf-8"><title>bandcensus tune</title>
-<link rel="stylesheet" href="/tune.css"></head>
+<link rel="stylesheet" href="/tune.css"><link rel="icon" href="/icon.svg" type="image/svg+xml"></head>
 <body><h1>Preamp alignment <span id="sim"></span></h1>
 <svg id="plot" viewBox="0 0 900 420" role="img" aria-label="gain against frequency"></svg>
 <p class="legend"><span class="now">&#9632; now</span> <span class="best">&#9632; best so far</span>
@@ -34,6 +35,8 @@ PAGE_HTML = """<!DOCTYPE html>
 </tbody></table>
 <script src="/tune.js"></script></body></html>
 """
+
+PAGE_ICON = """<svg xmlns="http://www.w3.org/2000/svg" viewBox="0 0 16 16"><path d="M1 14 Q8 -6 15 14" fill="none" stroke="#c60" stroke-width="2"/></svg>"""
 
 PAGE_CSS = """body{font-family:sans-serif;margin:1em;background:#fff;color:#222}
 h1{font-size:1.3em} #sim{color:#a40;font-size:.8em}
@@ -110,10 +113,11 @@ function show(s) {
   setText('hint', s.hint || '');
   draw(s);
 }
+let shown = 0;
 async function poll() {
   try {
     const r = await fetch('/state.json', {cache: 'no-store'});
-    if (r.ok) { const s = await r.json(); if (s.refresh) show(s); }
+    if (r.ok) { const s = await r.json(); if (s.refresh && s.refresh !== shown) { shown = s.refresh; show(s); } }
   } catch (e) { setText('refresh', 'session ended'); }
   setTimeout(poll, 250);
 }
@@ -141,6 +145,8 @@ class TunePageServer:
                     body, kind = PAGE_JS.encode(), "text/javascript; charset=utf-8"
                 elif path == "/tune.css":
                     body, kind = PAGE_CSS.encode(), "text/css; charset=utf-8"
+                elif path == "/icon.svg":
+                    body, kind = PAGE_ICON.encode(), "image/svg+xml"
                 else:
                     self.send_error(404)
                     return
