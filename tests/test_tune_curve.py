@@ -208,7 +208,10 @@ def test_curve_precision_matches_the_radiometer_equation():
     per_point = np.std(gains, axis=0, ddof=1)
     sigma = radiometer_sigma_db(200e3, settings.dwell_s) * math.sqrt(1 + 1 / 16)
     ratio = float(np.median(per_point) / sigma)
-    assert 0.8 < ratio < 1.4, ratio  # Hann window and 50 % overlap lose a little against the ideal
+    # A band integral of a Hann-windowed periodogram has up to N sum(w^4)/(sum w^2)^2 = 35/18 times the
+    # variance of a rectangular one (derived here), i.e. up to 1.39x the ideal radiometer spread; the
+    # 50 % overlap wins part of it back. Measured: about 1.36.
+    assert 1.15 < ratio < 1.55, ratio
     peaks = np.array([f.measures.peak_hz for f in frames])
     widths = np.array([f.measures.width_hz for f in frames])
     lo, hi = exact_edges(94e6, 30.0)
