@@ -104,6 +104,8 @@ class FitWorker:
         self._latest: tuple[PassbandFit, StaggerPlan | None] | None = None
         self._thread: threading.Thread | None = None
         self.fits_done = 0
+        #: Why the last fit failed (None when it did not): the display goes on without it.
+        self.last_error: str | None = None
 
     def offer(self, freqs_hz: Sequence[float], gain_db: Sequence[float]) -> None:
         """Give the worker the newest curve (points with NaN are dropped)."""
@@ -136,7 +138,9 @@ class FitWorker:
     def _fit(self, item: tuple[np.ndarray, np.ndarray]) -> None:
         try:
             fit = fit_passband(item[0], item[1], max_circuits=self.max_circuits, floor_offset=True)
-        except AnalysisError:
+        except Exception as exc:  # noqa: BLE001  a hint is optional: keep the reason, keep the display going
+            with self._lock:
+                self.last_error = f"{type(exc).__name__}: {exc}"
             return
         plan = stagger_plan_for(self.target_hz, fit)
         with self._lock:

@@ -219,3 +219,9 @@ def test_curve_precision_matches_the_radiometer_equation():
     assert np.mean(peaks) == pytest.approx(94e6, abs=30e3) and np.std(peaks) < 60e3
     assert np.mean(widths) == pytest.approx(hi - lo, rel=0.03) and np.std(widths) < 60e3
     assert HALF_POWER_DB == pytest.approx(3.0103, abs=1e-4)
+
+
+def test_fit_worker_keeps_the_reason_when_a_fit_fails():
+    worker = FitWorker(TARGET, inline=True)
+    worker.offer([94e6, 94e6, 94e6], [1.0, 2.0, 3.0])
+    assert worker.latest() == (None, None) and "FitError" in worker.last_error and "at least 3" in worker.last_error

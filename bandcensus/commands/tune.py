@@ -226,6 +226,8 @@ def command(target, reference, reference_db, input_kind, db_path, configuration,
                 finally:
                     if view is not None:
                         view.__exit__(None, None, None)
+                    if "t" in tracker_box:
+                        tracker_box["t"].fit_worker.join(10.0)
         finally:
             store.close()
             if page is not None:
