@@ -11,7 +11,7 @@ linearly in dB onto the live channels, never extrapolated beyond its own span.
 from __future__ import annotations
 
 import sqlite3
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import Sequence
 
 import numpy as np
@@ -22,7 +22,11 @@ from survey.store import list_sweeps, read_channel_matrix
 
 @dataclass(frozen=True)
 class TuningReference:
-    """Per-channel reference levels (Hz, dBFS/Hz) and where they came from."""
+    """Per-channel reference levels (Hz, dBFS/Hz) and where they came from.
+
+    ``receiver_gain_db`` lists the receiver gains the stored sweeps were measured at (empty: not
+    recorded, or measured here).
+    """
 
     freqs_hz: np.ndarray
     power_density_dbfs_hz: np.ndarray
@@ -32,6 +36,7 @@ class TuningReference:
     input: str
     n_sweeps: int
     origin: str
+    receiver_gain_db: tuple[float, ...] = ()
 
     def on(self, freqs_hz: Sequence[float]) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
         """Reference ``(power density, noise density, received)`` at ``freqs_hz``; NaN/False outside its span."""
@@ -99,6 +104,8 @@ def load_reference(conn: sqlite3.Connection, label: str, input: str, target_hz: 
     m = read_channel_matrix(conn, [s.id for s in sweeps])
     ref = reference_from_channels(m.freqs_hz, m.power_dbfs, m.noise_dbfs, m.received, bws.pop(), label, input,
                                   origin)
+    gains = tuple(sorted({s.gain_db for s in sweeps if s.gain_db is not None}))
+    ref = replace(ref, receiver_gain_db=gains)
     lo, hi = target_hz
     if ref.freqs_hz[0] > lo + 200_000 or ref.freqs_hz[-1] < hi - 200_000:
         raise MismatchError(

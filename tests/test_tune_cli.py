@@ -148,6 +148,10 @@ def test_reference_from_the_database(capsys, tmp_path):
     assert rc == 0, err
     rows = _lines(out)
     assert rows and abs(rows[0]["peak_hz"] - 92.1e6) < 150e3 and rows[0]["peak_gain_db"] == pytest.approx(19.4, abs=0.5)
+    assert "Warning" not in err
+    rc, out, err = _run(capsys, "tune", "--simulate", TRIMMER, "--target", "88-100", "--db", db, "--reference", "bare",
+                        "--gain-db", "20", "--json", "--for", "0.5s", "--unpaced")
+    assert rc == 0 and "Warning: the reference was measured at a receiver gain of 29.7 dB, this session at 20 dB" in err
     rc, out, err = _run(capsys, "tune", "--simulate", TRIMMER, "--target", "88-100", "--db", db, "--reference", "bare",
                         "--input", "antenna", "--for", "1s", "--unpaced")
     assert rc == 1 and err.startswith("Error: no complete sweeps labelled 'bare' with input 'antenna'")

@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import json
 import sys
+from dataclasses import replace
 from pathlib import Path
 
 import click
@@ -134,6 +135,9 @@ def command(target, reference, reference_db, input_kind, db_path, configuration,
         source, make_reference_source, configuration, scene = _simulated_sources(
             simulate, configuration, input_label, seed, settings)
         kind_word = "SIMULATED "
+        if gain_db is None:  # the simulated receiver's own gain setting
+            gain_db = scene.receiver.gain_db
+            settings = replace(settings, gain_db=gain_db)
         if input_kind == "noise" and scene.noise_source.enr_db is None and not scene.noise_source.enr_table:
             raise click.UsageError("the scene has no noise source; use --input antenna")
     else:
@@ -157,6 +161,12 @@ def command(target, reference, reference_db, input_kind, db_path, configuration,
                 ref = load_reference(conn, reference or "bare", input_label, target_hz, str(ref_path))
             finally:
                 conn.close()
+            other = [g for g in ref.receiver_gain_db if gain_db is None or abs(g - gain_db) > 0.05]
+            if other:
+                click.echo(f"Warning: the reference was measured at a receiver gain of "
+                           f"{', '.join(f'{g:g}' for g in ref.receiver_gain_db)} dB, this session at "
+                           f"{'the tuner AGC' if gain_db is None else f'{gain_db:g} dB'}: the curve's level is "
+                           "offset (its shape and edges are not)", err=True)
         tracker_box: dict = {}
         stop = StopFlag()
         page = None
