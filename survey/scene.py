@@ -36,6 +36,7 @@ from pathlib import Path
 import numpy as np
 
 from survey.errors import SceneError
+from survey.trimmer import TrimmerSchedule
 from survey.units import T0_K, db_to_ratio, nf_db_to_k, ratio_to_db
 
 #: ITU-R P.372 median external noise: environment -> (c, d) with Fa = c - d log10(f_MHz) dB.
@@ -120,6 +121,9 @@ class Preamp:
         Input third-order intercept; None for an ideal linear amplifier.
     supply_noise_k : float
         Broadband noise at the output, referred to the receiver input (not shaped by G).
+    trimmer : TrimmerSchedule or None
+        Circuits moving with simulated time (someone turning the trimmers); ``circuits`` is then
+        the tuning at time 0 and :meth:`at_time` gives the tuning at any time.
     """
 
     name: str
@@ -129,6 +133,15 @@ class Preamp:
     iip3_dbm: float | None = None
     supply_noise_k: float = 0.0
     oscillation: Oscillation | None = None
+    trimmer: TrimmerSchedule | None = None
+
+    def at_time(self, t_s: float) -> "Preamp":
+        """This preamp with its circuits where the trimmer schedule has them at ``t_s`` (itself if none)."""
+        if self.trimmer is None:
+            return self
+        tuned = tuple(TunedCircuit(f0, q) for f0, q in self.trimmer.tuning_at(t_s))
+        return Preamp(self.name, tuned, self.gain_db, self.nf_db, self.iip3_dbm, self.supply_noise_k,
+                      self.oscillation, None)
 
     @property
     def tp_k(self) -> float:
@@ -259,6 +272,17 @@ class Scene:
                 f"choose one of {', '.join(self.configurations)}"
             )
         return self.preamps[configuration]
+
+    @property
+    def has_trimmers(self) -> bool:
+        """True when some preamp's tuning changes with time."""
+        return any(p.trimmer is not None for p in self.preamps.values())
+
+    def at_time(self, t_s: float) -> "Scene":
+        """The scene with every trimmer schedule applied at simulated time ``t_s`` (itself if none)."""
+        if not self.has_trimmers:
+            return self
+        return replace(self, preamps={n: p.at_time(t_s) for n, p in self.preamps.items()})
 
     def with_station_levels(self, delta_db: float) -> "Scene":
         """A copy with every station level shifted by ``delta_db`` (for level sweeps)."""

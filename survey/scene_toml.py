@@ -5,7 +5,8 @@ Layout (see ``recordings_demo/quorrelby_hill.toml``): ``[scene]`` name and descr
 ``temp_k``; ``[noise_source]`` ``enr_db`` or ``enr_table = [[freq_hz, enr_db], ...]``;
 ``[receiver]``; ``[preamp.NAME]`` with ``circuits = [{f0_hz, q}, ...]`` or ``stagger = {center_hz,
 bandwidth_hz, stages}``, ``gain_db``, ``nf_db``, optional ``iip3_dbm``, ``supply_noise_k``,
-``oscillation = {freq_hz, level_dbm}`` and ``based_on = "OTHER"`` (inherit, then override);
+``oscillation = {freq_hz, level_dbm}``, ``based_on = "OTHER"`` (inherit, then override) and
+``trimmer = [{t_s, circuits = [{f0_hz, q}, ...]}, ...]`` (tuning against time, :mod:`survey.trimmer`);
 ``[[station]]`` with ``name``, ``freq_hz`` or ``freq_mhz``, ``level_dbm``, ``stereo`` and
 ``fading = {time_constant_s, spread_db}``. Every malformed entry raises SceneError naming the fix.
 """
@@ -31,6 +32,7 @@ from survey.scene import (
     TunedCircuit,
     stagger_tuned_circuits,
 )
+from survey.trimmer import parse_trimmer
 
 
 def _num(table: dict, key: str, where: str, default: Any = ..., minimum: float | None = None) -> Any:
@@ -98,6 +100,9 @@ def _resolve_preamp(name: str, raw_all: dict, seen: tuple[str, ...] = ()) -> dic
 def _parse_preamp(name: str, raw_all: dict) -> Preamp:
     where = f"preamp '{name}'"
     t = _resolve_preamp(name, raw_all)
+    trimmer = parse_trimmer(t["trimmer"], where) if "trimmer" in t else None
+    if trimmer is not None and "circuits" not in t and "stagger" not in t:
+        t["circuits"] = [{"f0_hz": f0, "q": q} for f0, q in trimmer.tuning_at(trimmer.keyframes[0].t_s)]
     if "stagger" in t:
         s = t["stagger"]
         if not isinstance(s, dict):
@@ -120,6 +125,9 @@ def _parse_preamp(name: str, raw_all: dict) -> Preamp:
         )
     if not 1 <= len(circuits) <= 3:
         raise SceneError(f"{where}: {len(circuits)} tuned circuits; use 1 to 3")
+    if trimmer is not None and trimmer.n_circuits != len(circuits):
+        raise SceneError(f"{where}: the trimmer moves {trimmer.n_circuits} circuits but the preamp has "
+                         f"{len(circuits)}; list the same circuits in both")
     osc = None
     if "oscillation" in t:
         o = t["oscillation"]
@@ -136,6 +144,7 @@ def _parse_preamp(name: str, raw_all: dict) -> Preamp:
         iip3_dbm=None if iip3 is None else _num(t, "iip3_dbm", where),
         supply_noise_k=_num(t, "supply_noise_k", where, 0.0, minimum=0.0),
         oscillation=osc,
+        trimmer=trimmer,
     )
 
 

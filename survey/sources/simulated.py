@@ -122,6 +122,8 @@ class SimulatedSource:
         if settle_s < 0:
             raise SceneError(f"settle time {settle_s} s is negative; use 0 or more")
         self.scene = scene
+        self._static_scene = scene  # self.scene follows its trimmer schedules, if any
+        self._tuned_scenes: dict[tuple, Scene] = {}
         self.seed = int(seed)
         self._fs = float(sample_rate_hz)
         self.settle_s = float(settle_s)
@@ -234,6 +236,19 @@ class SimulatedSource:
         """UTC timestamp of simulated second ``t_s`` (format of :func:`survey.store.utc_now`)."""
         return (self._epoch + timedelta(seconds=float(t_s))).strftime("%Y-%m-%dT%H:%M:%S.%fZ")
 
+    def _apply_tuning(self, t_s: float) -> None:
+        """Point :attr:`scene` at the scene's tuning at ``t_s`` (preamps with a trimmer schedule)."""
+        static = self._static_scene
+        if not static.has_trimmers:
+            return
+        key = tuple(p.trimmer.tuning_at(t_s) if p.trimmer else () for p in static.preamps.values())
+        scene = self._tuned_scenes.get(key)
+        if scene is None:
+            if len(self._tuned_scenes) > 256:
+                self._tuned_scenes.clear()
+            scene = self._tuned_scenes[key] = static.at_time(t_s)
+        self.scene = scene
+
     def _check_open(self) -> None:
         if self._closed:
             raise SceneError("the simulated source is closed; create a new SimulatedSource")
@@ -327,7 +342,8 @@ class SimulatedSource:
         return np.random.default_rng([self.seed, int(round(t_s * 1e6)), int(round(center_hz)), tag])
 
     def _noise_amplitude(self, center_hz: float, n: int) -> np.ndarray:
-        key = (self._configuration, self._input, float(center_hz), n)
+        pre = self.scene.preamp(self._configuration)
+        key = (self._configuration, self._input, float(center_hz), n, None if pre is None else pre.circuits)
         amp = self._noise_cache.get(key)
         if amp is None:
             fb, roll, _ = self._baseband_grid(n)
@@ -342,6 +358,7 @@ class SimulatedSource:
     def render_complex(self, center_hz: float, n: int, t_s: float) -> np.ndarray:
         """The block at full scale before quantisation (complex64), incl. DC and IQ imbalance."""
         fs = self._fs
+        self._apply_tuning(t_s)
         lo = self.lo_hz(center_hz)
         rng = self._hop_rng(center_hz, t_s, 0)
         amp = self._noise_amplitude(center_hz, n)
@@ -389,12 +406,16 @@ class SimulatedSource:
 
     # -- truth -------------------------------------------------------------------------------------
     def _truth_time(self, center_hz: float, at_s: float | None) -> float:
+        t = self._time_s
         if at_s is not None:
-            return float(at_s)
-        for h in reversed(self.history):
-            if h.center_hz == float(center_hz) and h.configuration == self._configuration and h.input == self._input:
-                return h.started_s
-        return self._time_s
+            t = float(at_s)
+        else:
+            for h in reversed(self.history):
+                if h.center_hz == float(center_hz) and h.configuration == self._configuration and h.input == self._input:
+                    t = h.started_s
+                    break
+        self._apply_tuning(t)
+        return t
 
     def truth(self, center_hz: float, channels_hz, channel_bw_hz: float = 200_000.0,
               at_s: float | None = None) -> list[ChannelTruth]:
