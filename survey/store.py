@@ -24,7 +24,6 @@ from pathlib import Path
 from typing import Iterable, Sequence
 
 import numpy as np
-from sqlite_utils import Database
 
 from bandcensus import __version__
 from survey.errors import StoreError
@@ -164,7 +163,6 @@ class SurveyStore:
             raise StoreError(f"{self.path} is a folder; give a database file path such as survey.db")
         try:
             self.conn = _connect(self.path, busy_timeout_s)
-            self.db = Database(self.conn)
             self.conn.execute("PRAGMA journal_mode = WAL")
             self.conn.execute("PRAGMA synchronous = NORMAL")
             self._migrate()
@@ -172,6 +170,17 @@ class SurveyStore:
             raise StoreError(
                 f"{self.path} is not a bandcensus database ({exc}); choose a new file name"
             ) from exc
+
+    @property
+    def db(self):
+        """A :class:`sqlite_utils.Database` over the same connection, for interactive use.
+
+        Imported on first use only: sqlite_utils pulls in pandas-sized dependencies that the
+        capture and the read-only commands do not need.
+        """
+        from sqlite_utils import Database
+
+        return Database(self.conn)
 
     # -- schema -----------------------------------------------------------------------------
     def _migrate(self) -> None:
