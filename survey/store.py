@@ -26,6 +26,7 @@ from typing import Iterable, Sequence
 import numpy as np
 
 from bandcensus import __version__
+from survey import spectra_codec
 from survey.errors import StoreError
 from survey.records import RunInfo, SweepResult
 
@@ -353,13 +354,12 @@ class SurveyStore:
                 for h in result.hops:
                     if h.psd_dbfs_hz is None or h.psd_freqs_hz is None or len(h.psd_freqs_hz) < 2:
                         continue
-                    f = np.asarray(h.psd_freqs_hz, dtype=np.float64)
-                    centi = np.clip(np.round(np.asarray(h.psd_dbfs_hz, np.float64) * 100.0), -32768, 32767)
+                    row = spectra_codec.encode(h.psd_freqs_hz, h.psd_dbfs_hz, result.input, float(h.center_hz),
+                                               float(h.sample_rate_hz), float(s.usable_fraction), float(s.dc_guard_hz))
                     c.execute(
                         "INSERT INTO spectra (sweep_id, hop_index, f_start_hz, bin_hz, n_bins, psd_centi_dbfs_hz)"
                         " VALUES (?,?,?,?,?,?)",
-                        (sweep_id, int(h.index), float(f[0]), float(f[1] - f[0]), int(f.size),
-                         centi.astype("<i2").tobytes()),
+                        (sweep_id, int(h.index), row.f_start_hz, row.bin_hz, row.n_bins, row.blob),
                     )
             return int(sweep_id)
 
@@ -596,13 +596,17 @@ def read_hops(conn: sqlite3.Connection, sweep_ids: Iterable[int]) -> list[dict]:
 
 
 def read_spectra(conn: sqlite3.Connection, sweep_id: int) -> list[tuple[np.ndarray, np.ndarray]]:
-    """Kept spectra of one sweep: a list of ``(freqs_hz absolute, psd_dbfs_hz)`` per hop."""
+    """Kept spectra of one sweep: a list of ``(freqs_hz absolute, psd_dbfs_hz)`` per hop.
+
+    Rows of ``antenna`` sweeps are thinned copies (the usable span, groups of FFT bins at
+    their mean, see :mod:`survey.spectra_codec`), returned on the FFT bin grid.
+    """
     out = []
     for f0, df, n, blob in conn.execute(
         "SELECT f_start_hz, bin_hz, n_bins, psd_centi_dbfs_hz FROM spectra WHERE sweep_id=? ORDER BY hop_index",
         (int(sweep_id),),
     ):
-        out.append((f0 + df * np.arange(n), np.frombuffer(blob, dtype="<i2").astype(np.float32) / 100.0))
+        out.append(spectra_codec.decode_row(f0, df, n, blob, np.float32))
     return out
 
 
