@@ -58,8 +58,9 @@ SUPPORTED_DATATYPES = ("cu8", "ci8", "ci16_le", "cf32_le")
 #: Default fractional overlap of PSD segments. With a Hann window, 0 % overlap keeps the
 #: segments statistically independent (each bin is exactly ``S chi2(2K)/(2K)`` for Gaussian
 #: noise) at half the FFT work of 50 % overlap, which Welch [1]_ shows buys only ~1.9x the
-#: equivalent averages for the same samples. The speed goal (>= 40x real time on one core at
-#: 2.4 MS/s, see tests/benchmarks/dsp_speed.py) is met at 0 %; lengthen the dwell for more averages.
+#: equivalent averages for the same samples. The speed goal (>= 70x real time on one core at
+#: 2.4 MS/s up to the PSD and channel powers, see tests/benchmarks/dsp_speed.py) is met at 0 %;
+#: lengthen the dwell for more averages.
 DEFAULT_OVERLAP = 0.0
 
 _NATIVE = {"cu8": np.dtype(np.uint8), "ci8": np.dtype(np.int8),

@@ -11,6 +11,8 @@ in the README ("Database schema"). Conventions:
 * ``channel_vectors`` holds a columnar copy of each sweep's channel rows (little-endian blobs)
   written in the same transaction; the analysis side reads it for speed. ``channels`` stays the
   row-per-channel table anyone can query with ``sqlite3``.
+* Kept spectra are written through :mod:`survey.spectra_codec`: full resolution for noise
+  inputs, a thinned copy for antenna sweeps; :func:`read_spectra` reads both.
 """
 
 from __future__ import annotations
