@@ -21,7 +21,9 @@ variant inherits another's allocator state, caches or FFT plans. The child binds
 CPU (``os.sched_setaffinity``; ``DSP_BENCH_CPU`` picks it, default the first allowed), sets the
 BLAS/OpenMP thread counts to 1 before numpy loads, runs the ten hops once (``first pass``: FFT
 plans, work buffers and caches are built here) and then once more (``steady pass``, the state a
-survey runs in). The variants are interleaved: every repetition runs each of them once, in a
+survey runs in), timing each pass on the wall clock and in CPU time of the process
+(``time.process_time``, which does not count time spent waiting for the CPU on a loaded
+machine). The variants are interleaved: every repetition runs each of them once, in a
 rotated order. Prints best and median of the repetitions in x real time and the ratio of each
 tool line to ``minimal`` (1.0 = as fast as the minimal path); asserts nothing. The machine is
 shared: the load average is printed at the start and the end.
@@ -125,12 +127,13 @@ def child(variant: str, data: Path) -> dict:
 
     work = {"minimal": minimal, "tool PSD": tool_psd, "tool PSD+channels": tool_psd_channels,
             "tool full hop": tool_full, "welch": welch}[variant]
-    passes = []
+    passes, cpu = [], []
     for _ in range(2):
-        t0 = time.perf_counter()
+        c0, t0 = time.process_time(), time.perf_counter()
         work()
         passes.append(time.perf_counter() - t0)
-    return {"first": passes[0], "steady": passes[1]}
+        cpu.append(time.process_time() - c0)
+    return {"first": passes[0], "steady": passes[1], "first cpu": cpu[0], "steady cpu": cpu[1]}
 
 
 def accuracy(data: Path) -> float:
@@ -173,27 +176,30 @@ def main(argv=None) -> int:
               f"{args.reps} repetitions, each variant in a fresh process, interleaved")
         print(f"load average at start: {' '.join(f'{x:.2f}' for x in os.getloadavg())} "
               f"({os.cpu_count()} CPUs, shared with other work)")
-        times: dict[str, dict[str, list[float]]] = {v: {"first": [], "steady": []} for v in VARIANTS}
+        keys = ("first", "steady", "first cpu", "steady cpu")
+        times: dict[str, dict[str, list[float]]] = {v: {k: [] for k in keys} for v in VARIANTS}
         for rep in range(args.reps):
             order = VARIANTS[rep % len(VARIANTS):] + VARIANTS[: rep % len(VARIANTS)]
             for variant in order:
                 out = subprocess.run([sys.executable, str(HERE), "--child", variant, "--data", str(data)],
                                      capture_output=True, text=True, env=env, check=True)
                 result = json.loads(out.stdout.strip().splitlines()[-1])
-                for key in ("first", "steady"):
+                for key in keys:
                     times[variant][key].append(result[key])
         worst_db = accuracy(data)
     print(f"load average at end:   {' '.join(f'{x:.2f}' for x in os.getloadavg())}")
-    print(f"{'variant':<18} | {'steady pass x real time':^27} | {'first pass x real time':^27}")
-    print(f"{'':<18} | {'best':>8} {'median':>8} {'vs minimal':>9} | {'best':>8} {'median':>8} {'vs minimal':>9}")
-    ref = {key: _stats(times["minimal"][key]) for key in ("first", "steady")}
-    for variant in VARIANTS:
-        cells = []
-        for key in ("steady", "first"):
-            best, median = _stats(times[variant][key])
-            ratio = ref[key][0] / best
-            cells.append(f"{seconds / best:7.1f}x {seconds / median:7.1f}x {ratio:9.2f}")
-        print(f"{variant:<18} | {cells[0]} | {cells[1]}")
+    for clock, suffix in (("wall clock", ""), ("CPU time of the child (less sensitive to other work)", " cpu")):
+        print(f"{clock}:")
+        print(f"{'variant':<18} | {'steady pass x real time':^27} | {'first pass x real time':^27}")
+        print(f"{'':<18} | {'best':>8} {'median':>8} {'vs minimal':>9} | {'best':>8} {'median':>8} {'vs minimal':>9}")
+        ref = {key: _stats(times["minimal"][key + suffix]) for key in ("first", "steady")}
+        for variant in VARIANTS:
+            cells = []
+            for key in ("steady", "first"):
+                best, median = _stats(times[variant][key + suffix])
+                ratio = ref[key][0] / best
+                cells.append(f"{seconds / best:7.1f}x {seconds / median:7.1f}x {ratio:9.2f}")
+            print(f"{variant:<18} | {cells[0]} | {cells[1]}")
     full = _stats(times["tool full hop"]["steady"])[0]
     psd = _stats(times["tool PSD+channels"]["steady"])[0]
     print(f"noise floor fit (full hop minus PSD+channels, best): {(full - psd) / N_HOPS * 1e3:.2f} ms per hop, "
