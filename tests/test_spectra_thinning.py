@@ -15,6 +15,8 @@ import numpy as np
 import pytest
 
 import synth_signals as ss
+from diagnose_scenes import record, scene_with
+from analysis.diagnose import diagnose
 from analysis.passband_data import load_gain_curve
 from bandcensus.cli import main
 from bandcensus.demo import demo_recordings
@@ -183,3 +185,20 @@ def test_a_replayed_antenna_sweep_takes_at_most_30_kb(tmp_path):
     assert main(["replay", *antenna, "--db", str(filled), "--quiet"]) == 0
     per_sweep = (filled.stat().st_size - empty.stat().st_size) / (len(antenna) - 1)
     assert per_sweep <= 30 * 1024, per_sweep
+
+
+def test_oscillation_is_found_from_thinned_antenna_spectra_alone(tmp_path):
+    # the same oscillating-preamp scene as the diagnosis tests, but with no terminated sweeps:
+    # only thinned antenna spectra to search. The finding states 10 kHz of frequency uncertainty.
+    osc_hz = 97.337e6
+    scene = scene_with(osc={"based_on": "clean", "oscillation": {"freq_hz": osc_hz, "level_dbm": -90.0}})
+    db = record(tmp_path / "osc.db", [(scene, "bare", "bare", "antenna", True), (scene, "osc", "osc", "antenna", True)])
+    conn = sqlite3.connect(db)
+    blobs = [(bytes(b), n) for b, n in conn.execute("SELECT psd_centi_dbfs_hz, n_bins FROM spectra")]
+    conn.close()
+    assert blobs and all(spectra_codec.is_thinned(b, n) for b, n in blobs)
+    osc = diagnose(db, "bare", "osc").of_kind("oscillation")
+    assert len(osc) == 1 and osc[0].severity == "problem"
+    assert abs(osc[0].freq_hz - osc_hz) <= osc[0].evidence["freq_uncertainty_hz"]
+    # level: -90 dBm at a full scale of -62.7 dBm is -27.3 dBFS (as with full spectra)
+    assert osc[0].evidence["level_dbfs"] == pytest.approx(-27.3, abs=1.0)
