@@ -36,6 +36,7 @@ from typing import Sequence
 import numpy as np
 
 from analysis.errors import BadParameterError, MismatchError, NoDataError
+from survey import spectra_codec
 from survey.store import SweepRow, list_sweeps, open_for_reading, read_channel_matrix
 from survey.units import db_to_ratio, ratio_to_db
 
@@ -165,10 +166,10 @@ def read_spectra_with_hops(conn: sqlite3.Connection, sweep_id: int) -> list[dict
         " ON h.sweep_id = s.sweep_id AND h.hop_index = s.hop_index WHERE s.sweep_id = ? ORDER BY s.hop_index",
         (int(sweep_id),),
     ):
+        freqs, psd = spectra_codec.decode_row(f0, df, n, blob)  # thinned rows back on the FFT grid
         out.append({
             "hop_index": int(hop), "center_hz": float(fc), "sample_rate_hz": float(fs), "n_samples": int(ns),
-            "freqs_hz": f0 + df * np.arange(n),
-            "psd_dbfs_hz": np.frombuffer(blob, dtype="<i2").astype(np.float64) / 100.0,
+            "freqs_hz": freqs, "psd_dbfs_hz": psd,
         })
     return out
 

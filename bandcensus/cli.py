@@ -1,7 +1,9 @@
 """The ``bandcensus`` console command: a thin click group over the library.
 
 Each subcommand lives in its own module under :mod:`bandcensus.commands` and exposes a
-``command`` attribute (a :class:`click.Command`); they are discovered here in name order.
+``command`` attribute (a :class:`click.Command`); they are discovered here in name order and
+imported only when run: ``--help`` lists them from the first line of each module's docstring,
+read from the source file, so start-up does not pay for scipy.stats, pandas or matplotlib.
 Errors of the library become one line ``Error: ...`` and exit code 1 (a traceback only with
 ``--debug``); bad usage exits 2.
 """
@@ -10,6 +12,7 @@ from __future__ import annotations
 
 import importlib
 import pkgutil
+import re
 import sys
 import traceback
 from typing import Sequence
@@ -39,6 +42,31 @@ class _Group(click.Group):
             return None
         module = importlib.import_module(f"bandcensus.commands.{module_name}")
         return getattr(module, "command")
+
+    def format_commands(self, ctx: click.Context, formatter: click.HelpFormatter) -> None:
+        """The command list of ``--help``, from module docstrings (no command module imported)."""
+        rows = [(name, _summary(name.replace("-", "_"))) for name in self.list_commands(ctx)]
+        if rows:
+            with formatter.section("Commands"):
+                formatter.write_dl(rows)
+
+
+_SUMMARY = re.compile(r'^\s*(?:[rR])?(?:"""|\'\'\')\s*(?:``bandcensus [\w-]+``:\s*)?(.*?)\s*(?:"""|\'\'\'|$)', re.M)
+
+
+def _summary(module_name: str) -> str:
+    """First line of a command module's docstring without its ``bandcensus NAME``: prefix."""
+    for folder in _commands_pkg.__path__:
+        try:
+            with open(f"{folder}/{module_name}.py", encoding="utf-8") as fh:
+                head = fh.read(2000)
+        except OSError:
+            continue
+        found = _SUMMARY.search(head)
+        if found:
+            text = found.group(1).rstrip(".")
+            return text[:1].upper() + text[1:] + "."
+    return ""
 
 
 @click.group(cls=_Group, context_settings={"help_option_names": ["-h", "--help"], "max_content_width": 100})

@@ -18,8 +18,9 @@ datatype      raw storage             normalisation
 
 Pipeline of :func:`measure_hop`
 -------------------------------
-1. :func:`to_complex64` and :func:`clip_fraction` on the raw block.
-2. :func:`averaged_psd`: averaged periodogram (Welch 1967), periodic Hann window, density in
+1. :func:`clip_fraction` on the raw block.
+2. :func:`raw_averaged_psd` (conversion as :func:`to_complex64`, folded into the window) and
+   :func:`averaged_psd`: averaged periodogram (Welch 1967), periodic Hann window, density in
    FS^2/Hz (FS^2 is full-scale power), two-sided, ordered by ascending offset from the hop centre.
 3. :func:`usable_bins`: the flat inner part of the hop minus a guard around the DC spike.
 4. :func:`local_noise_floor` (in :mod:`survey.noise_floor`): a smooth floor fitted to the
@@ -38,13 +39,13 @@ The references of the noise-floor method are in :mod:`survey.noise_floor`.
 
 from __future__ import annotations
 
+import threading
 from datetime import datetime, timedelta, timezone
 from functools import lru_cache
-from typing import Sequence
+from typing import Callable, Sequence
 
 import numpy as np
 import scipy.fft
-import scipy.signal
 
 from survey.errors import PlanError, RecordingError
 from survey.records import ChannelReading, HopReading, IQBlock, SweepSettings
@@ -57,14 +58,17 @@ SUPPORTED_DATATYPES = ("cu8", "ci8", "ci16_le", "cf32_le")
 #: Default fractional overlap of PSD segments. With a Hann window, 0 % overlap keeps the
 #: segments statistically independent (each bin is exactly ``S chi2(2K)/(2K)`` for Gaussian
 #: noise) at half the FFT work of 50 % overlap, which Welch [1]_ shows buys only ~1.9x the
-#: equivalent averages for the same samples. The speed goal (>= 40x real time on one core at
-#: 2.4 MS/s, see tests/benchmarks/dsp_speed.py) is met at 0 %; lengthen the dwell for more averages.
+#: equivalent averages for the same samples. The speed goal (>= 70x real time on one core at
+#: 2.4 MS/s up to the PSD and channel powers, see tests/benchmarks/dsp_speed.py) is met at 0 %;
+#: lengthen the dwell for more averages.
 DEFAULT_OVERLAP = 0.0
 
 _NATIVE = {"cu8": np.dtype(np.uint8), "ci8": np.dtype(np.int8),
            "ci16_le": np.dtype("<i2"), "cf32_le": np.dtype("<f4")}
 _SCALE = {"ci8": 1.0 / 128.0, "ci16_le": 1.0 / 32768.0}
-_CHUNK_SEGMENTS = 128  # FFT segments per chunk: keeps the working set in cache for long blocks
+#: Most FFT segments transformed in one call; a 0.1 s hop at 2.4 MS/s (117 segments of 2048) is
+#: one call, longer blocks are taken in chunks so that the work buffer stays about 4 MB.
+_CHUNK_SEGMENTS = 256
 
 
 def _native(raw: np.ndarray, datatype: str) -> np.ndarray:
@@ -145,9 +149,60 @@ def clip_fraction(raw: np.ndarray, datatype: str) -> float | None:
 
 @lru_cache(maxsize=16)
 def _hann(fft_size: int) -> np.ndarray:
-    win = scipy.signal.get_window("hann", fft_size).astype(np.float32)
+    """Periodic Hann window ``w_n = 0.5 - 0.5 cos(2 pi n / L)``, float32, read-only.
+
+    The DFT-even form (Harris 1978), identical to ``scipy.signal.get_window('hann', L)``.
+    """
+    n = np.arange(fft_size, dtype=np.float64)
+    win = (0.5 - 0.5 * np.cos(2.0 * np.pi * n / fft_size)).astype(np.float32)
     win.setflags(write=False)
     return win
+
+
+@lru_cache(maxsize=16)
+def _scaled_window(fft_size: int, datatype: str) -> tuple[np.ndarray, np.ndarray | None]:
+    """Window with the datatype's full-scale divisor folded in, repeated for I and Q.
+
+    Returns ``(gain, offset)`` (float32, length ``2 L``, read-only) such that the windowed
+    sample is ``raw * gain - offset``: for ``cu8`` ``(b - 127.5)/127.5 * w = b (w/127.5) - w``;
+    the other integer types have no offset (None).
+    """
+    win = np.repeat(_hann(fft_size).astype(np.float64), 2)
+    if datatype == "cu8":
+        gain, offset = (win / 127.5).astype(np.float32), win.astype(np.float32)
+        offset.setflags(write=False)
+    else:
+        gain, offset = (win * _SCALE[datatype]).astype(np.float32), None
+    gain.setflags(write=False)
+    return gain, offset
+
+
+class _Workspace:
+    """Work buffers of :func:`averaged_psd` reused from hop to hop (no per-hop allocation).
+
+    One complex64 ``(segments, L)`` block that receives the windowed samples, is transformed in
+    place and squared in place, plus the float32 accumulator of the segment sum. Handing a
+    1.9 MB temporary back to the allocator every hop costs page faults (hundreds per hop);
+    reusing it costs none. Not shared between threads (one workspace per thread).
+    """
+
+    def __init__(self, segments: int, fft_size: int):
+        self.block = np.empty((segments, fft_size), dtype=np.complex64)
+        self.acc = np.empty(2 * fft_size, dtype=np.float32)
+
+
+_WORKSPACES: dict[tuple[int, int, int], _Workspace] = {}
+
+
+def _workspace(segments: int, fft_size: int) -> _Workspace:
+    """The cached workspace for ``segments`` x ``fft_size`` of the calling thread (few sizes kept)."""
+    key = (threading.get_ident(), segments, fft_size)
+    ws = _WORKSPACES.get(key)
+    if ws is None:
+        if len(_WORKSPACES) >= 8:
+            _WORKSPACES.pop(next(iter(_WORKSPACES)))
+        ws = _WORKSPACES[key] = _Workspace(segments, fft_size)
+    return ws
 
 
 @lru_cache(maxsize=16)
@@ -228,23 +283,88 @@ def averaged_psd(
         segments = z[: n_seg * fft_size].reshape(n_seg, fft_size)
     else:
         segments = np.lib.stride_tricks.sliding_window_view(z, fft_size)[::step][:n_seg]
-    acc = np.zeros(2 * fft_size, dtype=np.float64)
-    buf = np.empty((min(n_seg, _CHUNK_SEGMENTS), fft_size), dtype=np.complex64)
-    for k0 in range(0, n_seg, _CHUNK_SEGMENTS):
-        seg = segments[k0 : k0 + _CHUNK_SEGMENTS]
-        work = np.multiply(seg, win, out=buf[: seg.shape[0]])
-        spec = scipy.fft.fft(work, axis=-1, overwrite_x=True, workers=workers)
+
+    def fill(block: np.ndarray, first: int) -> None:
+        np.multiply(segments[first : first + block.shape[0]], win, out=block)
+
+    return _psd_from_segments(fill, n_seg, float(sample_rate_hz), fft_size, workers)
+
+
+def raw_averaged_psd(
+    raw: np.ndarray,
+    datatype: str,
+    sample_rate_hz: float,
+    fft_size: int = 2048,
+    overlap: float = DEFAULT_OVERLAP,
+    workers: int | None = None,
+) -> tuple[np.ndarray, np.ndarray]:
+    """:func:`averaged_psd` of raw interleaved I,Q, converted straight into the FFT input.
+
+    Same result as ``averaged_psd(to_complex64(raw, datatype), ...)`` (the full-scale
+    normalisation of :func:`to_complex64` is folded into the window: ``cu8`` becomes
+    ``b (w/127.5) - w``), without the complex64 copy of the block. Integer datatypes without
+    overlap take the fused path; ``cf32_le`` and overlapping segments go through
+    :func:`to_complex64`.
+
+    Raises
+    ------
+    RecordingError
+        As :func:`to_complex64`.
+    PlanError
+        As :func:`averaged_psd`.
+    """
+    arr = _native(raw, datatype)
+    step = _step(fft_size, overlap)
+    if datatype == "cf32_le" or step != fft_size:
+        return averaged_psd(to_complex64(arr, datatype), sample_rate_hz, fft_size, overlap, workers)
+    n_samples = arr.size // 2
+    if fft_size < 8 or n_samples < fft_size:
+        raise PlanError(
+            f"{n_samples} samples cannot fill one FFT of {fft_size}; lengthen the dwell or use a "
+            "smaller fft_size (at least 8)"
+        )
+    n_seg = n_samples // fft_size
+    rows = arr[: n_seg * 2 * fft_size].reshape(n_seg, 2 * fft_size)
+    gain, offset = _scaled_window(fft_size, datatype)
+
+    def fill(block: np.ndarray, first: int) -> None:
+        out = block.view(np.float32)
+        np.multiply(rows[first : first + block.shape[0]], gain, out=out)
+        if offset is not None:
+            np.subtract(out, offset, out=out)
+
+    return _psd_from_segments(fill, n_seg, float(sample_rate_hz), fft_size, workers)
+
+
+def _psd_from_segments(
+    fill: Callable[[np.ndarray, int], None], n_seg: int, sample_rate_hz: float, fft_size: int,
+    workers: int | None,
+) -> tuple[np.ndarray, np.ndarray]:
+    """Average ``|FFT|^2`` of ``n_seg`` windowed segments that ``fill(block, first)`` writes.
+
+    The segments are transformed in place in the cached workspace, all of them in one FFT
+    call (chunks of :data:`_CHUNK_SEGMENTS` for long blocks); returns offsets and the
+    fftshifted one-sided-free density as :func:`averaged_psd` documents.
+    """
+    chunk = min(n_seg, _CHUNK_SEGMENTS)
+    ws = _workspace(chunk, fft_size)
+    total = np.zeros(2 * fft_size, dtype=np.float64)
+    for first in range(0, n_seg, chunk):
+        block = ws.block[: min(chunk, n_seg - first)]
+        fill(block, first)
+        spec = scipy.fft.fft(block, axis=-1, overwrite_x=True, workers=workers)
         power = spec.view(np.float32)
         np.square(power, out=power)
-        acc += power.sum(axis=0, dtype=np.float32)
+        np.sum(power, axis=0, dtype=np.float32, out=ws.acc)
+        total += ws.acc
     scale = 1.0 / (n_seg * sample_rate_hz * _hann_energy(fft_size))
-    density = acc.reshape(fft_size, 2).sum(axis=1)
+    density = total.reshape(fft_size, 2).sum(axis=1)
     density *= scale
     psd = np.empty(fft_size, dtype=np.float32)  # fftshift while rounding to single precision
     half = fft_size // 2
     psd[half:] = density[: fft_size - half]
     psd[:half] = density[fft_size - half :]
-    return _shifted_offsets(fft_size, float(sample_rate_hz)).copy(), psd
+    return _shifted_offsets(fft_size, sample_rate_hz).copy(), psd
 
 
 def welch_effective_averages(n_samples: int, fft_size: int, overlap: float = DEFAULT_OVERLAP) -> float:
@@ -421,11 +541,11 @@ def measure_hop(
     """
     fs = float(block.sample_rate_hz)
     center = float(block.center_hz)
-    samples = to_complex64(block.raw, block.datatype)
+    n_samples = _native(block.raw, block.datatype).size // 2
     clipped = clip_fraction(block.raw, block.datatype)
-    offsets, psd = averaged_psd(samples, fs, settings.fft_size)
+    offsets, psd = raw_averaged_psd(block.raw, block.datatype, fs, settings.fft_size)
     usable = usable_bins(offsets, fs, settings.usable_fraction, settings.dc_guard_hz)
-    k_eff = welch_effective_averages(samples.size, settings.fft_size)
+    k_eff = welch_effective_averages(n_samples, settings.fft_size)
     floor = local_noise_floor(offsets, psd, usable, effective_averages=k_eff)
     floor_db = _median_db(floor[usable])
 
@@ -450,7 +570,7 @@ def measure_hop(
                 noise_density_dbfs_hz=n0, cn_db=c if ok else None, received=ok,
             ))
     hop = HopReading(
-        index=int(hop_index), center_hz=center, sample_rate_hz=fs, n_samples=int(samples.size),
+        index=int(hop_index), center_hz=center, sample_rate_hz=fs, n_samples=int(n_samples),
         clip_fraction=clipped, floor_dbfs_hz=floor_db, started_utc=block.started_utc,
         psd_freqs_hz=(center + offsets) if keep_psd else None,
         psd_dbfs_hz=psd_to_dbfs_hz(psd) if keep_psd else None,

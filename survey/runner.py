@@ -54,7 +54,8 @@ def record_sweep(
     keep_iq_dir : path, optional
         Keep the sweep's raw IQ as one SigMF recording (one capture per hop) in this folder.
     keep_spectra : bool, optional
-        Store compact spectra per hop (int16 centi-dB, about 4 KB per hop at 2048 bins).
+        Store compact spectra per hop (:mod:`survey.spectra_codec`: about 4 KB per hop at 2048
+        bins for noise inputs, about 0.4 KB thinned for antenna sweeps).
         Default: yes. The passband analysis uses the dense spectra of noise-source runs and the
         diagnosis looks for narrow lines in antenna runs; a long live survey can thin them out
         (``scan --spectra-every N``).

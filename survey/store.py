@@ -11,6 +11,8 @@ in the README ("Database schema"). Conventions:
 * ``channel_vectors`` holds a columnar copy of each sweep's channel rows (little-endian blobs)
   written in the same transaction; the analysis side reads it for speed. ``channels`` stays the
   row-per-channel table anyone can query with ``sqlite3``.
+* Kept spectra are written through :mod:`survey.spectra_codec`: full resolution for noise
+  inputs, a thinned copy for antenna sweeps; :func:`read_spectra` reads both.
 """
 
 from __future__ import annotations
@@ -24,9 +26,9 @@ from pathlib import Path
 from typing import Iterable, Sequence
 
 import numpy as np
-from sqlite_utils import Database
 
 from bandcensus import __version__
+from survey import spectra_codec
 from survey.errors import StoreError
 from survey.records import RunInfo, SweepResult
 
@@ -164,7 +166,6 @@ class SurveyStore:
             raise StoreError(f"{self.path} is a folder; give a database file path such as survey.db")
         try:
             self.conn = _connect(self.path, busy_timeout_s)
-            self.db = Database(self.conn)
             self.conn.execute("PRAGMA journal_mode = WAL")
             self.conn.execute("PRAGMA synchronous = NORMAL")
             self._migrate()
@@ -172,6 +173,17 @@ class SurveyStore:
             raise StoreError(
                 f"{self.path} is not a bandcensus database ({exc}); choose a new file name"
             ) from exc
+
+    @property
+    def db(self):
+        """A :class:`sqlite_utils.Database` over the same connection, for interactive use.
+
+        Imported on first use only: sqlite_utils pulls in pandas-sized dependencies that the
+        capture and the read-only commands do not need.
+        """
+        from sqlite_utils import Database
+
+        return Database(self.conn)
 
     # -- schema -----------------------------------------------------------------------------
     def _migrate(self) -> None:
@@ -344,13 +356,12 @@ class SurveyStore:
                 for h in result.hops:
                     if h.psd_dbfs_hz is None or h.psd_freqs_hz is None or len(h.psd_freqs_hz) < 2:
                         continue
-                    f = np.asarray(h.psd_freqs_hz, dtype=np.float64)
-                    centi = np.clip(np.round(np.asarray(h.psd_dbfs_hz, np.float64) * 100.0), -32768, 32767)
+                    row = spectra_codec.encode(h.psd_freqs_hz, h.psd_dbfs_hz, result.input, float(h.center_hz),
+                                               float(h.sample_rate_hz), float(s.usable_fraction), float(s.dc_guard_hz))
                     c.execute(
                         "INSERT INTO spectra (sweep_id, hop_index, f_start_hz, bin_hz, n_bins, psd_centi_dbfs_hz)"
                         " VALUES (?,?,?,?,?,?)",
-                        (sweep_id, int(h.index), float(f[0]), float(f[1] - f[0]), int(f.size),
-                         centi.astype("<i2").tobytes()),
+                        (sweep_id, int(h.index), row.f_start_hz, row.bin_hz, row.n_bins, row.blob),
                     )
             return int(sweep_id)
 
@@ -587,13 +598,17 @@ def read_hops(conn: sqlite3.Connection, sweep_ids: Iterable[int]) -> list[dict]:
 
 
 def read_spectra(conn: sqlite3.Connection, sweep_id: int) -> list[tuple[np.ndarray, np.ndarray]]:
-    """Kept spectra of one sweep: a list of ``(freqs_hz absolute, psd_dbfs_hz)`` per hop."""
+    """Kept spectra of one sweep: a list of ``(freqs_hz absolute, psd_dbfs_hz)`` per hop.
+
+    Rows of ``antenna`` sweeps are thinned copies (the usable span, groups of FFT bins at
+    their mean, see :mod:`survey.spectra_codec`), returned on the FFT bin grid.
+    """
     out = []
     for f0, df, n, blob in conn.execute(
         "SELECT f_start_hz, bin_hz, n_bins, psd_centi_dbfs_hz FROM spectra WHERE sweep_id=? ORDER BY hop_index",
         (int(sweep_id),),
     ):
-        out.append((f0 + df * np.arange(n), np.frombuffer(blob, dtype="<i2").astype(np.float32) / 100.0))
+        out.append(spectra_codec.decode_row(f0, df, n, blob, np.float32))
     return out
 
 

@@ -51,6 +51,7 @@ from sigmf.error import SigMFError
 from survey.dsp import SUPPORTED_DATATYPES
 from survey.errors import RecordingError
 from survey.records import IQBlock
+from survey.sources.sigmf_schema import validate_metadata
 
 #: Our own metadata namespace in SigMF files (declared in ``core:extensions``).
 NAMESPACE = "bandcensus"
@@ -282,7 +283,7 @@ def _open_with_sigmf(where: Path, verify: bool):
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")
             sf = sigmf.fromfile(str(where), skip_checksum=not verify, autoscale=False)
-            sf.validate()
+            validate_metadata({"global": sf.get_global_info(), "captures": sf.get_captures(), "annotations": sf.get_annotations()})
     except SigMFError as exc:
         if "hash" in str(exc).lower():
             raise RecordingError(

@@ -1,129 +1,210 @@
-"""Speed of the per-hop DSP on one core: raw cu8 bytes -> channel rows, against a welch baseline.
+"""Speed of the per-hop DSP on one core, each variant in a fresh process, against plain baselines.
 
 Run from the project root:  PYTHONPATH=. python tests/benchmarks/dsp_speed.py [--reps 7]
 
-Pinned to ONE core: the process is bound to a single CPU (``os.sched_setaffinity``; the
-environment variable ``DSP_BENCH_CPU`` chooses which, default the first allowed), the
-BLAS/OpenMP thread counts are set to 1 before numpy loads, and ``scipy.fft`` runs with its
-default of one worker. The work is 1 s of simulated IQ at 2.4 MS/s (10 hops of 0.1 s, cu8,
-noise plus FM stations), measured with :func:`survey.dsp.measure_hop`. The baseline does the
-same work with the PSD from ``scipy.signal.welch`` (same Hann window, segment length and
-overlap, no detrending). Prints times, x real time and the ratio; asserts nothing.
+Work: 1 s of simulated cu8 IQ at 2.4 MS/s in ten hops of 0.1 s (noise plus four FM stations
+each), FFT 2048, no overlap, the default sweep settings. Variants:
+
+* ``minimal``: the plain numpy float32 path, no reuse of memory: ``astype(float32)``,
+  ``- 127.5``, ``/ 127.5``, view as complex64, times the Hann window, ``scipy.fft.fft`` of all
+  segments, ``|X|^2``, mean over segments. The reference for how fast the PSD can be with numpy.
+* ``tool PSD``: :func:`survey.dsp.raw_averaged_psd` (the same result as ``minimal``, within
+  float32 rounding).
+* ``tool PSD+channels``: clip fraction, ``raw_averaged_psd`` and the channel powers
+  (:func:`survey.dsp.channel_power`): what a hop costs before the noise floor.
+* ``tool full hop``: :func:`survey.dsp.measure_hop` (adds the local noise floor and C/N); the
+  difference to the previous line is the cost of the floor fit.
+* ``welch``: ``to_complex64`` plus ``scipy.signal.welch`` (same window, segments, no detrend).
+
+Every measurement runs in a FRESH interpreter (``subprocess`` with ``sys.executable``), so no
+variant inherits another's allocator state, caches or FFT plans. The child binds itself to one
+CPU (``os.sched_setaffinity``; ``DSP_BENCH_CPU`` picks it, default the first allowed), sets the
+BLAS/OpenMP thread counts to 1 before numpy loads, runs the ten hops once (``first pass``: FFT
+plans, work buffers and caches are built here) and then once more (``steady pass``, the state a
+survey runs in), timing each pass on the wall clock and in CPU time of the process
+(``time.process_time``, which does not count time spent waiting for the CPU on a loaded
+machine). The variants are interleaved: every repetition runs each of them once, in a
+rotated order. Prints best and median of the repetitions in x real time and the ratio of each
+tool line to ``minimal`` (1.0 = as fast as the minimal path); asserts nothing. The machine is
+shared: the load average is printed at the start and the end.
 """
 
 from __future__ import annotations
 
+import argparse
+import json
 import os
-
-for _var in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS", "NUMEXPR_NUM_THREADS"):
-    os.environ[_var] = "1"
-if hasattr(os, "sched_setaffinity"):  # DSP_BENCH_CPU picks the core (default: the first allowed)
-    os.sched_setaffinity(0, {int(os.environ.get("DSP_BENCH_CPU", min(os.sched_getaffinity(0))))})
-
-import argparse  # noqa: E402
-import sys  # noqa: E402
-import time  # noqa: E402
-from contextlib import contextmanager  # noqa: E402
-from pathlib import Path  # noqa: E402
-
-import numpy as np  # noqa: E402
-import scipy.signal  # noqa: E402
-
-sys.path.insert(0, str(Path(__file__).resolve().parents[1]))  # tests/ for synth_signals
-import synth_signals as ss  # noqa: E402
-
-from survey import dsp  # noqa: E402
-from survey.records import SweepSettings  # noqa: E402
+import subprocess
+import sys
+import tempfile
+import time
+from pathlib import Path
 
 FS = 2.4e6
 HOP_S = 0.1
 N_HOPS = 10
+FFT = 2048
+VARIANTS = ("minimal", "tool PSD", "tool PSD+channels", "tool full hop", "welch")
+HERE = Path(__file__).resolve()
 
 
-def make_hops(seed: int = 7) -> list[tuple]:
-    """Ten cu8 blocks of 0.1 s, each with noise and four simulated FM stations."""
+def _pin() -> None:
+    for var in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS", "NUMEXPR_NUM_THREADS"):
+        os.environ[var] = "1"
+    if hasattr(os, "sched_setaffinity"):
+        os.sched_setaffinity(0, {int(os.environ.get("DSP_BENCH_CPU", min(os.sched_getaffinity(0))))})
+
+
+def make_hops(folder: Path, seed: int = 7) -> Path:
+    """Ten cu8 blocks of 0.1 s (noise and four FM stations each), saved for the children."""
+    import numpy as np
+
+    sys.path.insert(0, str(HERE.parents[1]))  # tests/ for synth_signals
+    import synth_signals as ss
+
     rng = np.random.default_rng(seed)
     n = int(FS * HOP_S)
-    hops = []
+    raws, centers, channels = [], [], []
     for k in range(N_HOPS):
         center = 88.05e6 + 1.6e6 * k
         z = ss.complex_noise(n, 0.02, rng).astype(np.complex128)
         for off in (-550e3, -150e3, 350e3, 750e3):
             z += ss.fm_broadcast(n, FS, off, float(rng.uniform(0.02, 0.3)), rng)
-        channels = [int(center + o) for o in np.arange(-750e3, 751e3, 200e3) if abs(o) > 120e3]
-        hops.append((ss.make_block(z.astype(np.complex64), center, FS, "cu8"), channels))
-    return hops
+        raws.append(ss.make_block(z.astype(np.complex64), center, FS, "cu8").raw)
+        centers.append(center)
+        channels.append([int(center + o) for o in np.arange(-750e3, 751e3, 200e3) if abs(o) > 120e3])
+    path = folder / "hops.npz"
+    np.savez(path, raw=np.stack(raws), centers=np.asarray(centers), channels=np.asarray(channels))
+    return path
 
 
-def welch_psd(samples, sample_rate_hz, fft_size=2048, overlap=dsp.DEFAULT_OVERLAP, workers=None):
-    """Baseline PSD: scipy.signal.welch with the same window and segments, fftshifted."""
-    f, p = scipy.signal.welch(samples, sample_rate_hz, window="hann", nperseg=fft_size,
-                              noverlap=int(round(overlap * fft_size)), detrend=False,
-                              return_onesided=False, scaling="density")
-    return np.fft.fftshift(f), np.fft.fftshift(p).astype(np.float32)
+def child(variant: str, data: Path) -> dict:
+    """Run one variant twice over the hops in this (fresh) process; seconds per pass."""
+    _pin()
+    import numpy as np
+    import scipy.fft
+    import scipy.signal
 
+    from survey import dsp
+    from survey.records import IQBlock, SweepSettings
 
-@contextmanager
-def psd_replaced(func):
-    saved = dsp.averaged_psd
-    dsp.averaged_psd = func
-    try:
-        yield
-    finally:
-        dsp.averaged_psd = saved
+    loaded = np.load(data)
+    raws, centers, channels = loaded["raw"], loaded["centers"], loaded["channels"]
+    settings = SweepSettings(band="benchmark")
+    blocks = [IQBlock(float(c), FS, "cu8", np.ascontiguousarray(r), "2026-03-01T00:00:00.000000Z")
+              for r, c in zip(raws, centers)]
+    window = dsp._hann(FFT)
 
+    def minimal():
+        for raw in raws:
+            f = raw.astype(np.float32)
+            f -= np.float32(127.5)
+            f *= np.float32(1.0 / 127.5)
+            z = f.view(np.complex64)
+            n = z.size // FFT
+            x = scipy.fft.fft(z[: n * FFT].reshape(n, FFT) * window, axis=-1)
+            (x.real**2 + x.imag**2).mean(axis=0)
 
-def run(hops, settings) -> list:
-    rows = []
-    for i, (block, channels) in enumerate(hops):
-        rows.extend(dsp.measure_hop(block, channels, settings, hop_index=i)[1])
-    return rows
+    def tool_psd():
+        for b in blocks:
+            dsp.raw_averaged_psd(b.raw, b.datatype, FS, FFT)
 
+    def tool_psd_channels():
+        for b, ch in zip(blocks, channels):
+            dsp.clip_fraction(b.raw, b.datatype)
+            offsets, psd = dsp.raw_averaged_psd(b.raw, b.datatype, FS, FFT)
+            dsp.channel_power(offsets, psd, ch - b.center_hz, settings.channel_bw_hz)
 
-def timed(hops, settings, reps: int) -> tuple[float, float, list]:
-    rows = run(hops, settings)  # warm caches and FFT plans
-    times = []
-    for _ in range(reps):
-        t0 = time.perf_counter()
-        run(hops, settings)
-        times.append(time.perf_counter() - t0)
-    return min(times), float(np.median(times)), rows
+    def tool_full():
+        for i, (b, ch) in enumerate(zip(blocks, channels)):
+            dsp.measure_hop(b, ch.tolist(), settings, hop_index=i)
 
+    def welch():
+        for b in blocks:
+            z = dsp.to_complex64(b.raw, b.datatype)
+            scipy.signal.welch(z, FS, window="hann", nperseg=FFT, noverlap=0, detrend=False,
+                               return_onesided=False, scaling="density")
 
-def _best(work, reps: int) -> float:
-    work()
-    times = []
-    for _ in range(reps):
-        t0 = time.perf_counter()
+    work = {"minimal": minimal, "tool PSD": tool_psd, "tool PSD+channels": tool_psd_channels,
+            "tool full hop": tool_full, "welch": welch}[variant]
+    passes, cpu = [], []
+    for _ in range(2):
+        c0, t0 = time.process_time(), time.perf_counter()
         work()
-        times.append(time.perf_counter() - t0)
-    return min(times)
+        passes.append(time.perf_counter() - t0)
+        cpu.append(time.process_time() - c0)
+    return {"first": passes[0], "steady": passes[1], "first cpu": cpu[0], "steady cpu": cpu[1]}
+
+
+def accuracy(data: Path) -> float:
+    """Largest |tool PSD - scipy.signal.welch| over all bins of the ten hops, dB."""
+    import numpy as np
+    import scipy.signal
+
+    from survey import dsp
+
+    worst = 0.0
+    for raw in np.load(data)["raw"]:
+        _, ours = dsp.raw_averaged_psd(raw, "cu8", FS, FFT)
+        _, ref = scipy.signal.welch(dsp.to_complex64(raw, "cu8"), FS, window="hann", nperseg=FFT, noverlap=0,
+                                    detrend=False, return_onesided=False, scaling="density")
+        worst = max(worst, float(np.max(np.abs(10 * np.log10(ours / np.fft.fftshift(ref))))))
+    return worst
+
+
+def _stats(values: list[float]) -> tuple[float, float]:
+    ordered = sorted(values)
+    mid = len(ordered) // 2
+    median = ordered[mid] if len(ordered) % 2 else 0.5 * (ordered[mid - 1] + ordered[mid])
+    return ordered[0], median
 
 
 def main(argv=None) -> int:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--reps", type=int, default=7)
+    parser.add_argument("--child", choices=VARIANTS, help=argparse.SUPPRESS)
+    parser.add_argument("--data", type=Path, help=argparse.SUPPRESS)
     args = parser.parse_args(argv)
-    settings = SweepSettings(band="benchmark")
-    hops = make_hops()
+    if args.child:
+        print(json.dumps(child(args.child, args.data)))
+        return 0
+    env = dict(os.environ, PYTHONPATH=os.pathsep.join([str(HERE.parents[2]), os.environ.get("PYTHONPATH", "")]))
     seconds = N_HOPS * HOP_S
-    cpus = sorted(os.sched_getaffinity(0)) if hasattr(os, "sched_getaffinity") else "?"
-    print(f"1 s of cu8 IQ at 2.4 MS/s in {N_HOPS} hops; FFT {settings.fft_size}, overlap "
-          f"{dsp.DEFAULT_OVERLAP}; CPUs allowed: {cpus}; best / median of {args.reps}")
-    ours_best, ours_med, rows = timed(hops, settings, args.reps)
-    with psd_replaced(welch_psd):
-        base_best, base_med, base_rows = timed(hops, settings, args.reps)
-    samples = [dsp.to_complex64(block.raw, block.datatype) for block, _ in hops]
-    psd_ours = _best(lambda: [dsp.averaged_psd(z, FS, settings.fft_size) for z in samples], args.reps)
-    psd_base = _best(lambda: [welch_psd(z, FS, settings.fft_size) for z in samples], args.reps)
-    worst_db = max(abs(a.power_dbfs - b.power_dbfs) for a, b in zip(rows, base_rows))
-    for name, best, med in (("survey.dsp", ours_best, ours_med), ("welch path", base_best, base_med)):
-        print(f"  {name:<11} {best * 1e3:7.1f} ms best ({seconds / best:5.1f}x real time), "
-              f"{med * 1e3:7.1f} ms median ({seconds / med:5.1f}x)")
-    print(f"  ratio (welch / ours): {base_best / ours_best:.2f}x best, {base_med / ours_med:.2f}x median")
-    print(f"  PSD step alone: {psd_ours * 1e3:.1f} ms vs welch {psd_base * 1e3:.1f} ms "
-          f"({psd_base / psd_ours:.2f}x); the rest of the hop (conversion, floor, channels) is shared")
-    print(f"  channel rows: {len(rows)}; largest power difference between paths {worst_db:.4f} dB")
+    with tempfile.TemporaryDirectory() as tmp:
+        data = make_hops(Path(tmp))
+        print(f"1 s of cu8 IQ at 2.4 MS/s in {N_HOPS} hops of {HOP_S} s; FFT {FFT}, no overlap; one CPU per child; "
+              f"{args.reps} repetitions, each variant in a fresh process, interleaved")
+        print(f"load average at start: {' '.join(f'{x:.2f}' for x in os.getloadavg())} "
+              f"({os.cpu_count()} CPUs, shared with other work)")
+        keys = ("first", "steady", "first cpu", "steady cpu")
+        times: dict[str, dict[str, list[float]]] = {v: {k: [] for k in keys} for v in VARIANTS}
+        for rep in range(args.reps):
+            order = VARIANTS[rep % len(VARIANTS):] + VARIANTS[: rep % len(VARIANTS)]
+            for variant in order:
+                out = subprocess.run([sys.executable, str(HERE), "--child", variant, "--data", str(data)],
+                                     capture_output=True, text=True, env=env, check=True)
+                result = json.loads(out.stdout.strip().splitlines()[-1])
+                for key in keys:
+                    times[variant][key].append(result[key])
+        worst_db = accuracy(data)
+    print(f"load average at end:   {' '.join(f'{x:.2f}' for x in os.getloadavg())}")
+    for clock, suffix in (("wall clock", ""), ("CPU time of the child (less sensitive to other work)", " cpu")):
+        print(f"{clock}:")
+        print(f"{'variant':<18} | {'steady pass x real time':^27} | {'first pass x real time':^27}")
+        print(f"{'':<18} | {'best':>8} {'median':>8} {'vs minimal':>9} | {'best':>8} {'median':>8} {'vs minimal':>9}")
+        ref = {key: _stats(times["minimal"][key + suffix]) for key in ("first", "steady")}
+        for variant in VARIANTS:
+            cells = []
+            for key in ("steady", "first"):
+                best, median = _stats(times[variant][key + suffix])
+                ratio = ref[key][0] / best
+                cells.append(f"{seconds / best:7.1f}x {seconds / median:7.1f}x {ratio:9.2f}")
+            print(f"{variant:<18} | {cells[0]} | {cells[1]}")
+    full = _stats(times["tool full hop"]["steady"])[0]
+    psd = _stats(times["tool PSD+channels"]["steady"])[0]
+    print(f"noise floor fit (full hop minus PSD+channels, best): {(full - psd) / N_HOPS * 1e3:.2f} ms per hop, "
+          f"{(full - psd) / full * 100:.0f} % of the full hop")
+    print(f"largest difference tool PSD vs scipy.signal.welch over all bins: {worst_db:.5f} dB")
     return 0
 
 
