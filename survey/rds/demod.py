@@ -89,39 +89,44 @@ def discriminator(z: np.ndarray, rate_hz: float) -> np.ndarray:
     return np.angle(z[1:] * np.conj(z[:-1])).astype(np.float64) * (rate_hz / (2.0 * np.pi))
 
 
-def _narrowband(mpx_spectrum: np.ndarray, rate_hz: float, weights_hz, edge_hz: float, m_out: int) -> np.ndarray:
-    """Inverse FFT (length ``m_out``) of the bins of a mixed-down spectrum within ``edge_hz`` of 0."""
-    n = mpx_spectrum.size
-    half = min(int(np.floor(edge_hz * n / rate_hz)), (m_out - 1) // 2)
+def _narrowband(mpx_spectrum: np.ndarray, n: int, rate_hz: float, centre_hz: float, weights_hz, edge_hz: float,
+                m_out: int) -> np.ndarray:
+    """Complex envelope about ``centre_hz`` of a real signal from its ``rfft`` (length ``n`` signal).
+
+    The bins within ``edge_hz`` of the centre, weighted by ``weights_hz(f - centre)``, are
+    brought back by an inverse FFT of length ``m_out``; the fraction of a bin by which the
+    centre misses the bin grid is removed afterwards by a slow rotation, so the result is the
+    signal mixed down by exactly ``centre_hz``.
+    """
+    resolution = rate_hz / n
+    k0 = int(round(centre_hz / resolution))
+    frac_hz = centre_hz - k0 * resolution
+    half = min(int(np.floor(edge_hz / resolution)) + 1, (m_out - 1) // 2)
     rel = np.arange(-half, half + 1)
     out = np.zeros(m_out, dtype=np.complex128)
-    out[rel % m_out] = mpx_spectrum[rel % n] * weights_hz(rel * rate_hz / n)
-    return scipy.fft.ifft(out) * (m_out / n)
+    out[rel % m_out] = mpx_spectrum[k0 + rel] * weights_hz(rel * resolution - frac_hz)
+    y = scipy.fft.ifft(out) * (m_out / n)
+    t = np.arange(m_out) * (n / rate_hz / m_out)
+    return y * np.exp(-2j * np.pi * frac_hz * t)
 
 
-def _mixed_spectrum(mpx: np.ndarray, rate_hz: float, freq_hz: float) -> np.ndarray:
-    t = np.arange(mpx.size, dtype=np.float64) * (2.0 * np.pi * freq_hz / rate_hz)
-    return scipy.fft.fft(mpx * np.exp(-1j * t))
-
-
-def _pilot_reference(mpx: np.ndarray, rate_hz: float, m_out: int) -> np.ndarray | None:
+def _pilot_reference(spec: np.ndarray, n: int, rate_hz: float, m_out: int) -> np.ndarray | None:
     """Unit phasor of the pilot (at the symbol grid's rate), or None when no pilot stands out."""
-    spec = _mixed_spectrum(mpx, rate_hz, PILOT_HZ)
-    n = spec.size
     resolution = rate_hz / n
     k = max(1, int(np.ceil(4.0 / resolution)))
+    kp = int(round(PILOT_HZ / resolution))
     power = np.abs(spec) ** 2
-    line = power[np.arange(-k, k + 1) % n].sum()
+    line = power[kp - k:kp + k + 1].sum()
     lo, hi = int(300.0 / resolution), int(1500.0 / resolution)
     if hi <= lo + 4:
         return None
-    near = np.concatenate([power[lo:hi], power[n - hi:n - lo]])
+    near = np.concatenate([power[kp - hi:kp - lo], power[kp + lo:kp + hi]])
     noise = float(np.mean(near)) * (2 * k + 1)
     if not line > noise * 10.0 ** (PILOT_MIN_SNR_DB / 10.0):
         return None
-    pil = _narrowband(spec, rate_hz, lambda f: np.ones_like(f), (k + 0.5) * resolution, m_out)
-    mag = np.abs(pil)
-    return pil / np.maximum(mag, 1e-30)
+    edge = (k + 0.5) * resolution
+    pil = _narrowband(spec, n, rate_hz, PILOT_HZ, lambda f: (np.abs(f) <= edge).astype(float), edge, m_out)
+    return pil / np.maximum(np.abs(pil), 1e-30)
 
 
 def _matched_weights(freq_hz: np.ndarray) -> np.ndarray:
@@ -141,9 +146,9 @@ def bits_from_multiplex(mpx: np.ndarray, rate_hz: float) -> RdsBits:
     duration = n / rate_hz
     m_out = scipy.fft.next_fast_len(int(np.ceil(duration * SAMPLES_PER_BIT / BIT_S)) + 4)
     out_rate = m_out / duration
-    spec = _mixed_spectrum(mpx, rate_hz, SUBCARRIER_HZ)
-    y = _narrowband(spec, rate_hz, _matched_weights, SHAPING_EDGE_HZ, m_out)
-    ref = _pilot_reference(mpx, rate_hz, m_out)
+    spec = scipy.fft.rfft(mpx)
+    y = _narrowband(spec, n, rate_hz, SUBCARRIER_HZ, _matched_weights, SHAPING_EDGE_HZ, m_out)
+    ref = _pilot_reference(spec, n, rate_hz, m_out)
     if ref is not None:
         y = y * np.conj(ref) ** 3
     edge = 1.5 * BIT_S

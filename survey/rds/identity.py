@@ -32,6 +32,9 @@ from survey.rds.demod import station_bits
 from survey.rds.frames import BlockSlot, find_alignment, read_slots
 
 MISSING_CHAR = "_"
+#: Consecutive checked block slots (any four in sequence, as in A-B-C-D) that confirm a PI
+#: found among them: 40 checkword bits, the same evidence as one whole group.
+RUN_BLOCKS = 4
 
 
 @dataclass(frozen=True)
@@ -141,6 +144,20 @@ def _groups(slots: Sequence[BlockSlot]) -> dict[int, list[BlockSlot]]:
     return out
 
 
+def _pi_in_runs(slots: Sequence[BlockSlot]) -> set[int]:
+    """PI codes (A or C' blocks) inside runs of ``RUN_BLOCKS`` or more consecutive checked slots."""
+    out: set[int] = set()
+    run: list[BlockSlot] = []
+    for s in [*slots, None]:
+        if s is not None and s.checks:
+            run.append(s)
+            continue
+        if len(run) >= RUN_BLOCKS:
+            out |= {b.info for b in run if b.position == 0 or b.c_prime}
+        run = []
+    return out
+
+
 def identity_from_bits(bits: np.ndarray, pilot_locked: bool = False) -> RdsResult:
     """PI, PS segments, PTY and block counts from differentially decoded RDS bits."""
     alignment = find_alignment(block_kinds_of(words_from_bits(bits)))
@@ -152,7 +169,7 @@ def identity_from_bits(bits: np.ndarray, pilot_locked: bool = False) -> RdsResul
     complete = [g for g in _groups(slots).values()
                 if len(g) == 4 and all(s.checks for s in g)]
     confirmed = {pi for pi, n in pi_blocks.items() if n >= 2}
-    confirmed |= {g[0].info for g in complete}
+    confirmed |= _pi_in_runs(slots)
     pi = next(iter(confirmed)) if len(confirmed) == 1 else None
     segments: dict[int, Counter] = {}
     ptys: Counter = Counter()
