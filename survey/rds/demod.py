@@ -85,8 +85,12 @@ def channel_from_spectrum(spectrum: np.ndarray, sample_rate_hz: float, offset_hz
 
 
 def discriminator(z: np.ndarray, rate_hz: float) -> np.ndarray:
-    """Instantaneous frequency (Hz, float64) between successive samples of ``z``."""
-    return np.angle(z[1:] * np.conj(z[:-1])).astype(np.float64) * (rate_hz / (2.0 * np.pi))
+    """Instantaneous frequency (Hz, float64) between successive samples of ``z``.
+
+    Taken circularly (sample 0 pairs with the last), so the output keeps the input's length,
+    a fast FFT length; the one wrapped sample lies in the block edge the decoder ignores.
+    """
+    return np.angle(z * np.conj(np.roll(z, 1))).astype(np.float64) * (rate_hz / (2.0 * np.pi))
 
 
 def _narrowband(mpx_spectrum: np.ndarray, n: int, rate_hz: float, centre_hz: float, weights_hz, edge_hz: float,
