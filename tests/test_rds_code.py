@@ -178,3 +178,28 @@ def test_biphase_spectrum_follows_the_shaping_and_pulse_pair():
     peak = psd.max()
     assert psd[f > 3000].max() < 1e-3 * peak
     assert psd[f < 30].max() < 0.05 * peak
+
+
+def test_subcarrier_sits_at_57_khz_in_phase_with_the_third_pilot_harmonic():
+    from survey import fm
+    from survey.rds.waveform import RdsProgramme, rds_subcarrier
+
+    fs, n = 240_000.0, 48_000  # 0.2 s: 5 Hz bins
+    t = np.arange(n) / fs
+    theta = 2 * np.pi * 19_000.0 * t + 0.7
+    x = rds_subcarrier(np.random.default_rng(1), RdsProgramme(0x1234, "ABC", 1), n, fs, 3 * theta)
+    assert 0.95 < np.abs(x).max() <= 1.0 + 1e-6  # peak r of the multiplex when r = 1
+    spec = np.abs(np.fft.rfft(x.astype(np.float64))) ** 2
+    f = np.fft.rfftfreq(n, 1 / fs)
+    assert spec[np.abs(f - 57_000) <= 2_400].sum() > 0.999 * spec.sum()
+    # coherent with cos(3 theta): the quadrature (sin) product carries no data energy
+    i_part = x * np.cos(3 * theta)
+    q_part = x * np.sin(3 * theta)
+    lowpass = np.abs(f) < 3_000
+    i_low = np.fft.irfft(np.fft.rfft(i_part) * lowpass, n)
+    q_low = np.fft.irfft(np.fft.rfft(q_part) * lowpass, n)
+    assert np.mean(q_low ** 2) < 1e-4 * np.mean(i_low ** 2)
+    # in a stereo multiplex the peak stays within the 75 kHz deviation (|mpx| <= 1, BS.450-3)
+    mpx = fm.multiplex(np.random.default_rng(2), n * 10, 2.4e6, True, rds=RdsProgramme(0x1234, "ABC", 1))
+    assert np.abs(mpx).max() <= 1.0 + 1e-6
+    assert fm.RDS_FRACTION * 75e3 == pytest.approx(3_000.0)
