@@ -118,6 +118,13 @@ def test_merge_accumulates_segments_only_under_the_confirmed_pi():
     assert tie.pi is None and tie.ps_segments == ()
 
 
+def test_results_round_trip_through_stored_columns():
+    r = RdsResult(0xE3D2, ((0, "HI"), (3, "P ")), 10, 22, 3)
+    back = RdsResult.from_columns(r.pi, r.ps_partial, r.pty, r.blocks_received, r.blocks_errored)
+    assert back == r and r.ps_partial == "HI____P "
+    assert RdsResult.from_columns(None, None, None, 0, 0) == RdsResult(None, (), None, 0, 0)
+
+
 def test_short_hops_give_pi_and_build_the_name_across_sweeps():
     # 0.1 s hops (about 119 bits: four consecutive blocks fit in about half of them)
     short = [decode_station(station_iq(90_000 + k, 30.0, 0.1), FS, OFFSET_HZ) for k in range(10)]

@@ -14,8 +14,10 @@ thousand, and no error is ever corrected):
 
 ``ps`` is the whole 8-character name, or None until all four segments are known; ``ps_partial``
 shows what is known with ``_`` for each missing character (None when nothing is known).
-Characters outside plain printable ASCII are shown as ``?`` (the RDS basic table agrees with
-ASCII for letters, digits, space and common punctuation, from memory of IEC 62106 Annex E).
+Characters outside plain printable ASCII, and ``_`` itself, are shown as ``?`` (the RDS basic
+table agrees with ASCII for letters, digits, space and common punctuation, from memory of
+IEC 62106 Annex E), so ``_`` in ``ps_partial`` always means "not yet received" and a stored
+``ps_partial`` gives the segments back (:func:`segments_from_partial`).
 """
 
 from __future__ import annotations
@@ -84,6 +86,12 @@ class RdsResult:
         """PI as four upper-case hex digits, or None."""
         return None if self.pi is None else f"{self.pi:04X}"
 
+    @classmethod
+    def from_columns(cls, rds_pi: int | None, rds_ps: str | None, rds_pty: int | None, rds_blocks: int,
+                     rds_block_errors: int) -> "RdsResult":
+        """Rebuild a result from stored columns (``rds_ps`` as :attr:`ps_partial`), for :func:`merge_rds`."""
+        return cls(rds_pi, segments_from_partial(rds_ps), rds_pty, int(rds_blocks or 0), int(rds_block_errors or 0))
+
 
 @dataclass(frozen=True)
 class RdsIdentity:
@@ -134,7 +142,15 @@ def _ps_partial(segments: dict[int, str]) -> str | None:
 
 
 def _char(code: int) -> str:
-    return chr(code) if 0x20 <= code <= 0x7D else "?"
+    return chr(code) if 0x20 <= code <= 0x7D and code != ord(MISSING_CHAR) else "?"
+
+
+def segments_from_partial(ps_partial: str | None) -> tuple[tuple[int, str], ...]:
+    """PS segments back from a stored ``ps_partial`` text (``_`` marks a missing character)."""
+    if not ps_partial:
+        return ()
+    text = str(ps_partial).ljust(8, MISSING_CHAR)[:8]
+    return tuple((s, text[2 * s:2 * s + 2]) for s in range(4) if MISSING_CHAR not in text[2 * s:2 * s + 2])
 
 
 def _groups(slots: Sequence[BlockSlot]) -> dict[int, list[BlockSlot]]:
