@@ -142,3 +142,22 @@ def test_bad_input_is_refused():
         decode_station(np.zeros(1000), FS, 0.0)
     with pytest.raises(ValueError, match="outside the hop"):
         decode_station(np.zeros(1000, np.complex64), FS, 1.5e6)
+
+
+def test_census_helpers_decode_only_strong_emissions_inside_the_hop():
+    from survey.rds.columns import STATION_COLUMNS, decode_hop_emissions, json_fields, stored_columns
+
+    iq = station_iq(4, 30.0)
+    centre = 96.0e6
+    carriers = [centre + OFFSET_HZ, centre - 100e3, centre + 480e3]
+    results = decode_hop_emissions(iq, FS, centre, carriers, [30.0, 6.0, 30.0])
+    assert results[1] is None and results[2] is None  # too weak; too near the hop edge (512 kHz)
+    cols = stored_columns(results[0])
+    assert [c for c, _ in STATION_COLUMNS] == list(cols)
+    assert cols["rds_pi"] == 0xE3D2 and cols["rds_ps"] == "HILLTOP " and cols["rds_blocks"] >= 21
+    assert stored_columns(None)["rds_blocks"] == 0
+    assert json_fields(results[0]) == {"rds_pi": "E3D2", "rds_ps": "HILLTOP ", "rds_pty": 10,
+                                       "rds_block_error_rate": 0.0}
+    merged = merge_rds([RdsResult.from_columns(**stored_columns(results[0]))])
+    assert json_fields(merged)["rds_ps"] == "HILLTOP "
+    assert json_fields(None)["rds_pi"] is None

@@ -8,6 +8,7 @@ from rich.table import Table
 from bandcensus.commands._common import echo_json, json_option
 from bandcensus.commands._tables import print_table
 from survey.rds import merge_rds
+from survey.rds.columns import json_fields
 from survey.rds.from_recording import identify_in_recording
 from survey.station_names import name_for, read_station_names
 
@@ -34,10 +35,7 @@ def command(recording, freqs_mhz, names_path, as_json):
         rows.append({
             "freq_mhz": freq_hz / 1e6,
             "captures": len(results),
-            "rds_pi": ident.pi_hex,
-            "rds_ps": ident.ps if ident.ps is not None else ident.ps_partial,
-            "rds_pty": ident.pty,
-            "rds_block_error_rate": ident.block_error_rate,
+            **json_fields(ident),
             "rds_blocks": ident.blocks_received,
             "rds_block_errors": ident.blocks_errored,
             "name": (ident.ps.strip() if ident.ps else None) or name_for(names, freq_hz),
