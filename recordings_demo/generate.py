@@ -64,7 +64,9 @@ def generate(out_dir: Path = OUT, n_sweeps: int | None = None) -> dict:
     """
     schedule = SCHEDULE if n_sweeps is None else SCHEDULE[: int(n_sweeps)]
     started = time.monotonic()
-    scene = load_scene(SCENE)
+    # The 5 ms sweeps carry no RDS (six bits per hop, nothing a decoder could use; see
+    # identification.py for the longer recordings that do): rendered without it, as always.
+    scene = load_scene(SCENE).without_rds()
     source = SimulatedSource(scene, "bare", "antenna", seed=SEED, epoch_utc=EPOCH_UTC)
     band = band_plan("europe")
     settings = SweepSettings(band=band.name, dwell_s=DWELL_S, settle_s=0.0, gain_db=scene.receiver.gain_db, ppm=0)

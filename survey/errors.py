@@ -34,3 +34,7 @@ class SceneError(SurveyError):
 
 class ScheduleError(SurveyError):
     """A schedule (duration, end time, interval, switch command) is invalid or failed."""
+
+
+class NamesFileError(SurveyError):
+    """A station names file (``freq_mhz,name`` CSV) is missing or malformed."""

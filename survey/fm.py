@@ -19,11 +19,15 @@ import numpy as np
 import scipy.fft
 
 from survey.errors import SceneError
+from survey.rds.waveform import RdsProgramme, rds_subcarrier
 
 PILOT_HZ = 19_000.0
 AUDIO_BW_HZ = 15_000.0
 PILOT_FRACTION = 0.09
 PREEMPHASIS_S = 50e-6
+#: RDS injection as a fraction of the peak deviation: 3 kHz of 75 kHz (2-4 kHz is usual
+#: practice; common practice, no source).
+RDS_FRACTION = 0.04
 
 
 def programme_audio(
@@ -71,22 +75,32 @@ def multiplex(
     stereo: bool,
     *,
     pilot_fraction: float = PILOT_FRACTION,
+    rds: RdsProgramme | None = None,
+    rds_fraction: float = RDS_FRACTION,
 ) -> np.ndarray:
     """The baseband multiplex (float32, within ``[-1, 1]``) for one station.
 
     Stereo: ``(1-p) [M + S cos(2 theta)] + p cos(theta)`` with pilot phase ``theta`` at 19 kHz and
-    ``p = pilot_fraction``; mono: ``M`` alone (no pilot).
+    ``p = pilot_fraction``; mono: ``M`` alone (no pilot). With ``rds`` the programme part is
+    scaled down by ``r = rds_fraction`` and an RDS subcarrier of peak ``r`` is added (57 kHz,
+    locked to ``3 theta`` in stereo; :mod:`survey.rds.waveform`), so the peak stays within 1.
     """
     left, right = programme_audio(rng, n, sample_rate_hz)
     mid = 0.5 * (left + right)
+    r = float(rds_fraction) if rds is not None else 0.0
     if not stereo:
-        return mid.astype(np.float32)
+        if rds is None:
+            return mid.astype(np.float32)
+        out = (1.0 - r) * mid + r * rds_subcarrier(rng, rds, n, sample_rate_hz, None)
+        return out.astype(np.float32)
     side = 0.5 * (left - right)
     theta0 = rng.uniform(0.0, 2.0 * np.pi)
     t = np.arange(n, dtype=np.float64) / sample_rate_hz
     theta = (2.0 * np.pi * PILOT_HZ * t + theta0) % (2.0 * np.pi)
     th32 = theta.astype(np.float32)
-    out = (1.0 - pilot_fraction) * (mid + side * np.cos(2.0 * th32)) + pilot_fraction * np.cos(th32)
+    out = (1.0 - pilot_fraction - r) * (mid + side * np.cos(2.0 * th32)) + pilot_fraction * np.cos(th32)
+    if rds is not None:
+        out = out + r * rds_subcarrier(rng, rds, n, sample_rate_hz, 3.0 * theta)
     return out.astype(np.float32)
 
 
@@ -99,10 +113,11 @@ def fm_phase(mpx: np.ndarray, sample_rate_hz: float, deviation_hz: float, phase0
 
 
 def station_phase(
-    rng: np.random.Generator, n: int, sample_rate_hz: float, stereo: bool, deviation_hz: float
+    rng: np.random.Generator, n: int, sample_rate_hz: float, stereo: bool, deviation_hz: float,
+    rds: RdsProgramme | None = None,
 ) -> np.ndarray:
     """Modulation phase (float64 rad, random start) of one station over ``n`` samples."""
-    mpx = multiplex(rng, n, sample_rate_hz, stereo)
+    mpx = multiplex(rng, n, sample_rate_hz, stereo, rds=rds)
     return fm_phase(mpx, sample_rate_hz, deviation_hz, rng.uniform(0.0, 2.0 * np.pi))
 
 

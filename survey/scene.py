@@ -36,7 +36,11 @@ from pathlib import Path
 import numpy as np
 
 from survey.errors import SceneError
+<<<<<<< HEAD
 from survey.trimmer import TrimmerSchedule
+=======
+from survey.rds.waveform import RdsProgramme
+>>>>>>> wip-rds
 from survey.units import T0_K, db_to_ratio, nf_db_to_k, ratio_to_db
 
 #: ITU-R P.372 median external noise: environment -> (c, d) with Fa = c - d log10(f_MHz) dB.
@@ -75,7 +79,11 @@ class Fading:
 
 @dataclass(frozen=True)
 class Station:
-    """One FM broadcast station as received at the antenna terminals."""
+    """One FM broadcast station as received at the antenna terminals.
+
+    ``rds_pi`` (16-bit code), ``rds_ps`` (up to 8 characters) and ``rds_pty`` (0..31) describe
+    the RDS it sends; all None for a station without RDS.
+    """
 
     name: str
     freq_hz: float
@@ -83,6 +91,16 @@ class Station:
     stereo: bool = True
     fading: Fading = field(default_factory=Fading)
     deviation_hz: float = 75_000.0
+    rds_pi: int | None = None
+    rds_ps: str | None = None
+    rds_pty: int | None = None
+
+    @property
+    def rds(self) -> RdsProgramme | None:
+        """What the station sends on RDS (None when it sends no RDS: ``rds_pi`` is None)."""
+        if self.rds_pi is None:
+            return None
+        return RdsProgramme(pi=self.rds_pi, ps=self.rds_ps or "", pty=self.rds_pty or 0)
 
 
 @dataclass(frozen=True)
@@ -273,6 +291,7 @@ class Scene:
             )
         return self.preamps[configuration]
 
+<<<<<<< HEAD
     @property
     def has_trimmers(self) -> bool:
         """True when some preamp's tuning changes with time."""
@@ -283,6 +302,12 @@ class Scene:
         if not self.has_trimmers:
             return self
         return replace(self, preamps={n: p.at_time(t_s) for n, p in self.preamps.items()})
+=======
+    def without_rds(self) -> "Scene":
+        """A copy in which no station sends RDS."""
+        return replace(self, stations=tuple(replace(s, rds_pi=None, rds_ps=None, rds_pty=None)
+                                            for s in self.stations))
+>>>>>>> wip-rds
 
     def with_station_levels(self, delta_db: float) -> "Scene":
         """A copy with every station level shifted by ``delta_db`` (for level sweeps)."""

@@ -8,7 +8,8 @@ bandwidth_hz, stages}``, ``gain_db``, ``nf_db``, optional ``iip3_dbm``, ``supply
 ``oscillation = {freq_hz, level_dbm}``, ``based_on = "OTHER"`` (inherit, then override) and
 ``trimmer = [{t_s, circuits = [{f0_hz, q}, ...]}, ...]`` (tuning against time, :mod:`survey.trimmer`);
 ``[[station]]`` with ``name``, ``freq_hz`` or ``freq_mhz``, ``level_dbm``, ``stereo`` and
-``fading = {time_constant_s, spread_db}``. Every malformed entry raises SceneError naming the fix.
+``fading = {time_constant_s, spread_db}``, and for a station sending RDS ``rds_pi`` (hex text),
+``rds_ps`` and ``rds_pty``. Every malformed entry raises SceneError naming the fix.
 """
 
 from __future__ import annotations
@@ -76,7 +77,30 @@ def _parse_station(t: dict, i: int) -> Station:
         stereo=bool(t.get("stereo", True)),
         fading=fading,
         deviation_hz=_num(t, "deviation_hz", where, 75_000.0, minimum=0.0),
+        **_parse_rds(t, where),
     )
+
+
+def _parse_rds(t: dict, where: str) -> dict:
+    """``rds_pi`` ("C3A1" hex text or an integer), ``rds_ps`` (<= 8 characters), ``rds_pty`` (0..31)."""
+    if "rds_pi" not in t:
+        if "rds_ps" in t or "rds_pty" in t:
+            raise SceneError(f"{where}: rds_ps or rds_pty without rds_pi; add rds_pi = \"C3A1\" (a 16-bit hex code)")
+        return {}
+    raw = t["rds_pi"]
+    try:
+        pi = int(raw, 16) if isinstance(raw, str) else int(raw)
+    except (TypeError, ValueError):
+        pi = -1
+    if isinstance(raw, bool) or not 0 <= pi <= 0xFFFF:
+        raise SceneError(f"{where}: rds_pi = {raw!r} is not a 16-bit code; write it as hex text, e.g. rds_pi = \"C3A1\"")
+    ps = str(t.get("rds_ps", ""))
+    if len(ps) > 8 or any(not 0x20 <= ord(ch) <= 0x7D or ch in "$^`" for ch in ps):
+        raise SceneError(f"{where}: rds_ps = {ps!r}; give at most 8 letters, digits, spaces or plain punctuation")
+    pty = t.get("rds_pty", 0)
+    if isinstance(pty, bool) or not isinstance(pty, int) or not 0 <= pty <= 31:
+        raise SceneError(f"{where}: rds_pty = {pty!r}; give a programme type code 0..31")
+    return {"rds_pi": pi, "rds_ps": ps, "rds_pty": pty}
 
 
 def _resolve_preamp(name: str, raw_all: dict, seen: tuple[str, ...] = ()) -> dict:

@@ -376,7 +376,7 @@ class SimulatedSource:
                 if i not in phases:
                     s = self.scene.stations[i]
                     prng = self._hop_rng(center_hz, t_s, 1000 + i)
-                    phases[i] = fm.station_phase(prng, n, fs, bool(s.stereo), float(s.deviation_hz))
+                    phases[i] = fm.station_phase(prng, n, fs, bool(s.stereo), float(s.deviation_hz), s.rds)
                 return phases[i]
 
             fsm = self._full_scale_mw()
