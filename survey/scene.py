@@ -36,11 +36,8 @@ from pathlib import Path
 import numpy as np
 
 from survey.errors import SceneError
-<<<<<<< HEAD
-from survey.trimmer import TrimmerSchedule
-=======
 from survey.rds.waveform import RdsProgramme
->>>>>>> wip-rds
+from survey.trimmer import TrimmerSchedule
 from survey.units import T0_K, db_to_ratio, nf_db_to_k, ratio_to_db
 
 #: ITU-R P.372 median external noise: environment -> (c, d) with Fa = c - d log10(f_MHz) dB.
@@ -291,7 +288,6 @@ class Scene:
             )
         return self.preamps[configuration]
 
-<<<<<<< HEAD
     @property
     def has_trimmers(self) -> bool:
         """True when some preamp's tuning changes with time."""
@@ -302,12 +298,11 @@ class Scene:
         if not self.has_trimmers:
             return self
         return replace(self, preamps={n: p.at_time(t_s) for n, p in self.preamps.items()})
-=======
+
     def without_rds(self) -> "Scene":
         """A copy in which no station sends RDS."""
         return replace(self, stations=tuple(replace(s, rds_pi=None, rds_ps=None, rds_pty=None)
                                             for s in self.stations))
->>>>>>> wip-rds
 
     def with_station_levels(self, delta_db: float) -> "Scene":
         """A copy with every station level shifted by ``delta_db`` (for level sweeps)."""
