@@ -16,8 +16,8 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from analysis.report import SECTIONS
-from analysis.report_html import write_report
+from analysis.report.build import SECTIONS
+from analysis.report.html import write_report
 from report_fixtures import ENR_DB, HOSTILE_BASE, HOSTILE_DEVICE, HOSTILE_TEST, N_CHANNELS, hostile_db, simulated_db
 
 pytestmark = pytest.mark.browser

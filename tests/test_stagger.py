@@ -13,8 +13,8 @@ import numpy as np
 import pytest
 
 from analysis.errors import BadParameterError
-from analysis.passband import TunedStage, cascade_response_db, curve_features
-from analysis.stagger import (
+from analysis.passband.fit import TunedStage, cascade_response_db, curve_features
+from analysis.passband.stagger import (
     design_stagger,
     narrowband_response_db,
     peak_gain_change_db,

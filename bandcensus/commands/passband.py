@@ -6,8 +6,8 @@ import click
 from rich.table import Table
 
 from analysis.errors import BadParameterError
-from analysis.passband_report import analyse_passband
-from analysis.passband_data import load_gain_curve, load_readings_csv
+from analysis.passband.report import analyse_passband
+from analysis.passband.data import load_gain_curve, load_readings_csv
 from bandcensus.commands._common import echo_json, json_option, parse_mhz_range
 from bandcensus.commands._tables import print_table
 
@@ -71,7 +71,7 @@ def command(db_path, base, test, points_path, target, band, source, bin_khz, as_
         target_hz = _target_from_band(band or curve.band or "europe")
     report = analyse_passband(curve, target_hz)
     if plot_path:
-        from analysis.passband_plots import plot_passband
+        from analysis.passband.plots import plot_passband
 
         plot_passband(report, plot_path)
     if as_json:

@@ -9,7 +9,7 @@ by bulk ``executemany`` inside one transaction. Build time is not the benchmark.
 Then, each in a fresh child process so that the peak resident memory
 (``resource.getrusage(RUSAGE_SELF).ru_maxrss``) belongs to that stage alone:
 
-* ``compare``: :func:`analysis.compare.compare_configurations` (goal: <= 10 s, < 1.5 GB);
+* ``compare``: :func:`analysis.compare.core.compare_configurations` (goal: <= 10 s, < 1.5 GB);
 * ``baseline``: the plain way, reading the ``channels`` rows table in Python and computing
   the per-channel median of paired C/N differences with :func:`statistics.median`
   (no interval, no test): the floor any implementation must beat.
@@ -133,7 +133,7 @@ def _cpu_s() -> float:
 
 
 def stage_compare(path: str) -> dict:
-    from analysis.compare import compare_configurations
+    from analysis.compare.core import compare_configurations
 
     t0, c0 = time.perf_counter(), _cpu_s()
     res = compare_configurations(path, "bare", "preamp-a")

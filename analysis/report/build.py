@@ -3,18 +3,18 @@
 :func:`build_report` runs the analyses the database supports for a base configuration (e.g.
 ``bare``) and a test configuration (the preamp in the chain) and returns a :class:`Report`:
 
-* the channel-by-channel comparison (:func:`analysis.compare.compare_configurations`);
+* the channel-by-channel comparison (:func:`analysis.compare.core.compare_configurations`);
 * the passband fit, its coverage of a target band and a stagger plan
-  (:func:`analysis.passband_data.load_gain_curve`, :func:`analysis.passband_report.analyse_passband`);
-* noise figures and the outside noise beside ITU-R P.372 (:func:`analysis.noise_workflow.analyse_noise`);
-* the fault diagnosis (:func:`analysis.diagnose.diagnose`);
+  (:func:`analysis.passband.data.load_gain_curve`, :func:`analysis.passband.report.analyse_passband`);
+* noise figures and the outside noise beside ITU-R P.372 (:func:`analysis.noise.workflow.analyse_noise`);
+* the fault diagnosis (:func:`analysis.diagnose.core.diagnose`);
 * the overnight series read straight from the store (hop floors, channel matrices);
 * the run settings and whether the data are SIMULATED.
 
 A section whose data do not exist is replaced by one line, ``not available: <reason>``, the
 reason being the message of the :class:`~analysis.errors.AnalysisError` the analysis raised
 (which names the run that would supply the data). Nothing here draws or writes HTML:
-:mod:`analysis.report_plots` draws, :mod:`analysis.report_html` renders.
+:mod:`analysis.report.plots` draws, :mod:`analysis.report.html` renders.
 """
 
 from __future__ import annotations
@@ -26,25 +26,17 @@ from pathlib import Path
 import numpy as np
 
 from analysis.channel_stats import masked_cn_db, utc_to_epoch_s
-from analysis.compare import Comparison, compare_configurations
-from analysis.diagnose import Diagnosis, diagnose, summarise_findings
+from analysis.compare.core import Comparison
+from analysis.diagnose.core import Diagnosis
 from analysis.errors import AnalysisError, BadParameterError, NoDataError
-from analysis.noise_workflow import NoiseResult, analyse_noise
-from analysis.passband import check_target
-from analysis.passband_report import PassbandReport, analyse_passband
-from analysis.passband_data import load_gain_curve
-from bandcensus import __version__
-from survey.store import (
-    ChannelMatrix,
-    SweepRow,
-    list_runs,
-    list_sweeps,
-    open_for_reading,
-    read_channel_matrix,
-    read_events,
-    read_hops,
-    utc_now,
-)
+from analysis.noise.arithmetic import EnrTable
+from analysis.noise.workflow import NoiseResult
+from analysis.passband.fit import check_target
+from analysis.passband.report import PassbandReport
+from analysis.selection import Survey, as_survey
+from analysis.workflows import NoiseOptions, assess, gain_curve_for, noise_for, passband_for
+from survey.store import ChannelMatrix, EventRow, HopRow, RunRow, SweepRow, utc_now
+from survey.version import __version__
 
 #: Section keys in page order, with their headings.
 SECTIONS = (
@@ -89,14 +81,14 @@ class OvernightSeries:
     """What the store holds over time for the two configurations (antenna input).
 
     ``base`` / ``test`` are the channel matrices of each configuration's sweeps in time order;
-    ``hops`` the hop rows of all those sweeps with a ``configuration`` key added;
+    ``hops`` the hop rows of all those sweeps, each with its configuration label;
     ``strongest_hz`` / ``weakest_hz`` the received stations with the highest and lowest median
     C/N (None when no station was received).
     """
 
     base: ChannelMatrix
     test: ChannelMatrix
-    hops: tuple[dict, ...] = field(repr=False)
+    hops: tuple[tuple[HopRow, str], ...] = field(repr=False)
     strongest_hz: int | None
     weakest_hz: int | None
 
@@ -117,18 +109,18 @@ class OvernightSeries:
 class RunSettings:
     """Settings of the runs and sweeps the report rests on.
 
-    ``runs`` are rows of :func:`survey.store.list_runs`; ``sweep_settings`` lists
+    ``runs`` are :class:`survey.store.RunRow` records; ``sweep_settings`` lists
     ``(name, value)`` pairs of the distinct sweep settings; ``simulated_because`` the reasons
     the data count as SIMULATED (empty: measured).
     """
 
-    runs: tuple[dict, ...]
+    runs: tuple[RunRow, ...]
     sweep_settings: tuple[tuple[str, str], ...]
     sweep_counts: tuple[tuple[str, str, int], ...]
     first_utc: str | None
     last_utc: str | None
     simulated_because: tuple[str, ...]
-    events: tuple[dict, ...] = ()
+    events: tuple[EventRow, ...] = ()
 
     @property
     def simulated(self) -> bool:
@@ -201,23 +193,23 @@ _SWEEP_FIELDS = (
 _SCALE = {"channel_bw_hz": 1e-3, "sample_rate_hz": 1e-6, "dwell_s": 1e3, "settle_s": 1e3, "dc_guard_hz": 1e-3}
 
 
-def _simulated_reasons(runs: list[dict], sweeps: list[SweepRow]) -> list[str]:
+def _simulated_reasons(runs: list[RunRow], sweeps: list[SweepRow]) -> list[str]:
     out = []
     for r in runs:
-        device = r["device"] if isinstance(r["device"], str) else repr(r["device"])
-        if r["source_kind"] == "simulated":
-            out.append(f"run {r['id']} is a simulation (source kind 'simulated', seed {r['seed']})")
-        elif "simulated" in f"{device} {r['notes']}".lower():
-            out.append(f"run {r['id']} ({r['source_kind']}) replays recordings marked simulated")
+        device = r.device if isinstance(r.device, str) else repr(r.device)
+        if r.source_kind == "simulated":
+            out.append(f"run {r.id} is a simulation (source kind 'simulated', seed {r.seed})")
+        elif "simulated" in f"{device} {r.notes}".lower():
+            out.append(f"run {r.id} ({r.source_kind}) replays recordings marked simulated")
     if any("simulated" in (s.notes or "").lower() for s in sweeps):
         out.append("sweep notes mark the data as simulated")
     return out
 
 
-def read_settings(conn, sweeps: list[SweepRow]) -> RunSettings:
+def read_settings(survey: Survey, sweeps: list[SweepRow]) -> RunSettings:
     """Runs, distinct sweep settings, sweep counts, time span and events of ``sweeps``."""
     run_ids = sorted({s.run_id for s in sweeps})
-    runs = [r for r in list_runs(conn) if r["id"] in run_ids]
+    runs = [r for r in survey.runs() if r.id in run_ids]
     pairs = []
     for name, what, unit in _SWEEP_FIELDS:
         values = sorted({getattr(s, name) for s in sweeps}, key=lambda v: (v is None, str(v)))
@@ -229,7 +221,7 @@ def read_settings(conn, sweeps: list[SweepRow]) -> RunSettings:
     for s in sweeps:
         counts[(s.configuration, s.input)] = counts.get((s.configuration, s.input), 0) + 1
     times = sorted(s.started_utc for s in sweeps)
-    events = [e for rid in run_ids for e in read_events(conn, rid)]
+    events = [e for rid in run_ids for e in survey.events(rid)]
     return RunSettings(
         runs=tuple(runs), sweep_settings=tuple(pairs),
         sweep_counts=tuple((c, i, n) for (c, i), n in sorted(counts.items())),
@@ -238,7 +230,7 @@ def read_settings(conn, sweeps: list[SweepRow]) -> RunSettings:
     )
 
 
-def read_overnight(conn, base_rows: list[SweepRow], test_rows: list[SweepRow]) -> OvernightSeries:
+def read_overnight(survey: Survey, base_rows: list[SweepRow], test_rows: list[SweepRow]) -> OvernightSeries:
     """Channel matrices and hop floors of the two configurations, in time order.
 
     Raises :class:`NoDataError` when either configuration has no sweeps of the input.
@@ -247,12 +239,10 @@ def read_overnight(conn, base_rows: list[SweepRow], test_rows: list[SweepRow]) -
         lack = [r for r, rows in (("base", base_rows), ("test", test_rows)) if not rows]
         raise NoDataError(f"no antenna sweeps of the {' and '.join(lack)} configuration to follow over time; "
                           "record antenna sweeps of both")
-    mat_b = read_channel_matrix(conn, [r.id for r in base_rows])
-    mat_t = read_channel_matrix(conn, [r.id for r in test_rows])
+    mat_b = survey.channel_matrix(base_rows)
+    mat_t = survey.channel_matrix(test_rows)
     label = {r.id: r.configuration for r in base_rows + test_rows}
-    hops = []
-    for h in read_hops(conn, list(label)):
-        hops.append({**h, "configuration": label[h["sweep_id"]]})
+    hops = [(h, label[h.sweep_id]) for h in survey.hops(list(label))]
     strongest = weakest = None
     common = np.intersect1d(mat_b.freqs_hz, mat_t.freqs_hz)
     cn = np.concatenate([masked_cn_db(mat_b)[:, np.searchsorted(mat_b.freqs_hz, common)],
@@ -303,62 +293,40 @@ def _mhz_list(freqs_hz, limit: int = 8) -> str:
 def preamp_verdict(comparison: Comparison) -> str:
     """One-sentence verdict on the test configuration from the verdict counts.
 
-    Stations that are better or newly received are set against stations worse or lost (our own
-    rule, stated on the page): more of the first and a median change of at least zero is
-    "helps"; the reverse is "hurts"; anything else is "mixed".
+    Items helped or gained are set against items hurt or lost (our own rule, stated on the
+    page): more of the first is "helps", more of the second "hurts", anything else "mixed";
+    undetermined items count for neither.
     """
-    n = comparison.summary["verdict_counts"]
-    up, down = n["improved"] + n["gained"], n["worse"] + n["lost"]
-    med = comparison.summary.get("median_delta_cn_db")
-    counts = (f"{n['improved']} better, {n['worse']} worse, {n['unchanged']} unchanged, "
-              f"{n['gained']} gained, {n['lost']} lost")
+    n = comparison.summary
+    unit = comparison.unit
+    up, down = n["helped"] + n["gained"], n["hurt"] + n["lost"]
+    counts = (f"{n['helped']} helped, {n['hurt']} hurt, {n['gained']} gained, {n['lost']} lost, "
+              f"{n['unchanged']} unchanged, {n['undetermined']} undetermined {unit}s")
     if up == 0 and down == 0:
-        return f"'{comparison.test}' makes no measurable difference to any station ({counts})."
-    if up > down and (med is None or med >= 0):
+        return f"'{comparison.test}' makes no difference that the intervals can show ({counts})."
+    if up > down:
         return f"On balance '{comparison.test}' helps: {counts}."
-    if down > up and (med is None or med <= 0):
+    if down > up:
         return f"On balance '{comparison.test}' makes reception worse: {counts}."
     return f"The result of '{comparison.test}' is mixed: {counts}."
 
 
 def summary_lines(report_parts: dict, unavailable: dict[str, str] | None = None) -> list[str]:
-    """Plain-words lines for the top of the page (stations gained/lost, median change, verdict,
-    main finding, passband, noise); ``unavailable`` gives the reason a comparison is missing."""
+    """Plain-words lines for the top of the page: the shared headlines (:mod:`analysis.headline`),
+    then the passband and the noise figures; ``unavailable`` gives the reason a comparison is missing."""
     lines: list[str] = []
-    cmp_: Comparison | None = report_parts.get("comparison")
-    if cmp_ is None and unavailable and "channels" in unavailable:
-        lines.append("No per-channel comparison: " + unavailable["channels"].removeprefix("not available: ") + ".")
-    if cmp_ is not None:
-        s = cmp_.summary
-        lines.append(preamp_verdict(cmp_))
-        gained, lost = s["gained_hz"], s["lost_hz"]
-        lines.append(
-            f"Stations received: {s['received_base']} with '{cmp_.base}', {s['received_test']} with "
-            f"'{cmp_.test}' ({s['received_both']} with both). "
-            + (f"Gained {len(gained)} ({_mhz_list(gained)}). " if gained else "No station gained. ")
-            + (f"Lost {len(lost)} ({_mhz_list(lost)})." if lost else "No station lost.")
-        )
-        med, gain = s["median_delta_cn_db"], s["median_gain_db"]
-        if med is not None:
-            lines.append(
-                f"Median change in SNR (C/N) over the stations received with both: {med:+.1f} dB "
-                f"(median gain {gain:+.1f} dB); usable (SNR at least {s['usable_cn_db']:g} dB): "
-                f"{s['usable_base']} before, {s['usable_test']} after."
-            )
-        lines.append(f"Noise: {s['noise_source']}.")
-    diag: Diagnosis | None = report_parts.get("diagnosis")
-    if diag is not None:
-        if diag.findings:
-            worst = sorted(diag.findings, key=lambda f: ("info", "warning", "problem").index(f.severity),
-                           reverse=True)[0]
-            lines.append(f"Main finding: {summarise_findings([worst])[0]}"
-                         + (f" ({len(diag.findings)} findings in all)." if len(diag.findings) > 1 else "."))
-        else:
-            lines.append("Main finding: no clipping, intermodulation, oscillation or added noise found.")
+    assessment = report_parts.get("assessment")
+    if assessment is None and unavailable and "channels" in unavailable:
+        lines.append("No comparison: " + unavailable["channels"].removeprefix("not available: ") + ".")
+    if assessment is not None:
+        lines += list(assessment.headlines)
+        lines.append(preamp_verdict(assessment.comparison))
     pb: PassbandReport | None = report_parts.get("passband")
     if pb is not None:
         text = pb.verdict()
         lines.append(text[:1].upper() + text[1:] + ".")
+    elif unavailable and "passband" in unavailable:
+        lines.append("Passband: " + unavailable["passband"].removeprefix("not available: ") + ".")
     nr: NoiseResult | None = report_parts.get("noise")
     if nr is not None:
         s = nr.summary
@@ -373,8 +341,6 @@ def summary_lines(report_parts: dict, unavailable: dict[str, str] | None = None)
             env = s.get("closest_environment")
             bits.append(f"outside noise Fa {s['outside_fa_db']:.1f} dB"
                         + (f", closest to the ITU-R P.372 '{env}' curve" if env else ""))
-        if s.get("max_possible_improvement_db") is not None:
-            bits.append(f"no preamp could improve SNR by more than {s['max_possible_improvement_db']:.1f} dB here")
         if bits:
             lines.append("Noise figures: " + "; ".join(bits) + ".")
     return lines
@@ -386,10 +352,11 @@ def _assumptions(cmp_, pb, nr, diag) -> list[tuple[str, tuple[str, ...]]]:
         t = cmp_.thresholds
         out.append(("Comparison", (
             f"Method: {cmp_.method}.",
-            f"Improved if {t['improved_if']}; worse if {t['worse_if']}.",
-            f"Usable FM reception taken as SNR of at least {t['usable_cn_db']:g} dB ({t['usable_cn_db_source']}).",
-            f"A channel counts as received by a configuration when at least "
-            f"{100 * t['received_if_fraction_at_least']:g} % of its sweeps received it.",
+            f"Improved if {t['improved_if']}; worse if {t['worse_if']}; unchanged if {t['unchanged_if']}; "
+            f"undetermined if {t['undetermined_if']}.",
+            f"Gained if {t['gained_if']}; lost: {t['lost_if']}.",
+            (f"Listenable: mono from C/N {cmp_.summary['listenable']['mono_cn_db']:g} dB, stereo from "
+             f"{cmp_.summary['listenable']['stereo_cn_db']:g} dB ({cmp_.summary['listenable']['source']})."),
             *cmp_.warnings,
         )))
     if pb is not None:
@@ -411,22 +378,23 @@ def _assumptions(cmp_, pb, nr, diag) -> list[tuple[str, tuple[str, ...]]]:
 
 
 def build_report(
-    db_path: str | Path,
+    source: Survey | str | Path,
     base: str,
     test: str,
     *,
     target_hz: tuple[float, float] | None = None,
     enr_db: float | None = None,
+    enr_table: EnrTable | None = None,
+    cold_k: float = 290.0,
     input: str = "antenna",
     seed: int = 0,
-    n_boot: int = 2000,
 ) -> Report:
     """Run every analysis the database supports for ``test`` against ``base``.
 
     Parameters
     ----------
-    db_path : str or Path
-        Survey database.
+    source : Survey or path
+        The survey (or its database file).
     base, test : str
         Configuration labels without and with the preamp.
     target_hz : (float, float), optional
@@ -436,8 +404,10 @@ def build_report(
         Noise source ENR, dB, for noise-hot/noise-cold sweeps.
     input : str
         Input label of the sweeps compared (default ``antenna``).
-    seed, n_boot : int
-        Seed and replicates of the bootstrap and fits.
+    enr_table, cold_k
+        ENR table instead of ``enr_db``; physical temperature of the termination, K.
+    seed : int
+        Seed of the fits.
 
     Raises
     ------
@@ -453,56 +423,56 @@ def build_report(
         raise BadParameterError(f"--base and --test are both {base!r}; give the label without and the label with the preamp")
     if target_hz is not None:
         target_hz = check_target(*target_hz)
-    conn = open_for_reading(db_path)
+    survey, opened = as_survey(source)
     try:
-        all_rows = {lab: list_sweeps(conn, configuration=lab) for lab in (base, test)}
-        for lab, rows in all_rows.items():
-            if not rows:
-                present = sorted({r.configuration for r in list_sweeps(conn)})
-                raise NoDataError(f"no complete sweeps of configuration {lab!r} in {db_path}; configurations "
-                                  f"present: {', '.join(present) or 'none'}; check the spelling")
-        settings = read_settings(conn, all_rows[base] + all_rows[test])
+        survey.require([base, test])
+        all_rows = {lab: list(survey.find_sweeps(lab)) for lab in (base, test)}
+        settings = read_settings(survey, all_rows[base] + all_rows[test])
         unavailable: dict[str, str] = {}
         try:
-            series = read_overnight(conn, [r for r in all_rows[base] if r.input == input],
+            series = read_overnight(survey, [r for r in all_rows[base] if r.input == input],
                                     [r for r in all_rows[test] if r.input == input])
         except AnalysisError as exc:
             series, unavailable["overnight"] = None, _not_available(exc)
-    finally:
-        conn.close()
-
-    cmp_ = pb = nr = diag = None
-    try:
-        cmp_ = compare_configurations(db_path, base, test, input=input, seed=seed, n_boot=n_boot,
-                                      noise_options=None if enr_db is None else {"enr_db": enr_db})
-    except AnalysisError as exc:
-        unavailable["channels"] = _not_available(exc)
-    target_note = "target band as given"
-    try:
-        curve = load_gain_curve(db_path, base, test)
-        if target_hz is None:
-            target_hz, target_note = default_target_hz(all_rows[base] + all_rows[test], cmp_, curve.freqs_hz)
-        if target_hz is None:
-            raise BadParameterError(target_note)
-        pb = analyse_passband(curve, target_hz, seed=seed)
-    except AnalysisError as exc:
-        unavailable["passband"] = _not_available(exc)
-    try:
-        nr = analyse_noise(db_path, base, test, enr_db=enr_db)
-        if not _measured_noise(nr):
+        options = NoiseOptions(enr_db=enr_db, enr_table=enr_table, cold_k=cold_k)
+        cmp_ = pb = nr = diag = assessment = None
+        try:
+            assessment = assess(survey, base, test, options=options, seed=seed, input=input, target_hz=target_hz)
+            cmp_, nr, diag = assessment.comparison, assessment.noise, assessment.diagnosis
+            if assessment.diagnosis is None:
+                unavailable["trouble"] = assessment.diagnosis_note
+            if nr is None:
+                unavailable["noise"] = f"not available: {assessment.noise_note}"
+        except AnalysisError as exc:
+            unavailable["channels"] = _not_available(exc)
+        if nr is None and "noise" not in unavailable:
+            nr, why = noise_for(survey, base, test, options)
+            if nr is None:
+                unavailable["noise"] = f"not available: {why}"
+        if nr is not None and not _measured_noise(nr):
             why = [a for a in nr.assumptions if a.startswith("no ")]
             unavailable["noise"] = ("not available: no noise figure or outside noise could be measured"
                                     + (": " + "; ".join(why) if why else ""))
             nr = None
-    except AnalysisError as exc:
-        unavailable["noise"] = _not_available(exc)
-    try:
-        diag = diagnose(db_path, base, test, enr_db=enr_db, seed=seed)
-    except AnalysisError as exc:
-        unavailable["trouble"] = _not_available(exc)
-    parts = {"comparison": cmp_, "passband": pb, "noise": nr, "diagnosis": diag}
+        target_note = "target band as given"
+        curve, why = gain_curve_for(survey, base, test)
+        if target_hz is None:
+            target_hz, target_note = default_target_hz(all_rows[base] + all_rows[test], cmp_,
+                                                       curve.freqs_hz if curve is not None else np.zeros(0))
+        try:
+            if target_hz is None:
+                raise BadParameterError(target_note)
+            pb, reason = passband_for(survey, base, test, target_hz, seed=seed)
+            if pb is None:
+                unavailable["passband"] = f"not available: {reason}"
+        except AnalysisError as exc:
+            unavailable["passband"] = _not_available(exc)
+    finally:
+        if opened:
+            survey.close()
+    parts = {"assessment": assessment, "passband": pb, "noise": nr}
     return Report(
-        db_path=str(db_path), base=base, test=test, input=input, generated_utc=utc_now(),
+        db_path=str(survey.db_path), base=base, test=test, input=input, generated_utc=utc_now(),
         tool_version=__version__, target_hz=target_hz, target_note=target_note, enr_db=enr_db,
         comparison=cmp_, passband=pb, noise=nr, diagnosis=diag, series=series, settings=settings,
         unavailable=unavailable, summary=tuple(summary_lines(parts, unavailable)),

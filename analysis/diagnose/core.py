@@ -29,61 +29,18 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 from analysis.errors import BadParameterError, NoDataError
+from analysis.diagnose import checks
+from analysis.diagnose import lines as lines_mod
+from analysis.diagnose import noise_checks as diagnose_noise
+from analysis.diagnose.data import gain_model, hop_rows, spill_channels, summarise_channels
+from analysis.findings import KINDS, SEVERITIES, Finding
+from analysis.noise.workflow import NoiseResult
+from analysis.passband.data import GainCurve
+from analysis.selection import Survey, as_survey
 
-#: Kinds of finding, in the order they are reported.
-KINDS = ("clipping", "intermodulation", "oscillation", "added-noise")
-#: Severities, mildest first.
-SEVERITIES = ("info", "warning", "problem")
 #: Default clipping threshold: fraction of 8-bit samples at the rails per hop (common practice,
 #: no source).
 DEFAULT_CLIP_THRESHOLD = 1e-4
-
-
-@dataclass(frozen=True)
-class Finding:
-    """One fault named with its evidence.
-
-    Parameters
-    ----------
-    kind : str
-        One of :data:`KINDS`.
-    freq_hz : float or None
-        Where it is (Hz); None for a broadband finding.
-    severity : str
-        ``"info"``, ``"warning"`` or ``"problem"``.
-    evidence : dict
-        Numbers, with their unit in the key (``_hz``, ``_db``, ``_dbfs``, ``_k``, ``_fraction``,
-        ``_count``).
-    advice : str
-        One or two sentences on what to do.
-    """
-
-    kind: str
-    freq_hz: float | None
-    severity: str
-    evidence: dict
-    advice: str
-
-    def __post_init__(self) -> None:
-        if self.kind not in KINDS:
-            raise BadParameterError(f"unknown finding kind {self.kind!r}; use one of {', '.join(KINDS)}")
-        if self.severity not in SEVERITIES:
-            raise BadParameterError(f"unknown severity {self.severity!r}; use one of {', '.join(SEVERITIES)}")
-
-    def to_dict(self) -> dict:
-        """JSON-ready dict (non-finite numbers become None)."""
-        def clean(v):
-            if isinstance(v, float) and not math.isfinite(v):
-                return None
-            return v
-
-        return {
-            "kind": self.kind,
-            "freq_hz": None if self.freq_hz is None else clean(float(self.freq_hz)),
-            "severity": self.severity,
-            "evidence": {k: clean(float(v)) if isinstance(v, (int, float)) else v for k, v in self.evidence.items()},
-            "advice": self.advice,
-        }
 
 
 @dataclass(frozen=True)
@@ -147,15 +104,18 @@ def summarise_findings(findings) -> list[str]:
 
 
 def diagnose(
-    db_path: str | Path,
+    source: Survey | str | Path,
     base: str,
     test: str,
     *,
+    gain_curve: GainCurve | None = None,
+    gain_curve_note: str = "no preamp gain curve was given",
+    receiver_noise: NoiseResult | None = None,
+    receiver_noise_note: str = "",
     attenuated: str | None = None,
     attenuation_db: float | None = None,
     clip_threshold: float = DEFAULT_CLIP_THRESHOLD,
     receiver_nf_db: float | None = None,
-    enr_db: float | None = None,
     ambient_k: float = 290.0,
     seed: int = 0,
 ) -> Diagnosis:
@@ -163,10 +123,16 @@ def diagnose(
 
     Parameters
     ----------
-    db_path : str or Path
-        Survey database.
+    source : Survey or path
+        The survey (or its database file).
     base, test : str
         Configuration labels without and with the preamp.
+    gain_curve, gain_curve_note
+        The preamp's gain against frequency (:func:`analysis.passband.data.load_gain_curve`,
+        computed once by the caller), or None with the reason in ``gain_curve_note``.
+    receiver_noise, receiver_noise_note
+        The receiver's noise workflow result (for its noise temperature), or None with the
+        reason (may be empty).
     attenuated : str, optional
         Label of sweeps of the test chain through a known attenuator at its input.
     attenuation_db : float, optional
@@ -175,9 +141,7 @@ def diagnose(
         Fraction of samples at the rails per hop above which a hop counts as clipping.
     receiver_nf_db : float, optional
         Receiver noise figure, dB, to express added noise in kelvin exactly; otherwise taken
-        from the noise workflow when ``enr_db`` and noise-source sweeps of ``base`` exist.
-    enr_db : float, optional
-        Noise source ENR (dB) for that workflow.
+        from ``receiver_noise``.
     ambient_k : float
         Physical temperature of the termination, K.
     seed : int
@@ -190,12 +154,6 @@ def diagnose(
     BadParameterError
         Inconsistent options.
     """
-    from analysis import diagnose_checks as checks
-    from analysis import diagnose_lines as lines_mod
-    from analysis import diagnose_noise
-    from analysis.diagnose_data import gain_model, hop_rows, spill_channels, summarise_channels
-    from survey.store import list_sweeps, open_for_reading
-
     if base == test:
         raise BadParameterError(f"--base and --test are both {base!r}; give the label without and the label with the preamp")
     if (attenuated is None) != (attenuation_db is None):
@@ -207,30 +165,24 @@ def diagnose(
     findings: list[Finding] = []
     checked: list[str] = []
     notes: list[str] = []
-    conn = open_for_reading(db_path)
+    survey, opened = as_survey(source)
     try:
-        for label in (base, test) + ((attenuated,) if attenuated else ()):
-            if not list_sweeps(conn, configuration=label):
-                present = sorted({r.configuration for r in list_sweeps(conn)})
-                raise NoDataError(
-                    f"no complete sweeps with configuration {label!r}; the database holds: "
-                    f"{', '.join(present) or 'nothing'}"
-                )
+        survey.require([base, test, attenuated])
         # 1. clipping
-        f1, c1, n1 = checks.check_clipping(hop_rows(conn, test), hop_rows(conn, base), clip_threshold, test, base)
+        f1, c1, n1 = checks.check_clipping(hop_rows(survey, test), hop_rows(survey, base), clip_threshold, test, base)
         findings += f1; checked += c1; notes += n1
         # channel summaries of the antenna input
-        b_ant = summarise_channels(conn, base, "antenna")
-        t_ant = summarise_channels(conn, test, "antenna")
-        a_ant = summarise_channels(conn, attenuated, "antenna") if attenuated else None
+        b_ant = summarise_channels(survey, base, "antenna")
+        t_ant = summarise_channels(survey, test, "antenna")
+        a_ant = summarise_channels(survey, attenuated, "antenna") if attenuated else None
         images: list[checks.ImageMatch] = []
         if b_ant is not None and t_ant is not None:
             images = checks.find_images(b_ant, t_ant)
         exclude = [m.freq_hz for m in images] + (spill_channels(b_ant) if b_ant is not None else [])
-        gain, gain_note = gain_model(db_path, base, test, exclude_hz=exclude)
+        gain, gain_note = gain_model(gain_curve, gain_curve_note, exclude_hz=exclude)
         notes.append(gain_note)
         # 3. narrow lines in kept spectra (any input kept in the test configuration)
-        search = lines_mod.spectral_lines(conn, base, test, b_ant)
+        search = lines_mod.spectral_lines(survey, base, test, b_ant)
         # 2. intermodulation (and the channel-level evidence for an oscillation)
         if b_ant is not None and t_ant is not None:
             f2, c2, n2, leftover = checks.check_intermodulation(
@@ -244,11 +196,12 @@ def diagnose(
         findings += f3; checked += c3; notes += n3
         # 4. added noise
         f4, c4, n4 = diagnose_noise.check_added_noise(
-            conn, db_path, base, test, gain, receiver_nf_db=receiver_nf_db, enr_db=enr_db,
-            ambient_k=ambient_k, seed=seed)
+            survey, base, test, gain, receiver_nf_db=receiver_nf_db, receiver_noise=receiver_noise,
+            receiver_noise_note=receiver_noise_note, ambient_k=ambient_k, seed=seed)
         findings += f4; checked += c4; notes += n4
     finally:
-        conn.close()
+        if opened:
+            survey.close()
     if any(f.kind == "clipping" for f in findings):
         weak = [f for f in findings if f.kind == "oscillation" and "line_freq_hz" not in f.evidence]
         for f in weak:

@@ -21,9 +21,10 @@ from pathlib import Path
 
 import numpy as np
 
-from analysis import noise as nz
+from analysis.noise import arithmetic as nz
 from analysis.errors import MismatchError, NoDataError
-from survey.store import SweepRow, list_sweeps, open_for_reading, read_channel_matrix, read_hops
+from analysis.selection import Survey, as_survey
+from survey.store import SweepRow
 from survey.units import db_to_ratio, ratio_to_db
 
 #: Inputs whose sweeps carry noise measurements.
@@ -120,7 +121,7 @@ def _make_group(cfg: str, inp: str, sweeps: list[SweepRow], power_dbfs: np.ndarr
 
 
 def read_input_groups(
-    db_path: str | Path, labels: list[str], inputs: tuple[str, ...] = NOISE_INPUTS
+    source: Survey | str | Path, labels: list[str], inputs: tuple[str, ...] = NOISE_INPUTS
 ) -> tuple[np.ndarray, dict[tuple[str, str], InputGroup]]:
     """Average every complete sweep of each (label, input) present, on one frequency axis.
 
@@ -129,29 +130,29 @@ def read_input_groups(
     :class:`MismatchError` when one group mixes receiver gains or channel bandwidths, and
     ``StoreError`` when the database cannot be read.
     """
-    conn = open_for_reading(db_path)
+    survey, opened = as_survey(source)
     try:
         found: dict[tuple[str, str], list[SweepRow]] = {}
         for cfg in labels:
             for inp in inputs:
-                rows = list_sweeps(conn, configuration=cfg, input=inp)
+                rows = survey.find_sweeps(cfg, inp)
                 if rows:
-                    found[(cfg, inp)] = rows
-        for cfg in labels:
-            if not any(k[0] == cfg for k in found):
-                present = sorted({s.configuration for s in list_sweeps(conn)})
-                raise NoDataError(
-                    f"no complete antenna, terminated or noise-source sweeps of configuration '{cfg}' in "
-                    f"{db_path}; configurations present: {', '.join(present) or 'none'}"
-                )
-        ids = [s.id for rows in found.values() for s in rows]
-        matrix = read_channel_matrix(conn, ids)
+                    found[(cfg, inp)] = list(rows)
+        missing = [cfg for cfg in labels if not any(k[0] == cfg for k in found)]
+        if missing:
+            raise NoDataError(
+                f"no complete antenna, terminated or noise-source sweeps of configuration "
+                f"{', '.join(repr(m) for m in missing)} in {survey.db_path}; it holds: {survey.present()}"
+            )
+        every = [s for rows in found.values() for s in rows]
+        matrix = survey.channel_matrix(every)
         clip: dict[int, float] = {}
-        for h in read_hops(conn, ids):
-            if h["clip_fraction"] is not None:
-                clip[h["sweep_id"]] = max(clip.get(h["sweep_id"], 0.0), float(h["clip_fraction"]))
+        for h in survey.hops([s.id for s in every]):
+            if h.clip_fraction is not None:
+                clip[h.sweep_id] = max(clip.get(h.sweep_id, 0.0), float(h.clip_fraction))
     finally:
-        conn.close()
+        if opened:
+            survey.close()
     groups, row = {}, 0
     with np.errstate(invalid="ignore", divide="ignore"):
         for key, rows in found.items():

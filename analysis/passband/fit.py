@@ -367,8 +367,11 @@ def fit_passband(
     relative: bool = False,
     floor_offset: bool = False,
     seed: int = 0,
+    circuits: int | None = None,
 ) -> PassbandFit:
     """Fit cascaded tuned circuits (n = 1..``max_circuits``) to a gain curve; choose n by BIC.
+
+    Pure and cheap enough for a live tuning display (milliseconds for tens of points).
 
     Parameters
     ----------
@@ -388,6 +391,8 @@ def fit_passband(
         receiver's own noise). The result then describes ``H`` alone (``floor_ratio = r``).
     seed : int
         Seed of the random starting points (results are deterministic for a given seed).
+    circuits : int, optional
+        The number of tuned circuits when it is known (1..3): only that many are fitted.
 
     Returns
     -------
@@ -421,11 +426,14 @@ def fit_passband(
     n_pts = f.size
     results = []  # (shape, n, k, params, rms, crit, residuals)
     sync_params: dict[int, np.ndarray] = {}
-    for n in range(1, max_circuits + 1):
+    if circuits is not None and not 1 <= circuits <= MAX_CIRCUITS:
+        raise BadParameterError(f"circuits must be 1..{MAX_CIRCUITS}, got {circuits}")
+    counts = range(1, max_circuits + 1) if circuits is None else range(circuits, circuits + 1)
+    for n in counts:
         shapes = ["synchronous"] if n == 1 else ["synchronous", "general"]
         for shape in shapes:
             k = (3 if shape == "synchronous" else 2 * n + 1) + int(floor_offset)
-            if n_pts < k + 2 and not (n == 1):
+            if n_pts < k + 2 and not (n == (circuits or 1)):
                 continue
             p, _cost = _fit_one(shape, n, f, g, w, fref, rng, sync_params.get(n), floor_offset)
             if shape == "synchronous":
@@ -442,7 +450,7 @@ def fit_passband(
         best = min(admissible, key=lambda r: (round(r[5], 9), r[2], r[1]))
         criterion = "BIC"
     else:
-        best = next(r for r in results if r[1] == 1)
+        best = next(r for r in results if r[1] == (circuits or 1))
         need = 3 + int(floor_offset) + 2
         criterion = f"none (only {n_pts} points: single circuit assumed; BIC needs at least {need})"
     shape, n, k, p, rms, _crit, resid = best
@@ -486,6 +494,40 @@ def fit_passband(
         notes=tuple(notes),
         floor_ratio=floor_ratio,
     )
+
+
+# ------------------------------------------------------------------------------------ trust
+#: Fewest gain points a fit must have before it is headlined.
+MIN_TRUSTED_POINTS = 5
+#: A fit is trusted while its residual rms stays under this multiple of the points' median
+#: standard uncertainty (a reduced chi-square near 4 already says the model misses the data).
+MAX_RESIDUAL_TO_SIGMA = 2.0
+#: Residual rms (dB) always allowed: real circuits differ from the ideal tuned-circuit model and
+#: a floor-rise curve carries the floor estimator's bias near stations, neither of which is in
+#: the points' statistical uncertainty (common practice, no source).
+MODEL_ALLOWANCE_DB = 0.5
+
+
+def fit_trust(fit: PassbandFit, sigma_db: np.ndarray | Sequence[float]) -> tuple[bool, str]:
+    """Whether a fit may be headlined: ``(trusted, reason when not)``.
+
+    Not trusted with fewer than :data:`MIN_TRUSTED_POINTS` points, with a circuit's Q on a fit
+    bound (:data:`Q_MIN`, :data:`Q_MAX`), or with residuals (rms, dB) above the fit's stated
+    uncertainty: :data:`MAX_RESIDUAL_TO_SIGMA` times the median standard uncertainty of the
+    points, or :data:`MODEL_ALLOWANCE_DB` if larger. Pure and cheap: a live display may call it
+    on every update.
+    """
+    if fit.n_points < MIN_TRUSTED_POINTS:
+        return False, f"only {fit.n_points} gain points (a fit needs at least {MIN_TRUSTED_POINTS})"
+    if any(s.q >= Q_MAX * 0.999 or s.q <= Q_MIN * 1.001 for s in fit.stages):
+        return False, "a circuit's Q sits on its fit bound, so the data do not constrain it"
+    sig = np.asarray(sigma_db, dtype=np.float64)
+    sig = sig[np.isfinite(sig)]
+    allowed = max(MAX_RESIDUAL_TO_SIGMA * (float(np.median(sig)) if sig.size else 0.0), MODEL_ALLOWANCE_DB)
+    if fit.residual_rms_db > allowed:
+        return False, (f"residuals of {fit.residual_rms_db:.2f} dB rms exceed the fit's stated uncertainty of "
+                       f"{allowed:.2f} dB: the model does not describe the data")
+    return True, ""
 
 
 # -------------------------------------------------------------------------------- coverage

@@ -29,9 +29,10 @@ from numpy.typing import ArrayLike
 from scipy.interpolate import PchipInterpolator
 
 from analysis.errors import BadParameterError, MissingInputError
-from analysis import noise as nz
-from analysis import outside_noise as p372
-from analysis.db_helpers import check_same_setting, read_input_groups
+from analysis.noise import arithmetic as nz
+from analysis.noise import outside as p372
+from analysis.noise.groups import check_same_setting, read_input_groups
+from analysis.selection import Survey
 from survey.units import T0_K, db_to_ratio, k_to_nf_db, nf_db_to_k, ratio_to_db
 
 #: Summary medians are taken over channels whose gain is within this of the passband peak, dB.
@@ -118,7 +119,7 @@ POINT_KEYS = (
 
 
 def analyse_noise(
-    db_path: str | Path,
+    source: "Survey | str | Path",
     receiver: str,
     system: str | None = None,
     *,
@@ -133,13 +134,13 @@ def analyse_noise(
 
     Parameters
     ----------
-    db_path : str or Path
-        Survey database.
+    source : Survey or path
+        The survey (or its database file).
     receiver, system : str
         Configuration labels of the receiver alone and of preamp + receiver (``system`` may
         be None for receiver-only workflows).
     enr_db, enr_table
-        Noise source ENR (dB): flat, or an :class:`~analysis.noise.EnrTable` (not both);
+        Noise source ENR (dB): flat, or an :class:`~analysis.noise.arithmetic.EnrTable` (not both);
         needed when noise-hot/noise-cold sweeps are used.
     enr_uncertainty_db : float
         Standard uncertainty of the ENR, dB (fully correlated across the band).
@@ -170,7 +171,7 @@ def analyse_noise(
             f"receiver and system are both '{receiver}'; give the label of the preamp configuration as the system"
         )
     labels = [receiver] + ([system] if system else [])
-    freqs, groups = read_input_groups(db_path, labels)
+    freqs, groups = read_input_groups(source, labels)
     m = freqs.size
     nan = np.full(m, np.nan)
     g = {(("rx" if c == receiver else "sys"), i): grp for (c, i), grp in groups.items()}
@@ -196,12 +197,15 @@ def analyse_noise(
         if hot is not None:
             check_same_setting(hot, cold, "a Y-factor")
             y_ok[who] = True
+    if y_ok and enr_db is None and enr_table is None:
+        # partial inputs give what they can: the terminated and outside-noise parts go on
+        assumptions.append(
+            "noise-hot/noise-cold sweeps are present but the noise source's excess noise ratio was not given, so "
+            "the Y-factor parts were skipped: give --enr-db (flat) or --enr-table (CSV freq_mhz,enr_db)"
+        )
+        y_ok = {}
+        g = {k: v for k, v in g.items() if k[1] not in ("noise-hot", "noise-cold")}
     if y_ok:
-        if enr_db is None and enr_table is None:
-            raise MissingInputError(
-                "noise-hot/noise-cold sweeps need the noise source's excess noise ratio: give --enr-db "
-                "(flat) or --enr-table (CSV freq_mhz,enr_db)"
-            )
         vals["enr"] = np.full(m, float(enr_db)) if enr_table is None else enr_table.at(freqs)
         sigs["enr"] = np.full(m, float(enr_uncertainty_db))
         src = f"flat {enr_db:g} dB" if enr_table is None else f"table {enr_table.source}"

@@ -1,4 +1,4 @@
-"""Render a :class:`analysis.report.Report` as one self-contained HTML file.
+"""Render a :class:`analysis.report.build.Report` as one self-contained HTML file.
 
 The page needs nothing but itself: the style sheet is inline, figures are PNG ``data:`` URIs,
 there is no script, font or link to fetch, and a Content-Security-Policy meta tag forbids any
@@ -19,8 +19,9 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Iterable, Mapping
 
+from analysis.diagnose.core import summarise_findings
 from analysis.errors import BadParameterError
-from analysis.report import SECTIONS, Report, build_report
+from analysis.report.build import SECTIONS, Report, build_report
 
 _CSS = """
 :root { --ink: #1d1d1b; --muted: #55554f; --rule: #b9b6ad; --band: #f1efe8; --warn: #7a3b00; }
@@ -131,8 +132,6 @@ def _summary(r: Report) -> str:
 
 
 def _trouble(r: Report) -> str:
-    from analysis.diagnose import summarise_findings
-
     parts = []
     if r.diagnosis is None:
         parts.append(_na(r, "trouble"))
@@ -149,10 +148,10 @@ def _trouble(r: Report) -> str:
                      "</tr></thead><tbody>" + "".join(rows) + "</tbody></table>")
     if r.comparison is not None and r.comparison.warnings:
         parts.append("<h3>Settings that differ between the configurations</h3>" + _items(r.comparison.warnings))
-    events = [ev for ev in r.settings.events if ev["kind"] not in ("stop",)]
+    events = [ev for ev in r.settings.events if ev.kind not in ("stop",)]
     if events:
-        rows = "".join(f"<tr><td>{e(_utc(ev['utc']))}</td><td>{e(ev['run_id'])}</td><td>{e(ev['kind'])}</td>"
-                       f"<td>{e(ev['message'])}</td></tr>" for ev in events)
+        rows = "".join(f"<tr><td>{e(_utc(ev.utc))}</td><td>{e(ev.run_id)}</td><td>{e(ev.kind)}</td>"
+                       f"<td>{e(ev.message)}</td></tr>" for ev in events)
         parts.append('<table class="events"><caption>Events logged during the runs (gaps, receiver errors, '
                      "clock jumps)</caption><thead><tr><th>UTC</th><th>run</th><th>kind</th><th>message</th>"
                      f"</tr></thead><tbody>{rows}</tbody></table>")
@@ -317,13 +316,13 @@ def _settings(r: Report) -> str:
                  f"<th>input</th><th class=\"num\">sweeps</th></tr></thead><tbody>{counts}</tbody></table>")
     rows = []
     for run in st.runs:
-        recs = run["settings"].get("recordings", []) if isinstance(run["settings"], dict) else []
+        recs = run.settings.get("recordings", []) if isinstance(run.settings, dict) else []
         extra = "" if not recs else f"{len(recs)} recording(s): " + ", ".join(Path(str(p)).name for p in recs[:6]) + (
             " …" if len(recs) > 6 else "")
-        rows.append(f"<tr><td class=\"num\">{e(run['id'])}</td><td>{e(run['source_kind'])}</td>"
-                    f"<td>{e(_device(run['device']))}</td><td>{e(run['tool_version'])}</td>"
-                    f"<td>{e('-' if run['seed'] is None else run['seed'])}</td><td>{e(_utc(run['started_utc']))}</td>"
-                    f"<td>{e(run['status'])}</td><td>{e(run['notes'])}{'<br>' if run['notes'] and extra else ''}"
+        rows.append(f"<tr><td class=\"num\">{e(run.id)}</td><td>{e(run.source_kind)}</td>"
+                    f"<td>{e(_device(run.device))}</td><td>{e(run.tool_version)}</td>"
+                    f"<td>{e('-' if run.seed is None else run.seed)}</td><td>{e(_utc(run.started_utc))}</td>"
+                    f"<td>{e(run.status)}</td><td>{e(run.notes)}{'<br>' if run.notes and extra else ''}"
                     f"{e(extra)}</td></tr>")
     parts.append('<table class="runs"><caption>Runs</caption><thead><tr><th class="num">run</th><th>source</th>'
                  "<th>receiver / device</th><th>tool version</th><th>seed</th><th>started (UTC)</th><th>status</th>"
@@ -339,7 +338,7 @@ def render_html(report: Report, figures: Mapping[str, str]) -> str:
     """The whole page as one string (UTF-8 text; no external resource of any kind).
 
     ``figures`` maps figure keys to ``data:image/...`` URIs (see
-    :func:`analysis.report_plots.render_figures`); a figure missing from it is left out.
+    :func:`analysis.report.plots.render_figures`); a figure missing from it is left out.
     """
     r = report
     body = {
@@ -390,15 +389,17 @@ def write_report(
     *,
     target_hz: tuple[float, float] | None = None,
     enr_db: float | None = None,
+    enr_table=None,
+    cold_k: float = 290.0,
     input: str = "antenna",
     seed: int = 0,
 ) -> WrittenReport:
     """Build the report and write it to ``out_path`` (an ``.html`` file, replaced atomically).
 
     Raises :class:`BadParameterError` for an output name that is not ``.html``/``.htm``, and
-    whatever :func:`analysis.report.build_report` raises.
+    whatever :func:`analysis.report.build.build_report` raises.
     """
-    from analysis.report_plots import render_figures
+    from analysis.report.plots import render_figures
 
     out = Path(out_path)
     if out.suffix.lower() not in (".html", ".htm"):
@@ -406,7 +407,8 @@ def write_report(
     if out.is_dir():
         raise BadParameterError(f"{out} is a folder; give a file name such as report.html")
     started = time.monotonic()
-    report = build_report(db_path, base, test, target_hz=target_hz, enr_db=enr_db, input=input, seed=seed)
+    report = build_report(db_path, base, test, target_hz=target_hz, enr_db=enr_db, enr_table=enr_table,
+                          cold_k=cold_k, input=input, seed=seed)
     page = render_html(report, render_figures(report))
     out.parent.mkdir(parents=True, exist_ok=True)
     tmp = out.with_name(out.name + ".part")

@@ -14,7 +14,7 @@ from analysis.errors import AnalysisError
 
 
 def plot_passband(report, path: str | Path, title: str | None = None) -> Path:
-    """Draw ``report`` (an :class:`analysis.passband.PassbandReport`) to a PNG at ``path``.
+    """Draw ``report`` (an :class:`analysis.passband.fit.PassbandReport`) to a PNG at ``path``.
 
     The stagger plan's exact response is drawn at the fitted peak gain plus its peak-gain change
     (the cost of the wider band at a fixed gain-bandwidth per stage).

@@ -1,4 +1,4 @@
-"""The checks behind :func:`analysis.diagnose.diagnose`: clipping, intermodulation, IQ images, lines.
+"""The checks behind :func:`analysis.diagnose.core.diagnose`: clipping, intermodulation, IQ images, lines.
 
 Every check returns ``(findings, checked, notes)``: the findings, one line per check saying
 what was looked at with its numbers, and caveats.
@@ -23,7 +23,7 @@ Methods
   strong carriers (third-order intercept law ``P_IM3 = 2 P1 + P2 - 2 IIP3``, so ``3 P - 2 IIP3``
   for equal tones). Through a known attenuator of ``X`` dB ahead of the preamp a carrier drops
   by ``X`` and a third-order product by ``3X``.
-* **Narrow lines** (:mod:`analysis.diagnose_lines`): kept spectra are searched for lines that
+* **Narrow lines** (:mod:`analysis.diagnose.lines`): kept spectra are searched for lines that
   hold nearly all their channel's excess power in a few bins.
 """
 
@@ -35,8 +35,9 @@ from dataclasses import dataclass
 import numpy as np
 import scipy.special
 
-from analysis.diagnose import Finding
-from analysis.diagnose_data import ChannelSummary, GainModel, raster_step_hz
+from analysis.findings import Finding
+from analysis.diagnose.data import ChannelSummary, GainModel, raster_step_hz
+from survey.store import HopRow
 from survey.units import ratio_to_db
 
 #: A channel is unexplained when it rose by more than the gain plus this, dB.
@@ -76,18 +77,18 @@ def suggested_gain_reduction_db(max_fraction: float, threshold: float) -> float:
     return float(max(3.0, math.ceil(need)))
 
 
-def _worst_per_hop(hops: list[dict]) -> dict[tuple[str, float], float]:
+def _worst_per_hop(hops: list[tuple[HopRow, str]]) -> dict[tuple[str, float], float]:
     worst: dict[tuple[str, float], float] = {}
-    for h in hops:
-        cf = h.get("clip_fraction")
+    for h, input_label in hops:
+        cf = h.clip_fraction
         if cf is None:
             continue
-        key = (h["input"], float(h["center_hz"]))
+        key = (input_label, float(h.center_hz))
         worst[key] = max(worst.get(key, 0.0), float(cf))
     return worst
 
 
-def check_clipping(test_hops: list[dict], base_hops: list[dict], threshold: float, test: str, base: str):
+def check_clipping(test_hops: list[tuple[HopRow, str]], base_hops: list[tuple[HopRow, str]], threshold: float, test: str, base: str):
     """Hops of ``test`` whose clip fraction exceeds ``threshold`` (see the module docstring)."""
     findings, checked, notes = [], [], []
     worst = _worst_per_hop(test_hops)

@@ -1,8 +1,8 @@
 """Figures of the HTML report, as PNG bytes and ``data:`` URIs (nothing is fetched by the page).
 
 The comparison, passband and noise figures are drawn by their own analyses' plot helpers
-(:func:`analysis.compare_plots.plot_comparison`, :func:`analysis.passband_plots.plot_passband`,
-:func:`analysis.noise_plots.plot_noise`); this module adds the overnight figures:
+(:func:`analysis.compare.plots.plot_comparison`, :func:`analysis.passband.plots.plot_passband`,
+:func:`analysis.noise.plots.plot_noise`); this module adds the overnight figures:
 
 * the noise floor of every hop against time (``hops.floor_dbfs_hz``) and the SNR (C/N) of the
   strongest and weakest received stations against time, base and test apart;
@@ -23,7 +23,7 @@ from pathlib import Path
 import numpy as np
 
 from analysis.channel_stats import masked_cn_db, utc_to_epoch_s
-from analysis.report import OvernightSeries, Report
+from analysis.report.build import OvernightSeries, Report
 
 _BLUE = "#0072B2"
 _VERMILION = "#D55E00"
@@ -75,7 +75,7 @@ def _save(fig) -> bytes:
 
 def comparison_png(report: Report) -> bytes:
     """SNR both ways, the change with intervals, gain and noise rise (the comparison's own figure)."""
-    from analysis.compare_plots import plot_comparison
+    from analysis.compare.plots import plot_comparison
 
     cmp_ = replace(report.comparison, base=mpl_text(report.base), test=mpl_text(report.test))
     return _via_file(lambda p: plot_comparison(cmp_, p, dpi=REPORT_DPI))
@@ -83,14 +83,14 @@ def comparison_png(report: Report) -> bytes:
 
 def passband_png(report: Report) -> bytes:
     """Measured passband, fit, target band and stagger plan (the passband analysis's figure)."""
-    from analysis.passband_plots import plot_passband
+    from analysis.passband.plots import plot_passband
 
     return _via_file(lambda p: plot_passband(report.passband, p))
 
 
 def noise_png(report: Report) -> bytes:
     """Noise figures against frequency and Fa beside ITU-R P.372 (the noise analysis's figure)."""
-    from analysis.noise_plots import plot_noise
+    from analysis.noise.plots import plot_noise
 
     nr = replace(report.noise, receiver=mpl_text(report.noise.receiver),
                  system=None if report.noise.system is None else mpl_text(report.noise.system))
@@ -120,19 +120,19 @@ def overnight_png(series: OvernightSeries, base: str, test: str) -> bytes:
     fig = _figure()(figsize=(10, 6.6), layout="constrained")
     ax_f, ax_c = fig.subplots(2, 1, sharex=True)
     styles = {base: (_BLUE, "o", "white", "--"), test: (_VERMILION, "s", _VERMILION, "-")}
-    clock = _Clock(utc_to_epoch_s([h["started_utc"] for h in series.hops]
+    clock = _Clock(utc_to_epoch_s([h.started_utc for h, _ in series.hops]
                                   + list(series.base.started_utc) + list(series.test.started_utc)))
     for label, role in ((base, "base"), (test, "test")):
         colour, marker, face, dash = styles[label]
-        hops = [h for h in series.hops if h["configuration"] == label]
+        hops = [h for h, cfg in series.hops if cfg == label]
         if hops:
-            t = clock(utc_to_epoch_s([h["started_utc"] for h in hops]))
-            floor = np.asarray([h["floor_dbfs_hz"] for h in hops], np.float64)
+            t = clock(utc_to_epoch_s([h.started_utc for h in hops]))
+            floor = np.asarray([h.floor_dbfs_hz for h in hops], np.float64)
             ax_f.plot(t, floor, linestyle="none", marker=marker, markersize=3, color=colour,
                       markerfacecolor=face, alpha=0.6, label=f"{role}: {mpl_text(label)}, each hop")
-            sweeps = sorted({h["sweep_id"] for h in hops})
-            med_t = [np.median(t[[h["sweep_id"] == s for h in hops]]) for s in sweeps]
-            med_f = [np.median(floor[[h["sweep_id"] == s for h in hops]]) for s in sweeps]
+            sweeps = sorted({h.sweep_id for h in hops})
+            med_t = [np.median(t[[h.sweep_id == s for h in hops]]) for s in sweeps]
+            med_f = [np.median(floor[[h.sweep_id == s for h in hops]]) for s in sweeps]
             ax_f.plot(med_t, med_f, linestyle=dash, color=colour, linewidth=1.4,
                       label=f"{role}: median over the hops of each sweep")
     ax_f.set_ylabel("hop noise floor, dBFS/Hz")

@@ -2,8 +2,8 @@
 
 Everything is read through the read helpers of :mod:`survey.store` plus two small readers
 here (:func:`read_channel_hop_centers`, :func:`read_spectra_for`), and the preamp gain through
-the passband modules (:func:`analysis.passband_data.load_gain_curve`,
-:func:`analysis.passband.fit_passband`).
+the passband modules (:func:`analysis.passband.data.load_gain_curve`,
+:func:`analysis.passband.fit.fit_passband`).
 
 Averaging over sweeps is in linear power: ``P`` and ``N`` are the means of the sweeps' channel
 power and noise; the signal-only power is ``S = P - N``. A channel is *received* when it was
@@ -12,14 +12,16 @@ received in at least half of the sweeps.
 
 from __future__ import annotations
 
-import sqlite3
 from dataclasses import dataclass, field
 from typing import Sequence
 
 import numpy as np
 
 from analysis.errors import AnalysisError, NoDataError
-from survey.store import SweepRow, list_sweeps, read_channel_matrix, read_hops
+from analysis.passband.data import SOURCE_FLOOR, SOURCE_STATIONS, GainCurve
+from analysis.passband.fit import fit_passband
+from analysis.selection import Survey
+from survey.store import HopRow, SweepRow
 from survey.units import db_to_ratio, ratio_to_db
 
 #: Relative uncertainty of a channel's noise estimate N used to bound an unseen signal: the
@@ -81,26 +83,6 @@ def raster_step_hz(freqs_hz: np.ndarray) -> float:
     return float(d.min()) if d.size else 100_000.0
 
 
-def read_channel_hop_centers(conn: sqlite3.Connection, sweep_id: int) -> tuple[np.ndarray, np.ndarray]:
-    """Each channel of a sweep with the centre of the hop it was measured in: ``(freqs_hz, centers_hz)``."""
-    rows = conn.execute(
-        "SELECT c.freq_hz, h.center_hz FROM channels c JOIN hops h"
-        " ON h.sweep_id = c.sweep_id AND h.hop_index = c.hop_index WHERE c.sweep_id = ? ORDER BY c.freq_hz",
-        (int(sweep_id),),
-    ).fetchall()
-    if not rows:
-        return np.zeros(0, np.int64), np.zeros(0)
-    arr = np.asarray(rows, dtype=np.float64)
-    return arr[:, 0].astype(np.int64), arr[:, 1]
-
-
-def read_spectra_for(conn: sqlite3.Connection, sweep_id: int) -> list[dict]:
-    """Kept spectra of one sweep with hop centre and sample rate (see the passband reader)."""
-    from analysis.passband_data import read_spectra_with_hops
-
-    return read_spectra_with_hops(conn, sweep_id)
-
-
 def _mean_lin(values_db: np.ndarray) -> np.ndarray:
     lin = np.asarray(db_to_ratio(values_db.astype(np.float64)))
     cnt = np.sum(np.isfinite(lin), axis=0)
@@ -108,16 +90,16 @@ def _mean_lin(values_db: np.ndarray) -> np.ndarray:
     return np.where(cnt > 0, total / np.maximum(cnt, 1), np.nan)
 
 
-def summarise_channels(conn: sqlite3.Connection, configuration: str, input: str) -> ChannelSummary | None:
+def summarise_channels(survey: Survey, configuration: str, input: str) -> ChannelSummary | None:
     """Average the complete sweeps of ``configuration`` with ``input``; None when there are none."""
-    rows = list_sweeps(conn, configuration=configuration, input=input)
+    rows = survey.find_sweeps(configuration, input)
     if not rows:
         return None
-    m = read_channel_matrix(conn, [r.id for r in rows])
+    m = survey.channel_matrix(rows)
     power = _mean_lin(m.power_dbfs)
     noise = _mean_lin(m.noise_dbfs)
     received = m.received.sum(axis=0) * 2 >= len(rows)
-    f_c, centers = read_channel_hop_centers(conn, rows[0].id)
+    f_c, centers = survey.channel_hop_centers(rows[0].id)
     hop_c = np.full(m.freqs_hz.size, np.nan)
     if f_c.size:
         pos = np.searchsorted(m.freqs_hz, f_c)
@@ -127,14 +109,10 @@ def summarise_channels(conn: sqlite3.Connection, configuration: str, input: str)
                           received, hop_c)
 
 
-def hop_rows(conn: sqlite3.Connection, configuration: str) -> list[dict]:
-    """Hop rows (with the sweep's input label added) of every complete sweep of ``configuration``."""
-    rows = list_sweeps(conn, configuration=configuration)
-    by_id = {r.id: r for r in rows}
-    out = read_hops(conn, list(by_id))
-    for h in out:
-        h["input"] = by_id[h["sweep_id"]].input
-    return out
+def hop_rows(survey: Survey, configuration: str) -> list[tuple[HopRow, str]]:
+    """Hop rows of every complete sweep of ``configuration``, each with its sweep's input label."""
+    by_id = {r.id: r for r in survey.find_sweeps(configuration)}
+    return [(h, by_id[h.sweep_id].input) for h in survey.hops(list(by_id))]
 
 
 def spill_channels(summary: ChannelSummary) -> list[int]:
@@ -160,7 +138,7 @@ class GainModel:
     """Preamp gain ``G(f)`` (dB) of ``test`` over ``base`` for the fault checks.
 
     ``source`` names the data (``noise-source`` or ``stations``, from the passband engineer's
-    :func:`~analysis.passband_data.load_gain_curve`) and ``method`` how values between points
+    :func:`~analysis.passband.data.load_gain_curve`) and ``method`` how values between points
     are obtained (``tuned-circuit fit`` or ``interpolation``). ``points_*`` are the gain points
     used after outliers (IQ images, products) were set aside.
     """
@@ -185,28 +163,24 @@ class GainModel:
 
 
 def _fit_points(f: np.ndarray, g: np.ndarray, w: np.ndarray):
-    from analysis.passband import fit_passband
-
     try:
         return fit_passband(f, g, weights=w)
     except AnalysisError:
         return None
 
 
-def gain_model(db_path, base: str, test: str, exclude_hz: Sequence[float] = ()) -> tuple[GainModel | None, str]:
-    """Gain of ``test`` over ``base`` from noise-source sweeps or stations; ``(model, note)``.
+def gain_model(curve: GainCurve | None, why_none: str = "no preamp gain curve was given",
+               exclude_hz: Sequence[float] = ()) -> tuple[GainModel | None, str]:
+    """Gain of the preamp from its measured gain curve (noise-source sweeps or stations); ``(model, note)``.
 
-    ``exclude_hz`` are channels known not to follow their own frequency's gain (IQ images, the
-    spill of a station into its neighbours); for station data they are dropped before the
-    tuned-circuit fit, as are points more than 3 dB off a first fit. A noise-floor
+    ``curve`` comes from :func:`analysis.passband.data.load_gain_curve` (None: ``why_none``
+    says why). ``exclude_hz`` are channels known not to follow their own frequency's gain
+    (IQ images, the spill of a station into its neighbours); for station data they are dropped
+    before the tuned-circuit fit, as are points more than 3 dB off a first fit. A noise-floor
     shape (relative) is not a gain and gives ``None``.
     """
-    from analysis.passband_data import SOURCE_FLOOR, SOURCE_STATIONS, load_gain_curve
-
-    try:
-        curve = load_gain_curve(db_path, base, test)
-    except NoDataError as exc:
-        return None, f"no preamp gain could be measured ({exc})"
+    if curve is None:
+        return None, f"no preamp gain could be measured ({why_none})"
     if curve.source == SOURCE_FLOOR or curve.relative:
         return None, ("only the noise-floor rise is available, which is not the gain; record antenna sweeps "
                       "with stations received in both configurations, or noise-hot/noise-cold sweeps")

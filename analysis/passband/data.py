@@ -21,14 +21,14 @@ Sources, best first (each needs sweeps of both configurations, ``base`` without 
 Hand readings (``freq_mhz,level_db`` CSV, relative levels such as a generator and an
 oscilloscope give) are ``"readings"``, normalised to their peak.
 
-The database is read through the read helpers of :mod:`survey.store` plus one reader here
-(:func:`read_spectra_with_hops`) that also returns each hop's centre and sample rate.
+The database is read through a :class:`~analysis.selection.Survey` (typed read helpers of
+:mod:`survey.store`, each selection read once).
 """
 
 from __future__ import annotations
 
 import csv
-import sqlite3
+import warnings
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Sequence
@@ -36,7 +36,8 @@ from typing import Sequence
 import numpy as np
 
 from analysis.errors import BadParameterError, MismatchError, NoDataError
-from survey.store import SweepRow, list_sweeps, open_for_reading, read_channel_matrix
+from analysis.selection import Survey, as_survey
+from survey.store import SweepRow
 from survey.units import db_to_ratio, ratio_to_db
 
 SOURCE_NOISE = "noise-source"
@@ -152,27 +153,6 @@ def load_readings_csv(path: str | Path) -> GainCurve:
 # ------------------------------------------------------------------------------- database
 
 
-def read_spectra_with_hops(conn: sqlite3.Connection, sweep_id: int) -> list[dict]:
-    """Kept spectra of one sweep with their hop's centre, sample rate and sample count.
-
-    Returns dicts ``{hop_index, center_hz, sample_rate_hz, n_samples, freqs_hz, psd_dbfs_hz}``
-    (absolute frequencies, PSD in dBFS/Hz), in hop order.
-    """
-    out = []
-    for hop, f0, df, n, blob, fc, fs, ns in conn.execute(
-        "SELECT s.hop_index, s.f_start_hz, s.bin_hz, s.n_bins, s.psd_centi_dbfs_hz, h.center_hz,"
-        " h.sample_rate_hz, h.n_samples FROM spectra s JOIN hops h"
-        " ON h.sweep_id = s.sweep_id AND h.hop_index = s.hop_index WHERE s.sweep_id = ? ORDER BY s.hop_index",
-        (int(sweep_id),),
-    ):
-        out.append({
-            "hop_index": int(hop), "center_hz": float(fc), "sample_rate_hz": float(fs), "n_samples": int(ns),
-            "freqs_hz": f0 + df * np.arange(n),
-            "psd_dbfs_hz": np.frombuffer(blob, dtype="<i2").astype(np.float64) / 100.0,
-        })
-    return out
-
-
 @dataclass(frozen=True)
 class _Binned:
     """Linear PSD averaged into common bins, with the number of periodograms per bin."""
@@ -181,26 +161,26 @@ class _Binned:
     n_avg: np.ndarray
 
 
-def _bin_spectra(conn, sweeps: Sequence[SweepRow], edges_hz: np.ndarray) -> _Binned | None:
+def _bin_spectra(survey: Survey, sweeps: Sequence[SweepRow], edges_hz: np.ndarray) -> _Binned | None:
     total = np.zeros(edges_hz.size - 1)
     count = np.zeros(edges_hz.size - 1)
     n_avg = np.zeros(edges_hz.size - 1)
     found = False
     for sw in sweeps:
-        for hop in read_spectra_with_hops(conn, sw.id):
-            f = hop["freqs_hz"]
-            d = np.abs(f - hop["center_hz"])
-            keep = (d <= sw.usable_fraction * hop["sample_rate_hz"] / 2.0) & (d >= sw.dc_guard_hz)
+        for hop in survey.hop_spectra(sw.id):
+            f = hop.freqs_hz
+            d = np.abs(f - hop.center_hz)
+            keep = (d <= sw.usable_fraction * hop.sample_rate_hz / 2.0) & (d >= sw.dc_guard_hz)
             if not keep.any():
                 continue
             found = True
             idx = np.searchsorted(edges_hz, f[keep], side="right") - 1
             ok = (idx >= 0) & (idx < total.size)
-            lin = np.asarray(db_to_ratio(hop["psd_dbfs_hz"][keep][ok]))
+            lin = np.asarray(db_to_ratio(hop.psd_dbfs_hz[keep][ok]))
             np.add.at(total, idx[ok], lin)
             np.add.at(count, idx[ok], 1.0)
             # averaged periodograms behind each bin value (non-overlapped segments, lower bound)
-            np.add.at(n_avg, idx[ok], max(hop["n_samples"] // max(sw.fft_size, 1), 1))
+            np.add.at(n_avg, idx[ok], max(hop.n_samples // max(sw.fft_size, 1), 1))
     if not found:
         return None
     with np.errstate(invalid="ignore", divide="ignore"):
@@ -252,22 +232,19 @@ def _mean_linear(values_db: np.ndarray) -> np.ndarray:
     return np.where(cnt > 0, s / np.maximum(cnt, 1), np.nan)
 
 
-def _dense_ratio(conn, groups: Sequence[Sequence[SweepRow]], bin_hz: float):
+def _dense_ratio(survey: Survey, groups: Sequence[Sequence[SweepRow]], bin_hz: float):
     """Average the kept spectra of each group of sweeps onto one common grid of ``bin_hz`` bins."""
     # common grid over everything kept
     f_min, f_max = np.inf, -np.inf
     for rows in groups:
         for sw in rows:
-            for f_lo, f_hi in conn.execute(
-                "SELECT MIN(f_start_hz), MAX(f_start_hz + bin_hz * (n_bins - 1)) FROM spectra WHERE sweep_id = ?",
-                (sw.id,),
-            ):
-                if f_lo is not None:
-                    f_min, f_max = min(f_min, f_lo), max(f_max, f_hi)
+            span = survey.spectra_span_hz(sw.id)
+            if span is not None:
+                f_min, f_max = min(f_min, span[0]), max(f_max, span[1])
     if not np.isfinite(f_min):
         return None
     edges = np.arange(np.floor(f_min / bin_hz) * bin_hz, f_max + bin_hz, bin_hz)
-    binned = [_bin_spectra(conn, rows, edges) for rows in groups]
+    binned = [_bin_spectra(survey, rows, edges) for rows in groups]
     if any(b is None for b in binned):
         return None
     centers = 0.5 * (edges[:-1] + edges[1:])
@@ -282,7 +259,7 @@ def _gain_and_sigma(d_sys, d_rx, var_sys, var_rx):
     return g, 10.0 / np.log(10.0) * rel, ok
 
 
-def _noise_source_curve(conn, base, test, bin_hz):
+def _noise_source_curve(survey: Survey, base, test, bin_hz):
     b, t = _by_input(base), _by_input(test)
     need = ("noise-hot", "noise-cold")
     if not all(k in b and k in t for k in need):
@@ -290,7 +267,7 @@ def _noise_source_curve(conn, base, test, bin_hz):
     _settings_check(b["noise-hot"] + b["noise-cold"] + t["noise-hot"] + t["noise-cold"])
     used = {"test noise-hot": len(t["noise-hot"]), "test noise-cold": len(t["noise-cold"]),
             "base noise-hot": len(b["noise-hot"]), "base noise-cold": len(b["noise-cold"])}
-    dense = _dense_ratio(conn, [t["noise-hot"], t["noise-cold"], b["noise-hot"], b["noise-cold"]], bin_hz)
+    dense = _dense_ratio(survey, [t["noise-hot"], t["noise-cold"], b["noise-hot"], b["noise-cold"]], bin_hz)
     if dense is not None:
         centers, (sh, sc, rh, rc) = dense
         # each bin mean is a chi-square average: relative variance 1/n_avg (Welch 1967, K averages)
@@ -308,8 +285,7 @@ def _noise_source_curve(conn, base, test, bin_hz):
             )
         notes = tuple(notes)
         return centers[ok], np.asarray(ratio_to_db(g[ok])), np.maximum(sig[ok], 0.05), True, notes, used
-    ids = [sw.id for sw in t["noise-hot"] + t["noise-cold"] + b["noise-hot"] + b["noise-cold"]]
-    m = read_channel_matrix(conn, ids)
+    m = survey.channel_matrix(t["noise-hot"] + t["noise-cold"] + b["noise-hot"] + b["noise-cold"])
     sizes = np.cumsum([0, len(t["noise-hot"]), len(t["noise-cold"]), len(b["noise-hot"]), len(b["noise-cold"])])
     means = [_mean_linear(m.power_dbfs[sizes[i]:sizes[i + 1]].astype(np.float64)) for i in range(4)]
     sh, sc, rh, rc = means
@@ -342,13 +318,13 @@ def station_peaks(freqs_hz: np.ndarray, level: np.ndarray, channel_bw_hz: float)
     return keep
 
 
-def _stations_curve(conn, base, test):
+def _stations_curve(survey: Survey, base, test):
     b, t = _by_input(base), _by_input(test)
     if "antenna" not in b or "antenna" not in t:
         return None
     _settings_check(b["antenna"] + t["antenna"])
     nt, nb = len(t["antenna"]), len(b["antenna"])
-    m = read_channel_matrix(conn, [sw.id for sw in t["antenna"] + b["antenna"]])
+    m = survey.channel_matrix(t["antenna"] + b["antenna"])
     p = np.asarray(db_to_ratio(m.power_dbfs.astype(np.float64)))
     n = np.asarray(db_to_ratio(m.noise_dbfs.astype(np.float64)))
     sig = np.where(m.received, p - n, np.nan)
@@ -383,45 +359,66 @@ def _stations_curve(conn, base, test):
     return (f, g[ok], s[ok]), stations, used
 
 
-def _floor_curve(conn, base, test, bin_hz):
+#: dB per unit relative error (10 / ln 10).
+_DB_PER_REL = 10.0 / np.log(10.0)
+#: Smallest standard uncertainty given to a floor-rise point, dB (the floor estimator's own
+#: bias under stations is not in the scatter; common practice, no source).
+FLOOR_SIGMA_MIN_DB = 0.1
+#: Uncertainty of a floor-rise point whose scatter cannot be measured (one sweep), dB.
+FLOOR_SIGMA_DEFAULT_DB = 0.3
+
+
+def _sem_db(values_db: np.ndarray) -> np.ndarray:
+    """Standard error of the mean over sweeps (rows) of levels in dB; NaN with fewer than 2 sweeps."""
+    x = np.asarray(values_db, np.float64)
+    n = np.sum(np.isfinite(x), axis=0)
+    with np.errstate(invalid="ignore", divide="ignore"), warnings.catch_warnings():
+        warnings.simplefilter("ignore", RuntimeWarning)
+        sd = np.nanstd(x, axis=0, ddof=1)
+    return np.where(n >= 2, sd / np.sqrt(np.maximum(n, 1)), np.nan)
+
+
+def _floor_curve(survey: Survey, base, test, bin_hz):
     b, t = _by_input(base), _by_input(test)
     for kind in ("terminated", "noise-cold", "antenna"):
         if kind in b and kind in t:
             _settings_check(b[kind] + t[kind])
             used = {f"test {kind}": len(t[kind]), f"base {kind}": len(b[kind])}
-            edges_info = _dense_ratio(conn, [t[kind], b[kind]], bin_hz)
+            edges_info = _dense_ratio(survey, [t[kind], b[kind]], bin_hz)
             if edges_info is not None:
                 centers, (st, sb) = edges_info
                 with np.errstate(invalid="ignore", divide="ignore"):
                     rise = st.mean / sb.mean
                 ok = np.isfinite(rise) & (rise > 0)
                 if ok.sum() >= MIN_POINTS:
-                    return centers[ok], np.asarray(ratio_to_db(rise[ok])), True, kind, used
-            m = read_channel_matrix(conn, [sw.id for sw in t[kind] + b[kind]])
+                    # each bin mean averages n_avg periodograms: relative error 1/sqrt(n_avg) (Welch 1967)
+                    sig = _DB_PER_REL * np.sqrt(1.0 / np.maximum(st.n_avg, 1) + 1.0 / np.maximum(sb.n_avg, 1))
+                    return centers[ok], np.asarray(ratio_to_db(rise[ok])), np.maximum(sig[ok], FLOOR_SIGMA_MIN_DB), \
+                        True, kind, used
+            m = survey.channel_matrix(t[kind] + b[kind])
             nt = len(t[kind])
             rise = _mean_linear(m.noise_dbfs[:nt].astype(np.float64)) / _mean_linear(m.noise_dbfs[nt:].astype(np.float64))
             ok = np.isfinite(rise) & (rise > 0)
             if ok.sum() >= MIN_POINTS:
-                return m.freqs_hz[ok].astype(np.float64), np.asarray(ratio_to_db(rise[ok])), False, kind, used
+                sig = np.hypot(_sem_db(m.noise_dbfs[:nt]), _sem_db(m.noise_dbfs[nt:]))
+                sig = np.where(np.isfinite(sig), np.maximum(sig, FLOOR_SIGMA_MIN_DB), FLOOR_SIGMA_DEFAULT_DB)
+                return m.freqs_hz[ok].astype(np.float64), np.asarray(ratio_to_db(rise[ok])), sig[ok], False, kind, used
     return None
 
 
-def _labels_hint(conn) -> str:
-    rows = conn.execute("SELECT configuration, input, COUNT(*) FROM sweeps WHERE complete = 1 GROUP BY 1, 2 ORDER BY 1, 2").fetchall()
-    if not rows:
-        return "the database holds no complete sweeps"
-    return "the database holds: " + "; ".join(f"{c} / {i} ({n})" for c, i, n in rows)
+def _labels_hint(survey: Survey) -> str:
+    return "the database holds: " + survey.present()
 
 
 def load_gain_curve(
-    db_path: str | Path, base: str, test: str, *, bin_hz: float = DEFAULT_BIN_HZ, prefer: str | None = None
+    source: Survey | str | Path, base: str, test: str, *, bin_hz: float = DEFAULT_BIN_HZ, prefer: str | None = None
 ) -> GainCurve:
     """Gain of configuration ``test`` relative to ``base`` against frequency, best data present.
 
     Parameters
     ----------
-    db_path : str or Path
-        Survey database.
+    source : Survey or path
+        The survey (or its database file).
     base, test : str
         Configuration labels without and with the preamp.
     bin_hz : float
@@ -441,15 +438,13 @@ def load_gain_curve(
         raise BadParameterError(f"bin width must be positive, got {bin_hz} Hz")
     if base == test:
         raise BadParameterError(f"--base and --test are both {base!r}; give the label without and the label with the preamp")
-    conn = open_for_reading(db_path)
+    survey, opened = as_survey(source)
     try:
-        base_rows = list_sweeps(conn, configuration=base)
-        test_rows = list_sweeps(conn, configuration=test)
-        for label, rows in ((base, base_rows), (test, test_rows)):
-            if not rows:
-                raise NoDataError(f"no complete sweeps with configuration {label!r}; {_labels_hint(conn)}")
+        survey.require([base, test])
+        base_rows = list(survey.find_sweeps(base))
+        test_rows = list(survey.find_sweeps(test))
         band = test_rows[0].band
-        ant = _stations_curve(conn, base_rows, test_rows)
+        ant = _stations_curve(survey, base_rows, test_rows)
         stations: tuple[int, ...] = ()
         station_data = None
         ant_used: dict = {}
@@ -458,7 +453,7 @@ def load_gain_curve(
         order = [prefer] if prefer else ["noise-source", "stations", "noise-floor"]
         for kind in order:
             if kind == "noise-source":
-                got = _noise_source_curve(conn, base_rows, test_rows, bin_hz)
+                got = _noise_source_curve(survey, base_rows, test_rows, bin_hz)
                 if got is not None:
                     f, g, s, dense, notes, used = got
                     if f.size >= MIN_POINTS:
@@ -471,11 +466,11 @@ def load_gain_curve(
                         ("per channel: signal-only power (P - N) with and without the preamp",), ant_used,
                     )
             elif kind == "noise-floor":
-                got = _floor_curve(conn, base_rows, test_rows, bin_hz)
+                got = _floor_curve(survey, base_rows, test_rows, bin_hz)
                 if got is not None:
-                    f, rise, dense, which, used = got
+                    f, rise, sig, dense, which, used = got
                     return GainCurve(
-                        f, rise - np.max(rise), np.full(f.size, 0.2), SOURCE_FLOOR, True, dense, stations, band,
+                        f, rise - np.max(rise), sig, SOURCE_FLOOR, True, dense, stations, band,
                         (f"noise-floor rise on the {which} input, normalised to its peak: shape only, "
                          "gain is relative; the skirts look shallower than the gain where the "
                          "receiver's own noise dominates",), used,
@@ -485,7 +480,8 @@ def load_gain_curve(
         raise NoDataError(
             f"no gain can be measured between {base!r} and {test!r}: record noise-hot and noise-cold "
             "sweeps, or antenna sweeps with at least 3 stations received, in both configurations; "
-            + _labels_hint(conn)
+            + _labels_hint(survey)
         )
     finally:
-        conn.close()
+        if opened:
+            survey.close()

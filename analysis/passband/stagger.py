@@ -38,7 +38,7 @@ import numpy as np
 from scipy.optimize import least_squares
 
 from analysis.errors import BadParameterError
-from analysis.passband import TunedStage, cascade_response_db, check_target
+from analysis.passband.fit import TunedStage, cascade_response_db, check_target
 
 #: Largest number of circuits a plan is made for.
 MAX_STAGGER = 6

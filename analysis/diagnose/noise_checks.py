@@ -34,10 +34,14 @@ from __future__ import annotations
 import numpy as np
 import scipy.optimize
 
-from analysis.diagnose import Finding
-from analysis.diagnose_data import ChannelSummary, GainModel, summarise_channels
-from analysis.errors import AnalysisError
+from analysis.findings import Finding
+from analysis.diagnose.data import ChannelSummary, GainModel, summarise_channels
+from analysis.noise.workflow import NoiseResult
+from analysis.selection import Survey
 from survey.units import nf_db_to_k, ratio_to_db
+
+#: One 8-bit converter step in full-scale units (cu8 samples: 255 steps over -1..+1).
+LSB_FS = 1.0 / 127.5
 
 #: Excess of the unshaped floor over the receiver's bound to call added noise, dB.
 MIN_EXCESS_DB = 1.0
@@ -89,20 +93,15 @@ def fit_unshaped_floor(gain_lin: np.ndarray, base_noise: np.ndarray, test_noise:
             "rms_rel": float(np.sqrt(np.mean(resid ** 2)))}
 
 
-def _receiver_temp_k(db_path, base: str, receiver_nf_db: float | None, enr_db: float | None,
+def _receiver_temp_k(receiver_nf_db: float | None, receiver_noise: NoiseResult | None, why_none: str,
                      notes: list[str]) -> tuple[float | None, str]:
     if receiver_nf_db is not None:
         return float(nf_db_to_k(receiver_nf_db)), f"receiver NF {receiver_nf_db:g} dB (given)"
-    if enr_db is None:
+    if receiver_noise is None:
+        if why_none:
+            notes.append(f"the receiver's noise temperature could not be measured ({why_none})")
         return None, ""
-    from analysis.noise_workflow import analyse_noise
-
-    try:
-        res = analyse_noise(db_path, base, enr_db=enr_db)
-    except AnalysisError as exc:
-        notes.append(f"the receiver's noise temperature could not be measured ({exc})")
-        return None, ""
-    tr = res.column("receiver_temp_k")
+    tr = receiver_noise.column("receiver_temp_k")
     tr = tr[np.isfinite(tr)]
     if tr.size == 0:
         notes.append("the noise workflow gave no receiver noise temperature (needs noise-hot/noise-cold sweeps of the base)")
@@ -110,7 +109,7 @@ def _receiver_temp_k(db_path, base: str, receiver_nf_db: float | None, enr_db: f
     return float(np.median(tr)), "receiver noise temperature from the noise workflow (Y-factor)"
 
 
-def quantisation_noise_lin(conn, summary: ChannelSummary, channel_bw_hz: float) -> float:
+def quantisation_noise_lin(survey: Survey, summary: ChannelSummary, channel_bw_hz: float) -> float:
     """Uniform quantisation noise of 8-bit samples in one channel, FS^2 (0 for wider samples).
 
     ``2 (LSB^2 / 12) B / fs`` with ``LSB = 1/127.5`` (Widrow's uniform model, valid when each
@@ -118,13 +117,10 @@ def quantisation_noise_lin(conn, summary: ChannelSummary, channel_bw_hz: float) 
     aside before a floor is read as ``c B T``. 8-bit sweeps are those whose hops carry a clip
     fraction.
     """
-    from survey.sources.simulated import quantisation_density_fs2_hz
-    from survey.store import read_hops
-
-    hops = read_hops(conn, [summary.sweeps[0].id])
-    if not hops or hops[0]["clip_fraction"] is None:
+    hops = survey.hops([summary.sweeps[0].id])
+    if not hops or hops[0].clip_fraction is None:
         return 0.0
-    return float(quantisation_density_fs2_hz(summary.sweeps[0].sample_rate_hz) * channel_bw_hz)
+    return float(2.0 * (LSB_FS**2 / 12.0) / float(summary.sweeps[0].sample_rate_hz) * channel_bw_hz)
 
 
 def _align(a: ChannelSummary, b: ChannelSummary) -> tuple[np.ndarray, np.ndarray]:
@@ -133,14 +129,14 @@ def _align(a: ChannelSummary, b: ChannelSummary) -> tuple[np.ndarray, np.ndarray
     return ia, ib
 
 
-def check_added_noise(conn, db_path, base: str, test: str, gain: GainModel | None, *,
-                      receiver_nf_db: float | None = None, enr_db: float | None = None,
-                      ambient_k: float = 290.0, seed: int = 0):
+def check_added_noise(survey: Survey, base: str, test: str, gain: GainModel | None, *,
+                      receiver_nf_db: float | None = None, receiver_noise: NoiseResult | None = None,
+                      receiver_noise_note: str = "", ambient_k: float = 290.0, seed: int = 0):
     """The added-noise check (module docstring); returns ``(findings, checked, notes)``."""
     notes: list[str] = []
     if gain is None:
         return [], ["added-noise: not checked (needs the preamp gain from stations or a noise source)"], notes
-    sums = {(c, i): summarise_channels(conn, c, i) for c in (base, test) for i in ("terminated", "antenna")}
+    sums = {(c, i): summarise_channels(survey, c, i) for c in (base, test) for i in ("terminated", "antenna")}
     inp = next((i for i in ("terminated", "antenna") if sums[(base, i)] is not None and sums[(test, i)] is not None), None)
     if inp is None:
         return [], ["added-noise: not checked (needs terminated or antenna sweeps of both configurations)"], notes
@@ -158,10 +154,10 @@ def check_added_noise(conn, db_path, base: str, test: str, gain: GainModel | Non
     if span_db < 3.0:
         notes.append(f"the gain varies by only {span_db:.1f} dB over the fitted channels: shaped and unshaped noise "
                      "are hard to tell apart, as the uncertainty shows")
-    tr_k, tr_how = _receiver_temp_k(db_path, base, receiver_nf_db, enr_db, notes)
+    tr_k, tr_how = _receiver_temp_k(receiver_nf_db, receiver_noise, receiver_noise_note, notes)
     b_term = sums[(base, "terminated")]
     ev: dict = {}
-    q = quantisation_noise_lin(conn, b, t.channel_bw_hz)
+    q = quantisation_noise_lin(survey, b, t.channel_bw_hz)
     thermal_ok = False
     if b_term is not None:
         nbt = nb if inp == "terminated" else np.interp(f[use], b_term.freqs_hz, b_term.noise_lin)

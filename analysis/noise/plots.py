@@ -13,8 +13,8 @@ import numpy as np
 from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 
-from analysis.noise_workflow import NoiseResult
-from analysis.outside_noise import ENVIRONMENTS, decile_fa_db, median_fa_db
+from analysis.noise.workflow import NoiseResult
+from analysis.noise.outside import ENVIRONMENTS, decile_fa_db, median_fa_db
 
 # Dark to light so that greyscale keeps them apart; each also has its own marker / dash.
 _NF_SERIES = (
@@ -38,7 +38,7 @@ def plot_noise(result: NoiseResult, path: str | Path, dpi: int = 120) -> Path:
     Parameters
     ----------
     result : NoiseResult
-        From :func:`analysis.noise_workflow.analyse_noise`.
+        From :func:`analysis.noise.workflow.analyse_noise`.
     path : str or Path
         Output PNG file.
 

@@ -19,7 +19,7 @@ from pathlib import Path
 
 import numpy as np
 
-from analysis.compare import Comparison
+from analysis.compare.core import Comparison
 from analysis.errors import BadParameterError
 
 _BLUE = "#0072B2"
@@ -28,7 +28,7 @@ _GREY = "0.35"
 
 
 def _col(result: Comparison, name: str) -> np.ndarray:
-    return np.asarray([np.nan if getattr(c, name) is None else getattr(c, name) for c in result.channels], float)
+    return np.asarray([np.nan if getattr(c, name) is None else getattr(c, name) for c in result.items], float)
 
 
 def plot_comparison(result: Comparison, path: str | Path, dpi: int = 120) -> Path:
@@ -44,7 +44,7 @@ def plot_comparison(result: Comparison, path: str | Path, dpi: int = 120) -> Pat
     matplotlib.use("Agg")
     from matplotlib.figure import Figure
 
-    f_mhz = np.asarray([c.freq_hz for c in result.channels], float) / 1e6
+    f_mhz = np.asarray([c.freq_hz for c in result.items], float) / 1e6
     order = np.argsort(f_mhz)
     f_mhz = f_mhz[order]
 
@@ -54,12 +54,12 @@ def plot_comparison(result: Comparison, path: str | Path, dpi: int = 120) -> Pat
     base_cn, test_cn = col("base_cn_db"), col("test_cn_db")
     delta, lo, hi = col("delta_cn_db"), col("ci_low_db"), col("ci_high_db")
     gain, rise = col("gain_db"), col("noise_rise_db")
-    verdicts = [result.channels[i].verdict for i in order]
+    verdicts = [result.items[i].verdict for i in order]
 
     fig = Figure(figsize=(11, 9.5), layout="constrained")
     ax1, ax2, ax3 = fig.subplots(3, 1, sharex=True)
     fig.suptitle(
-        f"'{result.test}' (test) against '{result.base}' (base): SNR (C/N) per channel, "
+        f"'{result.test}' (test) against '{result.base}' (base): SNR (C/N) per {result.unit}, "
         f"{result.n_base_sweeps} + {result.n_test_sweeps} sweeps, {'paired' if result.paired else 'unpaired'}"
     )
 
@@ -68,17 +68,18 @@ def plot_comparison(result: Comparison, path: str | Path, dpi: int = 120) -> Pat
     ax1.plot(f_mhz, base_cn, linestyle="none", color=_BLUE, marker="o", markerfacecolor="white",
              label=f"base: {result.base}")
     ax1.plot(f_mhz, test_cn, linestyle="none", color=_ORANGE, marker="s", label=f"test: {result.test}")
-    usable = result.thresholds["usable_cn_db"]
-    ax1.axhline(usable, color=_GREY, linestyle=":", linewidth=1,
-                label=f"usable FM reception {usable:g} dB (common practice, no source)")
+    listen = result.summary["listenable"]
+    for level, what, style in ((listen["mono_cn_db"], "mono", ":"), (listen["stereo_cn_db"], "stereo", "--")):
+        ax1.axhline(level, color=_GREY, linestyle=style, linewidth=1,
+                    label=f"listenable {what} from {level:g} dB ({listen['source']})")
     gained = np.asarray([v == "gained" for v in verdicts])
     lost = np.asarray([v == "lost" for v in verdicts])
     if gained.any():
         ax1.plot(f_mhz[gained], test_cn[gained], linestyle="none", marker="^", markersize=10,
-                 color="black", markerfacecolor="none", label="gained (received only with test)")
+                 color="black", markerfacecolor="none", label="gained (detected only with test)")
     if lost.any():
         ax1.plot(f_mhz[lost], base_cn[lost], linestyle="none", marker="v", markersize=10,
-                 color="black", markerfacecolor="none", label="lost (received only with base)")
+                 color="black", markerfacecolor="none", label="lost (detected only with base)")
     ax1.set_ylabel("SNR (C/N) = (P - N)/N, dB")
     ax1.legend(loc="best", fontsize="small")
     ax1.grid(True, alpha=0.3)
@@ -95,7 +96,7 @@ def plot_comparison(result: Comparison, path: str | Path, dpi: int = 120) -> Pat
                      label=f"{100 * result.thresholds['confidence']:g}% interval")
     ax2.axhline(0.0, color="black", linewidth=0.8)
     m = result.thresholds["min_change_db"]
-    ax2.axhspan(-m, m, color="0.9", zorder=0, label=f"within +/-{m:g} dB (unchanged)")
+    ax2.axhspan(-m, m, color="0.9", zorder=0, label=f"+/-{m:g} dB (unchanged when the interval lies within)")
     ax2.set_ylabel("delta SNR (test - base), dB")
     ax2.legend(loc="best", fontsize="small", title="hatched: // improved, xx worse", title_fontsize="small")
     ax2.grid(True, alpha=0.3)
@@ -104,7 +105,7 @@ def plot_comparison(result: Comparison, path: str | Path, dpi: int = 120) -> Pat
     ax3.plot(f_mhz, rise, linestyle="-.", marker="x", color=_ORANGE, label="noise rise: ratio of N")
     ax3.axhline(0.0, color="black", linewidth=0.8)
     ax3.set_ylabel("ratio test/base, dB")
-    ax3.set_xlabel("channel frequency, MHz")
+    ax3.set_xlabel(f"{result.unit} frequency, MHz")
     ax3.legend(loc="best", fontsize="small")
     ax3.grid(True, alpha=0.3)
 

@@ -1,7 +1,7 @@
 """The whole passband job: fit a measured gain curve, check a target band, plan the retuning.
 
-Combines :func:`analysis.passband.fit_passband` and :func:`analysis.passband.coverage` with the
-maximally flat stagger design of :func:`analysis.stagger.design_stagger`.
+Combines :func:`analysis.passband.fit.fit_passband` and :func:`analysis.passband.fit.coverage` with the
+maximally flat stagger design of :func:`analysis.passband.stagger.design_stagger`.
 """
 
 from __future__ import annotations
@@ -10,15 +10,15 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from analysis.passband import MAX_CIRCUITS, Coverage, PassbandFit, check_target, coverage, fit_passband
-from analysis.stagger import design_stagger, shrinkage_factor
+from analysis.passband.fit import MAX_CIRCUITS, Coverage, PassbandFit, check_target, coverage, fit_passband
+from analysis.passband.stagger import design_stagger, shrinkage_factor
 
 @dataclass(frozen=True)
 class PassbandReport:
     """Fit, coverage and retuning advice for one measured gain curve.
 
-    ``curve`` is the :class:`analysis.passband_data.GainCurve` fitted; ``plan`` the
-    :class:`analysis.stagger.StaggerPlan` for the target with the same number of circuits.
+    ``curve`` is the :class:`analysis.passband.data.GainCurve` fitted; ``plan`` the
+    :class:`analysis.passband.stagger.StaggerPlan` for the target with the same number of circuits.
     """
 
     curve: object
@@ -86,17 +86,17 @@ class PassbandReport:
 
 
 def analyse_passband(curve, target_hz: tuple[float, float], *, max_circuits: int = MAX_CIRCUITS,
-                     seed: int = 0) -> PassbandReport:
-    """Fit ``curve`` (a :class:`analysis.passband_data.GainCurve`), check the target, plan retuning.
+                     seed: int = 0, circuits: int | None = None) -> PassbandReport:
+    """Fit ``curve`` (a :class:`analysis.passband.data.GainCurve`), check the target, plan retuning.
 
-    The stagger plan (:func:`analysis.stagger.design_stagger`) has the fitted number of circuits
+    The stagger plan (:func:`analysis.passband.stagger.design_stagger`) has the fitted number of circuits
     and the target's width; its peak-gain change is against the fitted circuits.
     """
     target = check_target(*target_hz)
     fit = fit_passband(
         curve.freqs_hz, curve.gain_db, weights=1.0 / np.asarray(curve.sigma_db, dtype=np.float64),
         relative=curve.relative, max_circuits=max_circuits, seed=seed,
-        floor_offset=curve.source.startswith("noise-floor"),
+        floor_offset=curve.source.startswith("noise-floor"), circuits=circuits,
     )
     cov = coverage(fit, target, curve.stations_hz)
     plan = design_stagger(target, fit.n_circuits, measured_stages=fit.stages)

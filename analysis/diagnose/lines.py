@@ -22,10 +22,11 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from analysis.diagnose import Finding
-from analysis.diagnose_data import ChannelSummary, raster_step_hz, read_spectra_for
+from analysis.findings import Finding
+from analysis.diagnose.data import ChannelSummary, raster_step_hz
 from survey import dsp
-from survey.store import list_sweeps
+from analysis.selection import Survey
+from survey.store import HopSpectrum
 from survey.units import db_to_ratio, ratio_to_db
 
 #: A line's peak bin is at least this far above the local floor, dB.
@@ -79,11 +80,11 @@ class SpectralSearch:
 
 
 def _hop_floor(hop: dict, sweep) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
-    f = np.asarray(hop["freqs_hz"], dtype=np.float64)
-    off = f - hop["center_hz"]
-    lin = np.asarray(db_to_ratio(hop["psd_dbfs_hz"]))
-    usable = dsp.usable_bins(off, hop["sample_rate_hz"], sweep.usable_fraction, sweep.dc_guard_hz)
-    k_eff = dsp.welch_effective_averages(max(int(hop["n_samples"]), sweep.fft_size), sweep.fft_size)
+    f = np.asarray(hop.freqs_hz, dtype=np.float64)
+    off = f - hop.center_hz
+    lin = np.asarray(db_to_ratio(hop.psd_dbfs_hz))
+    usable = dsp.usable_bins(off, hop.sample_rate_hz, sweep.usable_fraction, sweep.dc_guard_hz)
+    k_eff = dsp.welch_effective_averages(max(int(hop.n_samples), sweep.fft_size), sweep.fft_size)
     floor = dsp.local_noise_floor(off, lin, usable, effective_averages=k_eff)
     return f, lin, np.nan_to_num(floor, nan=np.inf), usable
 
@@ -123,7 +124,7 @@ def lines_in_hop(hop: dict, sweep, channel_bw_hz: float) -> list[Line]:
         if conc < LINE_CONCENTRATION or not p_line > 0:
             continue
         out.append(Line(centroid, float(ratio_to_db(p_line)), float(ratio_to_db(p_line / noise)), conc, width,
-                        float(hop["center_hz"]), int(sweep.id), sweep.input))
+                        float(hop.center_hz), int(sweep.id), sweep.input))
     # IQ images: a line whose mirror about the hop centre holds a line at least 15 dB stronger
     keep = []
     for ln in out:
@@ -137,9 +138,9 @@ def lines_in_hop(hop: dict, sweep, channel_bw_hz: float) -> list[Line]:
 def _line_in_spectra(freq_hz: float, spectra: list[tuple[dict, object]], channel_bw_hz: float) -> bool:
     """True when some spectrum (usable part) shows a line within 10 kHz of ``freq_hz``."""
     for hop, sweep in spectra:
-        f = np.asarray(hop["freqs_hz"], dtype=np.float64)
-        d = abs(freq_hz - hop["center_hz"])
-        if not (sweep.dc_guard_hz <= d <= sweep.usable_fraction * hop["sample_rate_hz"] / 2.0):
+        f = np.asarray(hop.freqs_hz, dtype=np.float64)
+        d = abs(freq_hz - hop.center_hz)
+        if not (sweep.dc_guard_hz <= d <= sweep.usable_fraction * hop.sample_rate_hz / 2.0):
             continue
         f, lin, floor, usable = _hop_floor(hop, sweep)
         near = np.flatnonzero(np.abs(f - freq_hz) <= SAME_LINE_HZ)
@@ -162,19 +163,19 @@ def _cluster(lines: list[Line]) -> list[list[Line]]:
     return groups
 
 
-def spectral_lines(conn, base: str, test: str, base_antenna: ChannelSummary | None) -> SpectralSearch:
+def spectral_lines(survey: Survey, base: str, test: str, base_antenna: ChannelSummary | None) -> SpectralSearch:
     """Search the kept spectra of ``test`` for narrow lines absent from ``base``."""
     found: list[Line] = []
     n_sweeps = 0
     inputs = []
     base_spectra: dict[str, list] = {}
     for inp in _INPUTS:
-        t_rows = list_sweeps(conn, configuration=test, input=inp)
-        t_spec = [(h, sw) for sw in t_rows for h in read_spectra_for(conn, sw.id)]
+        t_rows = survey.find_sweeps(test, inp)
+        t_spec = [(h, sw) for sw in t_rows for h in survey.hop_spectra(sw.id)]
         if not t_spec:
             continue
-        b_rows = list_sweeps(conn, configuration=base, input=inp)
-        base_spectra[inp] = [(h, sw) for sw in b_rows for h in read_spectra_for(conn, sw.id)]
+        b_rows = survey.find_sweeps(base, inp)
+        base_spectra[inp] = [(h, sw) for sw in b_rows for h in survey.hop_spectra(sw.id)]
         inputs.append(inp)
         n_sweeps += len({sw.id for _, sw in t_spec})
         for h, sw in t_spec:
