@@ -7,6 +7,7 @@ could help at this site (the ceiling set by outside noise); trouble found.
 
 from __future__ import annotations
 
+from analysis.diagnose.core import summarise_findings
 from analysis.findings import Finding
 
 
@@ -65,10 +66,7 @@ def trouble_line(findings: tuple[Finding, ...] | list[Finding], diagnosis_note: 
         return "Trouble: none found."
     order = {"problem": 0, "warning": 1, "info": 2}
     ranked = sorted(findings, key=lambda f: order.get(f.severity, 3))
-    shown = []
-    for f in ranked[:4]:
-        where = "" if f.freq_hz is None else f" at {f.freq_hz / 1e6:.2f} MHz"
-        shown.append(f"{f.severity}: {f.kind}{where}")
+    shown = summarise_findings(ranked[:3])
     more = len(ranked) - len(shown)
     return "Trouble: " + "; ".join(shown) + (f"; and {more} more" if more > 0 else "") + "."
 

@@ -23,8 +23,10 @@ from analysis.headline import headline_lines
 from analysis.noise.arithmetic import EnrTable
 from analysis.noise.workflow import NoiseResult, analyse_noise
 from analysis.passband.data import GainCurve, load_gain_curve
-from analysis.passband.fit import coverage, fit_passband, fit_trust
-from analysis.passband.report import analyse_passband
+from analysis.passband.fit import coverage, fit_trust
+from analysis.passband.report import PassbandReport, analyse_passband
+from survey.bandplan import parse_band
+from survey.errors import PlanError
 from analysis.physics import ceiling_checks, noise_split_note, predicted_noise_rise_note
 from analysis.selection import Survey, as_survey
 
@@ -129,22 +131,40 @@ def comparison_for(survey: Survey, base: str, test: str, **kwargs) -> Comparison
     return survey.memo(key, lambda: compare_configurations(survey, base, test, **kwargs))
 
 
-def passband_findings(curve: GainCurve | None, target_hz: tuple[float, float] | None,
-                      stations_hz) -> list[Finding]:
-    """A finding when a trustworthy passband fit leaves target-band stations below its -3 dB edges."""
-    if curve is None or target_hz is None or curve.relative or curve.freqs_hz.size < 5:
+def default_target_hz(sweeps, comparison: Comparison | None,
+                      curve_freqs_hz: np.ndarray | None = None) -> tuple[tuple[float, float] | None, str]:
+    """Target band when none is given: the band plan's edges, else the span of the items
+    compared, else the span of the gain curve's points (Hz), with a note saying which."""
+    bands = sorted({s.band for s in sweeps})
+    if len(bands) == 1:
+        try:
+            plan = parse_band(bands[0])
+            return (float(plan.start_hz), float(plan.stop_hz)), (
+                f"target band not given: the band plan '{bands[0]}' edges are used")
+        except PlanError:
+            pass
+    if comparison is not None and comparison.items:
+        freqs = [c.freq_hz for c in comparison.items]
+        if max(freqs) > min(freqs):
+            return (float(min(freqs)), float(max(freqs))), (
+                "target band not given: the span of the channels measured is used (give --target START-STOP)")
+    if curve_freqs_hz is not None and np.size(curve_freqs_hz) >= 2 and np.ptp(curve_freqs_hz) > 0:
+        return (float(np.min(curve_freqs_hz)), float(np.max(curve_freqs_hz))), (
+            "target band not given: the span of the passband measurement is used (give --target START-STOP)")
+    return None, "target band not given and not derivable: give --target START-STOP (MHz)"
+
+
+def passband_findings(report: PassbandReport | None, stations_hz) -> list[Finding]:
+    """A finding when a trusted passband leaves target-band stations below its -3 dB edges
+    ("covers 1 of 8 stations in 88-100 MHz")."""
+    if report is None:
         return []
-    try:
-        fit = fit_passband(curve.freqs_hz, curve.gain_db, weights=1.0 / np.asarray(curve.sigma_db, np.float64))
-    except AnalysisError:
-        return []
-    if not fit_trust(fit, curve.sigma_db)[0]:
-        return []
-    cov = coverage(fit, target_hz, stations_hz)
+    cov = coverage(report.fit, report.coverage.target_hz, stations_hz)
     n_in, n_cov = len(cov.stations_in_target_hz), len(cov.covered_stations_hz)
     if n_in == 0 or n_cov == n_in:
         return []
     lo, hi = cov.target_hz
+    fit = report.fit
     return [Finding(
         kind="passband", freq_hz=fit.peak_hz, severity="problem" if n_cov < n_in / 2 else "warning",
         evidence={"stations_in_target_count": n_in, "covered_stations_count": n_cov,
@@ -178,8 +198,8 @@ def assess(source: Survey | str | Path, base: str, test: str, *, options: NoiseO
 
     ``compare_kwargs`` go to :func:`analysis.compare.core.compare_configurations`. The noise
     workflow runs when noise-figure runs exist (its ceiling and noise split join the result);
-    the diagnosis unless ``with_diagnosis`` is False; ``target_hz`` adds the passband coverage
-    check.
+    the diagnosis unless ``with_diagnosis`` is False; the passband coverage check uses
+    ``target_hz`` (default: the band plan's edges).
     """
     survey, opened = as_survey(source)
     try:
@@ -196,10 +216,16 @@ def assess(source: Survey | str | Path, base: str, test: str, *, options: NoiseO
                 diag_note = f"not available: {exc}"
         ceiling, ceiling_findings = ceiling_checks(result, noise)
         findings += ceiling_findings
+        if target_hz is None:
+            sweeps = list(survey.find_sweeps(base)) + list(survey.find_sweeps(test))
+            target_hz, _ = default_target_hz(sweeps, result)
         if target_hz is not None:
-            curve, _ = gain_curve_for(survey, base, test)
-            stations = [c.freq_hz for c in result.items if c.verdict != "not received"]
-            findings += passband_findings(curve, target_hz, stations)
+            try:
+                pb, _ = passband_for(survey, base, test, target_hz, seed=seed)
+            except AnalysisError:
+                pb = None
+            heard = [c.freq_hz for c in result.items if c.base_detected_fraction >= 0.5 or c.test_detected_fraction >= 0.5]
+            findings += passband_findings(pb, heard)
         pred = predicted_noise_rise_note(noise, result) if noise is not None else f"not available: {noise_note}"
         split = noise_split_note(noise)
     finally:
@@ -214,7 +240,8 @@ _FALLBACK_SOURCES = ("noise-source", "noise-floor", "stations")
 
 
 def passband_for(survey: Survey, base: str, test: str, target_hz: tuple[float, float], *,
-                 max_circuits: int | None = None, circuits: int | None = None, seed: int = 0):
+                 max_circuits: int | None = None, circuits: int | None = None, q_unloaded: float | None = None,
+                 seed: int = 0):
     """A passband report whose fit can be trusted, or ``(None, reason)``; computed once.
 
     The best gain curve present is fitted first; when the fit has fewer than 5 points, sits
@@ -242,14 +269,14 @@ def passband_for(survey: Survey, base: str, test: str, target_hz: tuple[float, f
                 continue
             tried.append(cand.source)
             try:
-                report = analyse_passband(cand, target_hz, seed=seed, circuits=circuits,
+                report = analyse_passband(cand, target_hz, seed=seed, circuits=circuits, q_unloaded=q_unloaded,
                                           **({} if max_circuits is None else {"max_circuits": max_circuits}))
             except AnalysisError as exc:
                 reasons.append(f"{cand.source}: {exc}")
                 continue
-            ok, why_not = fit_trust(report.fit, cand.sigma_db)
+            ok, why_not = fit_trust(report.fit, cand.freqs_hz, cand.gain_db, cand.sigma_db)
             if ok:
                 return report, ""
             reasons.append(f"{cand.source}: {why_not}")
         return None, "not enough data to fit (" + "; ".join(r for r in reasons if r) + ")"
-    return survey.memo(("passband", base, test, tuple(target_hz), max_circuits, circuits, seed), compute)
+    return survey.memo(("passband", base, test, tuple(target_hz), max_circuits, circuits, q_unloaded, seed), compute)

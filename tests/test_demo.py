@@ -18,6 +18,15 @@ def test_demo_runs_every_step_and_writes_its_outputs(tmp_path, capsys):
     assert "not covered" in text and "; covered" in text          # peaked too narrow, staggered covers 88-100
     assert "added-noise" in text                                    # the bench supply is found
     assert "Error:" not in text
+    # one wording for the headlines: counts per item, listenable, the ceiling, trouble
+    for test in ("preamp-peaked", "preamp-staggered", "preamp-bench-supply"):
+        block = text.split(f"--test {test} --enr-db 15")[1]
+        lines = [line for line in block.splitlines()[1:12]]
+        joined = " ".join(lines)
+        assert joined.index(" helped ") < joined.index("Listenable") < joined.index("Could any preamp help here") \
+            < joined.index("Trouble:")
+    assert "covers 1 of 8 stations in 88-100 MHz" in text          # the peaked preamp misses the band
+    assert "at most 1.7 dB of C/N" in text                          # outside noise sets the ceiling
 
 
 def test_demo_refuses_a_non_empty_folder(tmp_path, capsys):

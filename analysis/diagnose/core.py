@@ -98,6 +98,14 @@ def summarise_findings(findings) -> list[str]:
             if "lost_cn_median_db" in ev:
                 parts.append(f"{ev['lost_cn_median_db']:.1f} dB of C/N lost (median)")
             detail = ", ".join(parts)
+        elif f.kind == "passband":
+            lines.append(f"{f.severity}: the passband covers {int(ev['covered_stations_count'])} of "
+                         f"{int(ev['stations_in_target_count'])} stations in {ev['target_low_hz'] / 1e6:g}-"
+                         f"{ev['target_high_hz'] / 1e6:g} MHz")
+            continue
+        elif f.kind == "measurement":
+            detail = (f"C/N change {ev['delta_cn_db']:+.1f} dB, interval from {ev['ci_low_db']:+.1f} dB, above the "
+                      f"{ev['ceiling_db']:.1f} dB any preamp could give")
         where = "" if f.freq_hz is None else f" at {_mhz(f.freq_hz)}"
         lines.append(f"{f.severity}: {f.kind}{where}" + (f" ({detail})" if detail else ""))
     return lines

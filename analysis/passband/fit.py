@@ -499,34 +499,37 @@ def fit_passband(
 # ------------------------------------------------------------------------------------ trust
 #: Fewest gain points a fit must have before it is headlined.
 MIN_TRUSTED_POINTS = 5
-#: A fit is trusted while its residual rms stays under this multiple of the points' median
-#: standard uncertainty (a reduced chi-square near 4 already says the model misses the data).
-MAX_RESIDUAL_TO_SIGMA = 2.0
-#: Residual rms (dB) always allowed: real circuits differ from the ideal tuned-circuit model and
-#: a floor-rise curve carries the floor estimator's bias near stations, neither of which is in
-#: the points' statistical uncertainty (common practice, no source).
-MODEL_ALLOWANCE_DB = 0.5
+#: A fit is trusted while the rms of its residuals, each divided by its point's standard
+#: uncertainty, stays under this (a reduced chi-square near 4 already says the model misses the
+#: data).
+MAX_NORMALISED_RESIDUAL = 2.0
+#: Model uncertainty (dB, one standard deviation) added in quadrature to every point's own:
+#: real circuits differ from the ideal tuned-circuit model and a floor-rise curve carries the
+#: floor estimator's bias near stations (common practice, no source).
+MODEL_SIGMA_DB = 0.25
 
 
-def fit_trust(fit: PassbandFit, sigma_db: np.ndarray | Sequence[float]) -> tuple[bool, str]:
+def fit_trust(fit: PassbandFit, freqs_hz, gain_db, sigma_db) -> tuple[bool, str]:
     """Whether a fit may be headlined: ``(trusted, reason when not)``.
 
     Not trusted with fewer than :data:`MIN_TRUSTED_POINTS` points, with a circuit's Q on a fit
-    bound (:data:`Q_MIN`, :data:`Q_MAX`), or with residuals (rms, dB) above the fit's stated
-    uncertainty: :data:`MAX_RESIDUAL_TO_SIGMA` times the median standard uncertainty of the
-    points, or :data:`MODEL_ALLOWANCE_DB` if larger. Pure and cheap: a live display may call it
-    on every update.
+    bound (:data:`Q_MIN`, :data:`Q_MAX`), or with residuals above the stated uncertainty: the
+    rms of ``residual / sqrt(sigma^2 + MODEL_SIGMA_DB^2)`` over the points above
+    :data:`MAX_NORMALISED_RESIDUAL`. Pure and cheap: a live display may call it on every update.
     """
     if fit.n_points < MIN_TRUSTED_POINTS:
         return False, f"only {fit.n_points} gain points (a fit needs at least {MIN_TRUSTED_POINTS})"
     if any(s.q >= Q_MAX * 0.999 or s.q <= Q_MIN * 1.001 for s in fit.stages):
         return False, "a circuit's Q sits on its fit bound, so the data do not constrain it"
-    sig = np.asarray(sigma_db, dtype=np.float64)
-    sig = sig[np.isfinite(sig)]
-    allowed = max(MAX_RESIDUAL_TO_SIGMA * (float(np.median(sig)) if sig.size else 0.0), MODEL_ALLOWANCE_DB)
-    if fit.residual_rms_db > allowed:
-        return False, (f"residuals of {fit.residual_rms_db:.2f} dB rms exceed the fit's stated uncertainty of "
-                       f"{allowed:.2f} dB: the model does not describe the data")
+    f = np.asarray(freqs_hz, dtype=np.float64)
+    g = np.asarray(gain_db, dtype=np.float64)
+    sig = np.hypot(np.asarray(sigma_db, dtype=np.float64), MODEL_SIGMA_DB)
+    resid = g - fit.response_db(f)
+    ok = np.isfinite(resid) & np.isfinite(sig)
+    chi = float(np.sqrt(np.mean((resid[ok] / sig[ok]) ** 2))) if ok.any() else float("inf")
+    if chi > MAX_NORMALISED_RESIDUAL:
+        return False, (f"residuals are {chi:.1f} times the points' stated uncertainty (rms, dB: "
+                       f"{fit.residual_rms_db:.2f}): the model does not describe the data")
     return True, ""
 
 

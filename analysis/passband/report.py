@@ -25,7 +25,6 @@ class PassbandReport:
     fit: PassbandFit
     coverage: Coverage
     plan: object
-    refined_plan: object = None
 
     def verdict(self) -> str:
         """One plain-words sentence: width, centre, stations covered, covered or not."""
@@ -78,7 +77,9 @@ class PassbandReport:
             "stagger_edge_atten_db": list(plan.edge_atten_db),
             "stagger_ripple_db": plan.ripple_db,
             "stagger_peak_gain_change_db": plan.peak_gain_change_db,
-            "stagger_plan_refined": None if self.refined_plan is None else self.refined_plan.to_dict(),
+            "stagger_insertion_loss_db": list(plan.insertion_loss_db),
+            "stagger_q_unloaded": plan.q_unloaded,
+            "stagger_q_unloaded_assumed": plan.q_unloaded_assumed,
             "synchronous_shrinkage": shrinkage_factor(fit.n_circuits),
             "points": [{"freq_hz": float(f), "gain_db": float(g)} for f, g in zip(curve.freqs_hz, curve.gain_db)],
             "notes": list(curve.notes) + list(fit.notes),
@@ -86,7 +87,7 @@ class PassbandReport:
 
 
 def analyse_passband(curve, target_hz: tuple[float, float], *, max_circuits: int = MAX_CIRCUITS,
-                     seed: int = 0, circuits: int | None = None) -> PassbandReport:
+                     seed: int = 0, circuits: int | None = None, q_unloaded: float | None = None) -> PassbandReport:
     """Fit ``curve`` (a :class:`analysis.passband.data.GainCurve`), check the target, plan retuning.
 
     The stagger plan (:func:`analysis.passband.stagger.design_stagger`) has the fitted number of circuits
@@ -99,6 +100,5 @@ def analyse_passband(curve, target_hz: tuple[float, float], *, max_circuits: int
         floor_offset=curve.source.startswith("noise-floor"), circuits=circuits,
     )
     cov = coverage(fit, target, curve.stations_hz)
-    plan = design_stagger(target, fit.n_circuits, measured_stages=fit.stages)
-    refined = design_stagger(target, fit.n_circuits, measured_stages=fit.stages, refine=True)
-    return PassbandReport(curve=curve, fit=fit, coverage=cov, plan=plan, refined_plan=refined)
+    plan = design_stagger(target, fit.n_circuits, measured_stages=fit.stages, q_unloaded=q_unloaded)
+    return PassbandReport(curve=curve, fit=fit, coverage=cov, plan=plan)

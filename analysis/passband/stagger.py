@@ -19,29 +19,70 @@ reported. The plan is centred on the **geometric** centre ``sqrt(f_lo f_hi)`` of
 tuned circuit's response is symmetric in ``f/f0``, so the geometric centre balances the edges);
 offsets are added arithmetically to it.
 
-Gain cost
----------
-A tuned stage's voltage gain times its bandwidth is fixed by the device and the circuit
-capacitance (``A_v BW = g_m / (2 pi C)``), so widening a stage from ``BW`` to ``BW'`` changes
-its power gain by ``20 log10(BW / BW')`` dB. A staggered cascade also loses gain at its peak,
-because no circuit is at resonance there: the product of the normalised circuit responses peaks
-at ``prod(sin^2 theta_k)`` in the narrowband form (-6.02 dB for a pair, -12.04 dB for a triple),
-computed here exactly.
+Exact bandpass design
+---------------------
+The plan itself is the maximally flat (Butterworth) bandpass by the exact lowpass-to-bandpass
+transform ``S = (s^2 + w0^2) / (B s)`` with ``w0 = 2 pi sqrt(f_lo f_hi)`` and ``B = 2 pi (f_hi -
+f_lo)``: each Butterworth pole ``S_k = exp(j pi (2k + n - 1) / (2n))`` gives the bandpass poles
+``s = (S_k B +- sqrt(S_k^2 B^2 - 4 w0^2)) / 2``; the ``n`` poles in the upper half plane are the
+``n`` tuned circuits, each with ``f0 = |s| / 2 pi`` and loaded ``Q = |s| / (2 |Re s|)``. A tuned
+circuit is a bandpass section ``s / (s^2 + s w0/Q + w0^2)``, so the cascade's magnitude is the
+Butterworth bandpass ``1 / (1 + ((f^2 - f0^2) / (f (f_hi - f_lo)))^(2n))`` exactly: -3.01 dB at
+both target edges. For 88-100 MHz and three circuits this gives 88.753, 93.808 and 99.151 MHz
+with Q 15.66, 7.82 and 15.66 (the check in the tests). The narrowband form above is kept for
+its published offsets and widths.
+
+Gain cost with passive tuned circuits
+-------------------------------------
+A VHF preamp's selectivity comes from passive tuned circuits. A circuit of unloaded Q ``Qu``
+loaded to ``Ql`` passes ``1 - Ql/Qu`` of the voltage at resonance: insertion loss
+``IL = -20 log10(1 - Ql/Qu)`` dB (standard filter result). A staggered cascade also loses at
+its peak because no circuit is at resonance there (the product of the normalised circuit
+responses, computed exactly). ``Qu`` is the user's figure, or an assumed 150 (a typical air-core
+VHF coil; common practice, no source) flagged in the plan.
 """
 
 from __future__ import annotations
 
-from dataclasses import dataclass, replace
+from dataclasses import dataclass
 from typing import Sequence
 
 import numpy as np
-from scipy.optimize import least_squares
 
 from analysis.errors import BadParameterError
 from analysis.passband.fit import TunedStage, cascade_response_db, check_target
 
 #: Largest number of circuits a plan is made for.
 MAX_STAGGER = 6
+#: Unloaded Q assumed for a VHF tuned circuit when none is given (common practice, no source).
+ASSUMED_Q_UNLOADED = 150.0
+
+
+def insertion_loss_db(q_loaded: float, q_unloaded: float) -> float:
+    """Insertion loss at resonance of a tuned circuit loaded to ``q_loaded``, ``-20 log10(1 - Ql/Qu)`` dB."""
+    if not (0 < q_loaded < q_unloaded):
+        raise BadParameterError(
+            f"a circuit loaded to Q {q_loaded:.3g} needs an unloaded Q above it (got {q_unloaded:.3g}); "
+            "give the coil's unloaded Q"
+        )
+    return float(-20.0 * np.log10(1.0 - q_loaded / q_unloaded))
+
+
+def butterworth_bandpass_stages(target_hz: tuple[float, float], n: int) -> tuple[TunedStage, ...]:
+    """The ``n`` tuned circuits of the maximally flat bandpass for ``target_hz`` (exact transform,
+    see the module notes), lowest frequency first. Pure and cheap (a live display may call it)."""
+    if int(n) != n or not 1 <= n <= MAX_STAGGER:
+        raise BadParameterError(f"stagger plans are made for 1..{MAX_STAGGER} circuits, got {n}")
+    lo, hi = check_target(*target_hz)
+    w0 = 2.0 * np.pi * np.sqrt(lo * hi)
+    bw = 2.0 * np.pi * (hi - lo)
+    k = np.arange(1, n + 1)
+    lp = np.exp(1j * np.pi * (2 * k + n - 1) / (2 * n))  # left-half-plane Butterworth poles
+    disc = np.sqrt(lp * lp * bw * bw - 4.0 * w0 * w0 + 0j)
+    poles = np.concatenate([(lp * bw + disc) / 2.0, (lp * bw - disc) / 2.0])
+    upper = poles[poles.imag > 0]
+    stages = [TunedStage(f0_hz=float(abs(p) / (2 * np.pi)), q=float(abs(p) / (2.0 * abs(p.real)))) for p in upper]
+    return tuple(sorted(stages, key=lambda st: st.f0_hz))
 
 
 def shrinkage_factor(n: int) -> float:
@@ -100,8 +141,10 @@ class StaggerPlan:
     target's lower and upper edges relative to the cascade's own peak (the narrowband form gives
     -3.01 dB at both); ``ripple_db`` is max minus min over the target; ``cascade_peak_db`` is the
     exact cascade's peak relative to every circuit at its own resonance (0 dB for one circuit).
-    ``peak_gain_change_db`` compares the plan's peak gain with the measured circuits' at a fixed
-    gain-bandwidth product per stage (None when no measured circuits were given).
+    ``insertion_loss_db`` is each circuit's loss at resonance for unloaded Q ``q_unloaded``
+    (``q_unloaded_assumed``: not given, :data:`ASSUMED_Q_UNLOADED` used);
+    ``peak_gain_change_db`` compares the plan's peak gain with the measured circuits' for passive
+    circuits of that unloaded Q (None when no measured circuits were given).
     """
 
     n_circuits: int
@@ -117,6 +160,9 @@ class StaggerPlan:
     cascade_peak_db: float
     narrowband_cascade_peak_db: float
     peak_gain_change_db: float | None
+    q_unloaded: float = ASSUMED_Q_UNLOADED
+    q_unloaded_assumed: bool = True
+    insertion_loss_db: tuple[float, ...] = ()
 
     def response_db(self, freq_hz: np.ndarray | float, relative_to_peak: bool = True) -> np.ndarray:
         """Exact response of the plan in dB (relative to its own peak by default)."""
@@ -139,6 +185,9 @@ class StaggerPlan:
             "cascade_peak_db": self.cascade_peak_db,
             "narrowband_cascade_peak_db": self.narrowband_cascade_peak_db,
             "peak_gain_change_db": self.peak_gain_change_db,
+            "q_unloaded": self.q_unloaded,
+            "q_unloaded_assumed": self.q_unloaded_assumed,
+            "insertion_loss_db": list(self.insertion_loss_db),
         }
 
 
@@ -150,37 +199,35 @@ def _peak_db(stages: Sequence[TunedStage]) -> float:
     return float(np.max(cascade_response_db(grid, stages, 0.0)))
 
 
-def peak_gain_change_db(new_stages: Sequence[TunedStage], old_stages: Sequence[TunedStage]) -> float:
-    """Peak-gain change (dB) from ``old_stages`` to ``new_stages`` at fixed gain-bandwidth per stage.
-
-    ``sum 20 log10(BW_old,k) - sum 20 log10(BW_new,k) + peak_new - peak_old``, where ``peak`` is
-    the exact cascade peak relative to every circuit at resonance. The circuit counts must match.
+def peak_gain_change_db(new_stages: Sequence[TunedStage], old_stages: Sequence[TunedStage],
+                        q_unloaded: float = ASSUMED_Q_UNLOADED) -> float:
+    """Peak-gain change (dB) from ``old_stages`` to ``new_stages`` built from passive circuits of
+    unloaded Q ``q_unloaded``: ``sum IL_old - sum IL_new + peak_new - peak_old``, with ``IL`` the
+    insertion loss of each circuit (:func:`insertion_loss_db`) and ``peak`` the exact cascade peak
+    relative to every circuit at resonance. The circuit counts must match.
     """
     if len(new_stages) != len(old_stages) or not new_stages:
         raise BadParameterError(
             f"gain comparison needs the same number of circuits ({len(new_stages)} vs {len(old_stages)})"
         )
-    width_term = sum(20.0 * np.log10(o.bw_hz) for o in old_stages) - sum(
-        20.0 * np.log10(s.bw_hz) for s in new_stages
-    )
-    return float(width_term + _peak_db(new_stages) - _peak_db(old_stages))
+    loss_old = sum(insertion_loss_db(o.q, q_unloaded) for o in old_stages)
+    loss_new = sum(insertion_loss_db(s.q, q_unloaded) for s in new_stages)
+    return float(loss_old - loss_new + _peak_db(new_stages) - _peak_db(old_stages))
 
 
-def _plan_from(center: float, bandwidth: float, target: tuple[float, float], n_circuits: int,
-               measured_stages: Sequence[TunedStage] | None) -> StaggerPlan:
+def _plan_from(stages: Sequence[TunedStage], center: float, bandwidth: float, target: tuple[float, float],
+               measured_stages: Sequence[TunedStage] | None, q_unloaded: float | None) -> StaggerPlan:
     lo, hi = target
-    offs, widths = stagger_normalised(n_circuits)
-    stages = []
-    for o, w in zip(offs, widths):
-        f0 = center + o * bandwidth
-        stages.append(TunedStage(f0_hz=float(f0), q=float(f0 / (w * bandwidth))))
+    n_circuits = len(stages)
+    _offs, widths = stagger_normalised(n_circuits)
     peak = _peak_db(stages)
     grid = np.linspace(lo, hi, 4001)
     resp = cascade_response_db(grid, stages, 0.0) - peak
     edges = tuple(float(v) for v in cascade_response_db(np.array([lo, hi]), stages, 0.0) - peak)
+    qu = ASSUMED_Q_UNLOADED if q_unloaded is None else float(q_unloaded)
     change = None
-    if measured_stages is not None:
-        change = peak_gain_change_db(stages, measured_stages)
+    if measured_stages is not None and all(st.q < qu for st in list(stages) + list(measured_stages)):
+        change = peak_gain_change_db(stages, measured_stages, qu)
     return StaggerPlan(
         n_circuits=int(n_circuits),
         center_hz=float(center),
@@ -188,13 +235,16 @@ def _plan_from(center: float, bandwidth: float, target: tuple[float, float], n_c
         bandwidth_hz=float(bandwidth),
         target_hz=(lo, hi),
         stages=tuple(stages),
-        offsets_hz=tuple(float(o * bandwidth) for o in offs),
+        offsets_hz=tuple(float(st.f0_hz - center) for st in stages),
         edge_atten_db=(edges[0], edges[1]),
         ripple_db=float(resp.max() - resp.min()),
         worst_db=float(resp.min()),
         cascade_peak_db=peak,
         narrowband_cascade_peak_db=float(np.sum(10.0 * np.log10(widths ** 2))),
         peak_gain_change_db=change,
+        q_unloaded=qu,
+        q_unloaded_assumed=q_unloaded is None,
+        insertion_loss_db=tuple(insertion_loss_db(st.q, qu) if st.q < qu else float("inf") for st in stages),
     )
 
 
@@ -203,9 +253,9 @@ def design_stagger(
     n_circuits: int,
     measured_stages: Sequence[TunedStage] | None = None,
     *,
-    refine: bool = False,
+    q_unloaded: float | None = None,
 ) -> StaggerPlan:
-    """Maximally flat stagger plan whose overall -3 dB width equals the target's width.
+    """Maximally flat (Butterworth) stagger plan whose -3 dB edges are the target's edges.
 
     Parameters
     ----------
@@ -214,30 +264,17 @@ def design_stagger(
     n_circuits : int
         Number of tuned circuits (the same as the preamp has).
     measured_stages : sequence of TunedStage, optional
-        The fitted circuits of the preamp; when given, the plan's peak-gain change at a fixed
-        gain-bandwidth product per stage is computed.
-    refine : bool
-        Keep the maximally flat proportions but shift the centre and scale the bandwidth
-        (numerically, a 2 x 2 least-squares solve) until the *exact* response is -3.01 dB at
-        both target edges; ``center_kind`` becomes ``"refined"``.
+        The fitted circuits of the preamp; when given, the plan's peak-gain change with passive
+        circuits of unloaded Q ``q_unloaded`` is computed.
+    q_unloaded : float, optional
+        Unloaded Q of the coils; default :data:`ASSUMED_Q_UNLOADED`, flagged as assumed.
 
     Returns
     -------
     StaggerPlan
-        Circuits at ``f_c + offset_k`` with ``Q_k = f_k / BW_k``; exact edge attenuation and
-        ripple over the target.
+        Circuits of the exact bandpass transform (:func:`butterworth_bandpass_stages`), checked
+        with the exact circuit response (edge attenuation, ripple) and their insertion loss.
     """
     lo, hi = check_target(*target_hz)
-    plan = _plan_from(float(np.sqrt(lo * hi)), hi - lo, (lo, hi), n_circuits, measured_stages)
-    if not refine:
-        return plan
-    half_power = -10.0 * np.log10(2.0)
-
-    def miss(p: np.ndarray) -> np.ndarray:
-        trial = _plan_from(plan.center_hz * (1.0 + p[0]), plan.bandwidth_hz * np.exp(p[1]), (lo, hi), n_circuits, None)
-        return np.asarray(trial.edge_atten_db) - half_power
-
-    res = least_squares(miss, np.zeros(2), bounds=([-0.2, -1.0], [0.2, 1.0]), xtol=1e-12, ftol=1e-12)
-    refined = _plan_from(plan.center_hz * (1.0 + res.x[0]), plan.bandwidth_hz * np.exp(res.x[1]), (lo, hi),
-                         n_circuits, measured_stages)
-    return replace(refined, center_kind="refined")
+    stages = butterworth_bandpass_stages((lo, hi), n_circuits)
+    return _plan_from(stages, float(np.sqrt(lo * hi)), hi - lo, (lo, hi), measured_stages, q_unloaded)

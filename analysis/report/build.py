@@ -34,7 +34,7 @@ from analysis.noise.workflow import NoiseResult
 from analysis.passband.fit import check_target
 from analysis.passband.report import PassbandReport
 from analysis.selection import Survey, as_survey
-from analysis.workflows import NoiseOptions, assess, gain_curve_for, noise_for, passband_for
+from analysis.workflows import NoiseOptions, assess, default_target_hz, gain_curve_for, noise_for, passband_for
 from survey.store import ChannelMatrix, EventRow, HopRow, RunRow, SweepRow, utc_now
 from survey.version import __version__
 
@@ -257,32 +257,6 @@ def read_overnight(survey: Survey, base_rows: list[SweepRow], test_rows: list[Sw
 
 
 # -- target band --------------------------------------------------------------------------
-def default_target_hz(sweeps: list[SweepRow], comparison: Comparison | None,
-                      curve_freqs_hz: np.ndarray | None = None) -> tuple[tuple[float, float] | None, str]:
-    """Target band when none is given: the band plan's edges, else the span of the channels
-    compared, else the span of the gain curve's points (Hz), with a note saying which."""
-    from survey.bandplan import parse_band
-    from survey.errors import PlanError
-
-    bands = sorted({s.band for s in sweeps})
-    if len(bands) == 1:
-        try:
-            plan = parse_band(bands[0])
-            return (float(plan.start_hz), float(plan.stop_hz)), (
-                f"target band not given: the band plan '{bands[0]}' edges are used")
-        except PlanError:
-            pass
-    if comparison is not None and comparison.channels:
-        freqs = [c.freq_hz for c in comparison.channels]
-        if max(freqs) > min(freqs):
-            return (float(min(freqs)), float(max(freqs))), (
-                "target band not given: the span of the channels measured is used (give --target START-STOP)")
-    if curve_freqs_hz is not None and np.size(curve_freqs_hz) >= 2 and np.ptp(curve_freqs_hz) > 0:
-        return (float(np.min(curve_freqs_hz)), float(np.max(curve_freqs_hz))), (
-            "target band not given: the span of the passband measurement is used (give --target START-STOP)")
-    return None, "target band not given and not derivable: give --target START-STOP (MHz)"
-
-
 # -- plain-words summary --------------------------------------------------------------------
 def _mhz_list(freqs_hz, limit: int = 8) -> str:
     shown = [f"{f / 1e6:.2f}" for f in list(freqs_hz)[:limit]]

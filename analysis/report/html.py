@@ -225,7 +225,8 @@ def _passband(r: Report, figures: Mapping[str, str]) -> str:
     head = ("<thead><tr><th class=\"num\">circuit</th><th class=\"num\">f0, MHz</th><th class=\"num\">loaded Q</th>"
             "<th class=\"num\">own -3 dB width, MHz</th></tr></thead>")
     change = "" if plan.peak_gain_change_db is None else (
-        f" Peak gain change at the same gain-bandwidth per stage: {plan.peak_gain_change_db:+.1f} dB.")
+        f" Peak gain change of the retuned passive circuits (unloaded Q {plan.q_unloaded:g}"
+        f"{', assumed' if plan.q_unloaded_assumed else ''}): {plan.peak_gain_change_db:+.1f} dB.")
     return (
         _kv(pairs)
         + _figure(figures, "passband", "Measured gain against frequency with the fitted tuned-circuit curve, the "
