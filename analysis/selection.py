@@ -20,6 +20,8 @@ from dataclasses import replace
 from pathlib import Path
 from typing import Callable, Sequence, TypeVar
 
+import numpy as np
+
 from analysis.terms import check_input, normalise_utc
 from analysis.errors import NoDataError
 from survey.store import (
@@ -40,6 +42,7 @@ from survey.store import (
     read_runs,
     read_sweep_matrix,
     spectra_span_hz,
+    sweeps_with_spectra,
 )
 
 T = TypeVar("T")
@@ -85,6 +88,7 @@ class Survey:
         self.db_path = Path(db_path)
         self._conn = open_for_reading(self.db_path)
         self._cache: dict[tuple, object] = {}
+        self._read: list[ChannelMatrix] = []
 
     # -- lifetime --------------------------------------------------------------------------
     @property
@@ -162,17 +166,46 @@ class Survey:
             )
         return rows
 
+    def all_sweeps(self) -> tuple[SweepRow, ...]:
+        """Every complete sweep, in time order (read once)."""
+        return self.memo(("all_sweeps",), lambda: tuple(list_sweeps(self._conn)))
+
     def find_sweeps(self, configuration: str | None = None, input: str | None = None,
                     since_utc: str | None = None, until_utc: str | None = None) -> tuple[SweepRow, ...]:
         """Complete sweeps matching the selection (possibly none); times as stored (UTC)."""
-        key = ("sweeps", configuration, input, since_utc, until_utc)
-        return self.memo(key, lambda: tuple(list_sweeps(self._conn, configuration=configuration, input=input,
-                                                        since_utc=since_utc, until_utc=until_utc)))
+        def select() -> tuple[SweepRow, ...]:
+            return tuple(s for s in self.all_sweeps()
+                         if (configuration is None or s.configuration == configuration)
+                         and (input is None or s.input == input)
+                         and (since_utc is None or s.started_utc >= since_utc)
+                         and (until_utc is None or s.started_utc < until_utc))
+        return self.memo(("sweeps", configuration, input, since_utc, until_utc), select)
 
     def channel_matrix(self, sweeps: Sequence[SweepRow]) -> ChannelMatrix:
-        """Raster-channel readings of ``sweeps`` (rows in the order given), read once."""
+        """Raster-channel readings of ``sweeps`` (rows in the order given), read once.
+
+        Sweeps already read as part of a larger request are taken from it (rows selected in
+        memory) instead of being read and decoded again.
+        """
         ids = tuple(int(s.id) for s in sweeps)
-        return self.memo(("channel_matrix", ids), lambda: read_sweep_matrix(self._conn, list(sweeps)))
+        return self.memo(("channel_matrix", ids), lambda: self._rows_from_read(ids) or
+                         self._remember(read_sweep_matrix(self._conn, list(sweeps))))
+
+    def _remember(self, matrix: ChannelMatrix) -> ChannelMatrix:
+        self._read.append(matrix)
+        return matrix
+
+    def _rows_from_read(self, ids: tuple[int, ...]) -> ChannelMatrix | None:
+        """The rows ``ids`` of a matrix read earlier, or None when no earlier read holds them all."""
+        for whole in self._read:
+            where = {int(s): i for i, s in enumerate(whole.sweep_ids.tolist())}
+            if all(i in where for i in ids):
+                take = np.asarray([where[i] for i in ids], np.int64)
+                return replace(whole, sweep_ids=whole.sweep_ids[take],
+                               started_utc=tuple(whole.started_utc[i] for i in take.tolist()),
+                               power_dbfs=whole.power_dbfs[take], noise_dbfs=whole.noise_dbfs[take],
+                               received=whole.received[take])
+        return None
 
     def item_matrix(self, sweeps: Sequence[SweepRow], kinds: tuple[str, ...] = ("fm",)):
         """The per-item matrix of ``sweeps`` that verdicts and counts are made on (see
@@ -202,12 +235,20 @@ class Survey:
         ids = tuple(int(i) for i in sweep_ids)
         return self.memo(("hops", ids), lambda: tuple(read_hops(self._conn, ids)))
 
+    def sweeps_with_spectra(self) -> frozenset[int]:
+        """Ids of the sweeps that kept spectra (read once)."""
+        return self.memo(("with_spectra",), lambda: frozenset(sweeps_with_spectra(self._conn)))
+
     def hop_spectra(self, sweep_id: int) -> tuple[HopSpectrum, ...]:
         """Kept spectra of one sweep with their hop settings (empty when none were kept)."""
+        if int(sweep_id) not in self.sweeps_with_spectra():
+            return ()
         return self.memo(("spectra", int(sweep_id)), lambda: tuple(read_hop_spectra(self._conn, sweep_id)))
 
     def spectra_span_hz(self, sweep_id: int) -> tuple[float, float] | None:
         """Frequency span (Hz) of the kept spectra of one sweep; None if none were kept."""
+        if int(sweep_id) not in self.sweeps_with_spectra():
+            return None
         return self.memo(("span", int(sweep_id)), lambda: spectra_span_hz(self._conn, sweep_id))
 
     def channel_hop_centers(self, sweep_id: int):

@@ -428,12 +428,14 @@ class ChannelMatrix:
 
     @property
     def cn_db(self) -> np.ndarray:
-        """Carrier-to-noise ``10 log10((P-N)/N)`` in dB; NaN where P <= N or not measured."""
-        p = np.power(10.0, self.power_dbfs.astype(np.float64) / 10.0)
-        n = np.power(10.0, self.noise_dbfs.astype(np.float64) / 10.0)
-        with np.errstate(divide="ignore", invalid="ignore"):
-            cn = 10.0 * np.log10((p - n) / n)
-        return np.where(np.isfinite(cn), cn, np.nan)
+        """Carrier-to-noise ``10 log10((P-N)/N)`` in dB (float32); NaN where P <= N or not measured.
+
+        Computed from the level difference, ``10 log10(10^((P - N)/10) - 1)``, in one pass.
+        """
+        with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+            excess = np.power(np.float32(10.0), (self.power_dbfs - self.noise_dbfs) / np.float32(10.0)) - np.float32(1.0)
+            cn = np.float32(10.0) * np.log10(excess)
+        return np.where(np.isfinite(cn), cn, np.float32(np.nan))
 
 
 def open_for_reading(path: str | Path) -> sqlite3.Connection:
@@ -712,6 +714,11 @@ def read_hop_spectra(conn: sqlite3.Connection, sweep_id: int) -> list[HopSpectru
         out.append(HopSpectrum(int(hop), float(fc), float(fs), int(ns), f0 + df * np.arange(n),
                                np.frombuffer(blob, dtype="<i2").astype(np.float64) / 100.0))
     return out
+
+
+def sweeps_with_spectra(conn: sqlite3.Connection) -> list[int]:
+    """Ids of the sweeps that kept spectra."""
+    return [int(r[0]) for r in conn.execute("SELECT DISTINCT sweep_id FROM spectra")]
 
 
 def spectra_span_hz(conn: sqlite3.Connection, sweep_id: int) -> tuple[float, float] | None:

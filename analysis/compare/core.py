@@ -134,15 +134,15 @@ def _opt(x, digits: int = 4) -> float | None:
 
 
 def _aligned(matrix, freqs_hz: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """C/N (dB), noise (dBFS) and detection flags of ``matrix`` on the axis ``freqs_hz`` (float64)."""
-    cn = np.asarray(matrix.cn_db, np.float64)
-    noise = np.asarray(matrix.noise_dbfs, np.float64)
+    """C/N (dB), noise (dBFS) and detection flags of ``matrix`` on the axis ``freqs_hz`` (float32)."""
+    cn = np.asarray(matrix.cn_db, np.float32)
+    noise = np.asarray(matrix.noise_dbfs, np.float32)
     det = np.asarray(matrix.detected, bool)
     if matrix.freqs_hz.size == freqs_hz.size and np.array_equal(matrix.freqs_hz, freqs_hz):
         return cn, noise, det
     cols = np.searchsorted(freqs_hz, matrix.freqs_hz)
     shape = (cn.shape[0], freqs_hz.size)
-    out = [np.full(shape, np.nan), np.full(shape, np.nan), np.zeros(shape, bool)]
+    out = [np.full(shape, np.nan, np.float32), np.full(shape, np.nan, np.float32), np.zeros(shape, bool)]
     out[0][:, cols], out[1][:, cols], out[2][:, cols] = cn, noise, det
     return out[0], out[1], out[2]
 
@@ -222,7 +222,7 @@ def compare_matrices(
         rise_same = column_mean_sd(np.where(both, d_n, np.nan))[0]
         rise_all = column_mean_sd(d_n)[0]
         rise = np.where(cn_iv.n > 0, rise_same, rise_all)
-        det_iv = paired_t(dt[ti].astype(np.float64) - db[bi].astype(np.float64), confidence)
+        det_iv = paired_t(dt[ti].astype(np.float32) - db[bi].astype(np.float32), confidence)
         method = (f"paired: {bi.size} base/test sweep pairs closer than {tol_s:.1f} s; mean of the paired C/N "
                   f"differences with its Student t {pct} interval (n - 1 degrees of freedom), from "
                   f"{MIN_PAIRS} pairs up; base and test C/N are means over the same pairs")
@@ -231,7 +231,7 @@ def compare_matrices(
         base_mean = column_mean_sd(cb)[0]
         test_mean = base_mean + cn_iv.mean
         rise = welch_t(nt, nb, confidence).mean
-        det_iv = welch_t(dt.astype(np.float64), db.astype(np.float64), confidence)
+        det_iv = welch_t(dt.astype(np.float32), db.astype(np.float32), confidence)
         method = ((("unpaired (as asked): " if pairing == "unpaired" else
                     f"unpaired: sweeps not alternating (only {bi.size} of {smaller} found a partner in time); "))
                   + f"difference of mean C/N with Welch's {pct} t interval (Welch-Satterthwaite degrees of "

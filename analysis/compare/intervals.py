@@ -54,15 +54,21 @@ def _t_two_sided_p(t_stat: np.ndarray, dof: np.ndarray) -> np.ndarray:
 
 
 def column_mean_sd(values: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """Mean, sample standard deviation (``n - 1``) and count of each column, NaN ignored."""
-    x = np.asarray(values, np.float64)
+    """Mean, sample standard deviation (``n - 1``) and count of each column, NaN ignored.
+
+    Works in the values' own precision (float32 readings stay float32) and accumulates the
+    sums in float64.
+    """
+    x = np.asarray(values)
+    if x.dtype.kind != "f":
+        x = x.astype(np.float64)
     ok = np.isfinite(x)
     n = ok.sum(axis=0)
-    filled = np.where(ok, x, 0.0)
+    filled = np.where(ok, x, x.dtype.type(0))
     with np.errstate(invalid="ignore", divide="ignore"):
-        mean = filled.sum(axis=0) / n
-        dev = np.where(ok, x - mean, 0.0)
-        var = (dev * dev).sum(axis=0) / (n - 1)
+        mean = filled.sum(axis=0, dtype=np.float64) / n
+        dev = np.where(ok, x - mean.astype(x.dtype), x.dtype.type(0))
+        var = np.einsum("ij,ij->j", dev, dev, dtype=np.float64) / (n - 1)
     mean = np.where(n > 0, mean, np.nan)
     sd = np.sqrt(np.where(n > 1, var, np.nan))
     return mean, sd, n

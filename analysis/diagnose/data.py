@@ -84,9 +84,11 @@ def raster_step_hz(freqs_hz: np.ndarray) -> float:
 
 
 def _mean_lin(values_db: np.ndarray) -> np.ndarray:
-    lin = np.asarray(db_to_ratio(values_db.astype(np.float64)))
-    cnt = np.sum(np.isfinite(lin), axis=0)
-    total = np.nansum(lin, axis=0)
+    """Column means in linear power of levels in dB (float32 powers, float64 sums), NaN ignored."""
+    lin = np.power(np.float32(10.0), np.asarray(values_db, np.float32) / np.float32(10.0))
+    ok = np.isfinite(lin)
+    cnt = ok.sum(axis=0)
+    total = np.where(ok, lin, np.float32(0.0)).sum(axis=0, dtype=np.float64)
     return np.where(cnt > 0, total / np.maximum(cnt, 1), np.nan)
 
 
