@@ -35,7 +35,6 @@ import numpy as np
 
 from analysis.selection import Survey, as_survey
 from analysis.terms import check_input, normalise_utc, utc_to_epoch_s
-from survey.units import db_to_ratio, ratio_to_db
 from survey.store import ChannelMatrix
 
 #: Name of the spread measure reported beside every median.
@@ -73,11 +72,12 @@ class ConfigurationStats:
 def cn_db_from(power_dbfs: np.ndarray, noise_dbfs: np.ndarray, received: np.ndarray) -> np.ndarray:
     """Per-sweep C/N ``10 log10((P - N)/N)`` in dB (float32), NaN where not received or P <= N.
 
-    Computed from the level difference, ``10 log10(10**((P - N)/10) - 1)``, in one pass.
+    Computed from the level difference, ``10 log10(10**((P - N)/10) - 1)``, in one float32 pass.
     """
-    with np.errstate(invalid="ignore", over="ignore"):
-        excess = np.asarray(db_to_ratio(np.asarray(power_dbfs, np.float32) - np.asarray(noise_dbfs, np.float32)))
-        cn = np.asarray(ratio_to_db(excess - 1.0), np.float32)
+    ten = np.float32(10.0)
+    with np.errstate(invalid="ignore", over="ignore", divide="ignore"):
+        excess = np.power(ten, (np.asarray(power_dbfs, np.float32) - np.asarray(noise_dbfs, np.float32)) / ten)
+        cn = ten * np.log10(excess - np.float32(1.0))
     return np.where(received & np.isfinite(cn), cn, np.float32(np.nan))
 
 

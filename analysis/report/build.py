@@ -25,7 +25,7 @@ from pathlib import Path
 
 import numpy as np
 
-from analysis.channel_stats import masked_cn_db, utc_to_epoch_s
+from analysis.channel_stats import cn_db_from, masked_cn_db, utc_to_epoch_s
 from analysis.compare.core import Comparison
 from analysis.diagnose.core import Diagnosis
 from analysis.errors import AnalysisError, BadParameterError, NoDataError
@@ -102,7 +102,8 @@ class OvernightSeries:
         cols = np.nonzero(m.freqs_hz == int(freq_hz))[0]
         if cols.size == 0:
             return t, np.full(t.size, np.nan)
-        return t, np.asarray(masked_cn_db(m)[:, cols[0]], np.float64)
+        j = cols[0]
+        return t, np.asarray(cn_db_from(m.power_dbfs[:, j], m.noise_dbfs[:, j], m.received[:, j]), np.float64)
 
 
 @dataclass(frozen=True)
@@ -239,6 +240,7 @@ def read_overnight(survey: Survey, base_rows: list[SweepRow], test_rows: list[Sw
         lack = [r for r, rows in (("base", base_rows), ("test", test_rows)) if not rows]
         raise NoDataError(f"no antenna sweeps of the {' and '.join(lack)} configuration to follow over time; "
                           "record antenna sweeps of both")
+    survey.channel_matrix(list(base_rows) + list(test_rows))  # one read; the two below are slices of it
     mat_b = survey.channel_matrix(base_rows)
     mat_t = survey.channel_matrix(test_rows)
     label = {r.id: r.configuration for r in base_rows + test_rows}

@@ -175,6 +175,10 @@ def _edges(centres: np.ndarray, fallback: float) -> np.ndarray:
     return np.concatenate([[c[0] - (mid[0] - c[0])], mid, [c[-1] + (c[-1] - mid[-1])]])
 
 
+#: Most sweeps drawn as image rows in a waterfall (more are thinned to every k-th sweep).
+WATERFALL_MAX_ROWS = 720
+
+
 def waterfall_png(series: OvernightSeries, base: str, test: str) -> bytes:
     """Time-by-frequency images of SNR (C/N), base above test, on one colour scale.
 
@@ -199,12 +203,15 @@ def waterfall_png(series: OvernightSeries, base: str, test: str) -> bytes:
             ax.text(0.5, 0.5, "no sweeps", ha="center", va="center", transform=ax.transAxes)
             continue
         order = np.argsort(t)
-        spacing = float(np.median(np.diff(t[order]))) if t.size > 1 else 60.0
+        step = max(1, -(-t.size // WATERFALL_MAX_ROWS))  # an image row per sweep up to the limit
+        order = order[::step]
+        spacing = float(np.median(np.diff(t[order]))) if order.size > 1 else 60.0
         y = clock(_edges(t[order], spacing))
         x = _edges(m.freqs_hz.astype(np.float64), 100e3) / 1e6
         mesh = ax.pcolormesh(x, y, np.ma.masked_invalid(cn[order]), cmap="cividis", vmin=vmin, vmax=vmax,
                              shading="flat", zorder=1)
-        ax.set_title(f"{role}: {mpl_text(label)} ({t.size} sweeps); hatched: not received")
+        shown = f"{t.size} sweeps" if step == 1 else f"every {step}th of {t.size} sweeps"
+        ax.set_title(f"{role}: {mpl_text(label)} ({shown}); hatched: not received")
         ax.set_ylabel(clock.label.replace("time since", "sweep start after"), fontsize="small")
     axes[-1].set_xlabel("channel frequency, MHz")
     if mesh is not None:
