@@ -1,8 +1,10 @@
 """Passband of a preamp: gain curve from the survey, tuned-circuit fit, stagger tuning advice.
 
 Cheap pure functions for a live tuning display: :func:`fit_passband` (fit tuned circuits to
-a gain curve), :func:`cascade_response_db` (response of given circuits) and
-:func:`design_stagger` (retuning plan for a target band).
+a gain curve, ``circuits=N`` when known), :func:`fit_trust` (may the fit be headlined),
+:func:`cascade_response_db` (response of given circuits), :func:`butterworth_bandpass_stages`
+(the maximally flat circuits for a band), :func:`design_stagger` (the checked retuning plan)
+and :func:`insertion_loss_db` (passive circuit loss from loaded and unloaded Q).
 """
 
 from analysis.passband.fit import (
@@ -14,8 +16,10 @@ from analysis.passband.fit import (
     coverage,
     curve_features,
     fit_passband,
+    fit_trust,
 )
-from analysis.passband.stagger import StaggerPlan, design_stagger
+from analysis.passband.stagger import StaggerPlan, butterworth_bandpass_stages, design_stagger, insertion_loss_db
 
-__all__ = ["Coverage", "PassbandFit", "StaggerPlan", "TunedStage", "cascade_response_db", "check_target",
-           "coverage", "curve_features", "design_stagger", "fit_passband"]
+__all__ = ["Coverage", "PassbandFit", "StaggerPlan", "TunedStage", "butterworth_bandpass_stages",
+           "cascade_response_db", "check_target", "coverage", "curve_features", "design_stagger", "fit_passband",
+           "fit_trust", "insertion_loss_db"]

@@ -18,6 +18,7 @@ from __future__ import annotations
 import base64
 import tempfile
 from dataclasses import replace
+from datetime import datetime, timezone
 from pathlib import Path
 
 import numpy as np
@@ -106,8 +107,6 @@ class _Clock:
         self.t0 = float(t.min()) if t.size else 0.0
         span = float(t.max() - t.min()) if t.size else 0.0
         self.scale, unit = (60.0, "min") if span <= 3 * 3600 else (3600.0, "h")
-        from datetime import datetime, timezone
-
         start = datetime.fromtimestamp(self.t0, timezone.utc).strftime("%Y-%m-%d %H:%M:%S")
         self.label = f"time since {start} UTC, {unit}"
 
