@@ -29,9 +29,9 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 from analysis.errors import BadParameterError, NoDataError
-from analysis.diagnose import checks
-from analysis.diagnose import lines as lines_mod
-from analysis.diagnose import noise_checks as diagnose_noise
+import analysis.diagnose.checks as checks
+import analysis.diagnose.lines as lines_mod
+import analysis.diagnose.noise_checks as diagnose_noise
 from analysis.diagnose.data import gain_model, hop_rows, spill_channels, summarise_channels
 from analysis.findings import KINDS, SEVERITIES, Finding
 from analysis.noise.workflow import NoiseResult

@@ -21,7 +21,7 @@ from pathlib import Path
 
 import numpy as np
 
-from analysis.noise import arithmetic as nz
+import analysis.noise.arithmetic as nz
 from analysis.errors import MismatchError, NoDataError
 from analysis.selection import Survey, as_survey
 from survey.store import SweepRow

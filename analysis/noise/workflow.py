@@ -29,8 +29,8 @@ from numpy.typing import ArrayLike
 from scipy.interpolate import PchipInterpolator
 
 from analysis.errors import BadParameterError, MissingInputError
-from analysis.noise import arithmetic as nz
-from analysis.noise import outside as p372
+import analysis.noise.arithmetic as nz
+import analysis.noise.outside as p372
 from analysis.noise.groups import check_same_setting, read_input_groups
 from analysis.selection import Survey
 from survey.units import T0_K, db_to_ratio, k_to_nf_db, nf_db_to_k, ratio_to_db
