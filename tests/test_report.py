@@ -160,7 +160,7 @@ def test_table_rows_carry_the_comparison_numbers(tmp_path):
     assert cells[0] == "88.10" and float(cells[3]) == pytest.approx(ch.delta_cn_db, abs=0.005)
     assert float(cells[3]) == pytest.approx(5.0, abs=1.0)
     assert float(cells[5]) == pytest.approx(14.0, abs=1.0) and float(cells[6]) == pytest.approx(9.0, abs=0.5)
-    assert cells[7].endswith(ch.verdict)
+    assert cells[7] == str(ch.pairs) and cells[8].endswith(ch.verdict)
 
 
 def test_user_text_is_escaped(tmp_path):

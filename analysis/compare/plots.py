@@ -2,12 +2,12 @@
 
 Three panels sharing the frequency axis (MHz):
 
-1. SNR (C/N) of both configurations per channel, a marker at every received station (base:
-   open circles, test: filled squares, joined by a dotted stem; triangles mark stations
-   gained or lost);
-2. delta C/N per channel (test minus base) as bars with their confidence intervals, hatched
+1. SNR (C/N) of both configurations per compared item (station, or raster channel with
+   ``--channels``; base: open circles, test: filled squares, joined by a dotted stem; triangles
+   mark stations gained or lost), with the mono and stereo listenable thresholds;
+2. delta C/N per item (test minus base) as bars with their confidence intervals, hatched
    where the verdict is improved or worse;
-3. gain (ratio of P - N) and noise rise (ratio of N) per channel.
+3. gain (ratio of P - N) and noise rise (ratio of N) per item.
 
 Greyscale- and colour-blind-safe: the series differ by marker, line style and hatching, and
 the colours (blue / orange from the Okabe-Ito palette, Okabe & Ito 2008) are only a bonus.

@@ -163,7 +163,8 @@ def _channel_table(r: Report) -> str:
     pct = f"{100 * c.thresholds['confidence']:g} %"
     head = ("<tr><th class=\"num\">MHz</th><th class=\"num\">SNR base, dB</th><th class=\"num\">SNR test, dB</th>"
             f"<th class=\"num\">change, dB</th><th class=\"num\">{e(pct)} interval, dB</th>"
-            "<th class=\"num\">gain, dB</th><th class=\"num\">noise rise, dB</th><th>verdict</th></tr>")
+            "<th class=\"num\">gain, dB</th><th class=\"num\">noise rise, dB</th><th class=\"num\">pairs</th>"
+            "<th>verdict</th></tr>")
     rows = []
     for ch in sorted(c.channels, key=lambda x: x.freq_hz):
         interval = "–" if ch.ci_low_db is None else f"{ch.ci_low_db:+.2f} to {ch.ci_high_db:+.2f}"
@@ -173,11 +174,12 @@ def _channel_table(r: Report) -> str:
             f'<td class="num">{_mhz(ch.freq_hz)}</td><td class="num">{_num(ch.base_cn_db, "{:.1f}")}</td>'
             f'<td class="num">{_num(ch.test_cn_db, "{:.1f}")}</td><td class="num">{_num(ch.delta_cn_db, "{:+.2f}")}</td>'
             f'<td class="num">{e(interval)}</td><td class="num">{_num(ch.gain_db)}</td>'
-            f'<td class="num">{_num(ch.noise_rise_db)}</td>'
+            f'<td class="num">{_num(ch.noise_rise_db)}</td><td class="num">{ch.pairs}</td>'
             f'<td class="verdict">{e(_VERDICT_MARK.get(v, ""))} {e(v)}</td></tr>'
         )
-    return (f'<table id="channel-table"><caption>Every channel compared: \'{e(c.test)}\' (test) against '
-            f"'{e(c.base)}' (base), {c.n_base_sweeps} + {c.n_test_sweeps} sweeps"
+    return (f'<table id="channel-table"><caption>Every {e(c.unit)} compared: \'{e(c.test)}\' (test) against '
+            f"'{e(c.base)}' (base), {c.n_base_sweeps} + {c.n_test_sweeps} sweeps; base and test SNR over the same "
+            f"pairs as the change"
             f"{', ' + str(c.n_pairs) + ' pairs' if c.paired else ', unpaired'}</caption>"
             f"<thead>{head}</thead><tbody>{''.join(rows)}</tbody></table>")
 
@@ -191,9 +193,10 @@ def _channels(r: Report, figures: Mapping[str, str]) -> str:
         f"<p>{e(c.method)}.</p>"
         + _figure(figures, "comparison", "SNR of both configurations, the change with its interval, and gain and "
                   "noise rise against channel frequency",
-                  "Top: SNR (C/N) per channel, base and test. Middle: change in SNR with its interval. "
+                  f"Top: SNR (C/N) per {c.unit}, base and test. Middle: change in SNR with its interval. "
                   "Bottom: gain (ratio of P - N) and noise rise (ratio of N), dB.")
-        + f"<p>Verdict marks: {e(marks)}.</p>"
+        + f"<p>Verdict marks: {e(marks)}. {e(c.thresholds['improved_if'])} for improved; "
+        f"{e(c.thresholds['unchanged_if'])} for unchanged; otherwise undetermined.</p>"
         + _channel_table(r)
     )
 
