@@ -22,7 +22,8 @@ def _count(n: int, unit: str) -> str:
 
 
 def verdict_line(summary: dict) -> str:
-    """``"Stations helped 3 (94.0, 96.2, 101.5 MHz), hurt 1 (...), lost 0, gained 1 (...); 2 undetermined, 1 unchanged."``"""
+    """The counts line, e.g. ``"Stations helped 3 (94.0, 96.2, 101.5 MHz), hurt 1 (...), lost 0, gained 1
+    (...); 2 undetermined, 1 unchanged (of 8 stations)."``"""
     unit = summary.get("unit", "station")
     freqs = summary["frequencies_hz"]
     parts = []

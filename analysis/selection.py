@@ -122,7 +122,8 @@ class Survey:
         return tuple(sorted({c.configuration for c in self.label_counts()}))
 
     def present(self) -> str:
-        """What the database holds, e.g. ``"bare (antenna: 7 sweeps, terminated: 3 sweeps); preamp-a (antenna: 7 sweeps)"``."""
+        """What the database holds, e.g.
+        ``"bare (antenna: 7 sweeps, terminated: 3 sweeps); preamp-a (antenna: 7 sweeps)"``."""
         by_label: dict[str, list[str]] = {}
         for c in self.label_counts():
             by_label.setdefault(c.configuration, []).append(f"{c.input}: {c.sweeps} sweeps")

@@ -76,7 +76,8 @@ def has_noise_runs(survey: Survey, labels) -> bool:
     return any(survey.has(label, inp) for label in labels if label for inp in NOISE_RUN_INPUTS)
 
 
-def noise_for(survey: Survey, receiver: str, system: str | None, options: NoiseOptions) -> tuple[NoiseResult | None, str]:
+def noise_for(survey: Survey, receiver: str, system: str | None,
+              options: NoiseOptions) -> tuple[NoiseResult | None, str]:
     """The noise workflow for ``receiver`` (and ``system``), or None with the reason; computed once."""
     def compute():
         if not has_noise_runs(survey, (receiver, system)):
@@ -113,7 +114,8 @@ def diagnose_chain(source: Survey | str | Path, base: str, test: str, *, enr_db:
     """:func:`analysis.diagnose.core.diagnose` with its inputs (gain curve, receiver noise) measured
     from the survey: the whole ``diagnose`` command as one call."""
     if base == test:
-        raise BadParameterError(f"--base and --test are both {base!r}; give the label without and the label with the preamp")
+        raise BadParameterError(
+            f"--base and --test are both {base!r}; give the label without and the label with the preamp")
     survey, opened = as_survey(source)
     try:
         survey.require([base, test, attenuated])
@@ -224,7 +226,8 @@ def assess(source: Survey | str | Path, base: str, test: str, *, options: NoiseO
                 pb, _ = passband_for(survey, base, test, target_hz, seed=seed)
             except AnalysisError:
                 pb = None
-            heard = [c.freq_hz for c in result.items if c.base_detected_fraction >= 0.5 or c.test_detected_fraction >= 0.5]
+            heard = [c.freq_hz for c in result.items
+                     if c.base_detected_fraction >= 0.5 or c.test_detected_fraction >= 0.5]
             findings += passband_findings(pb, heard)
         pred = predicted_noise_rise_note(noise, result) if noise is not None else f"not available: {noise_note}"
         split = noise_split_note(noise)

@@ -432,9 +432,10 @@ class ChannelMatrix:
 
         Computed from the level difference, ``10 log10(10^((P - N)/10) - 1)``, in one pass.
         """
+        ten = np.float32(10.0)
         with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
-            excess = np.power(np.float32(10.0), (self.power_dbfs - self.noise_dbfs) / np.float32(10.0)) - np.float32(1.0)
-            cn = np.float32(10.0) * np.log10(excess)
+            excess = np.power(ten, (self.power_dbfs - self.noise_dbfs) / ten) - np.float32(1.0)
+            cn = ten * np.log10(excess)
         return np.where(np.isfinite(cn), cn, np.float32(np.nan))
 
 

@@ -88,7 +88,8 @@ def _worst_per_hop(hops: list[tuple[HopRow, str]]) -> dict[tuple[str, float], fl
     return worst
 
 
-def check_clipping(test_hops: list[tuple[HopRow, str]], base_hops: list[tuple[HopRow, str]], threshold: float, test: str, base: str):
+def check_clipping(test_hops: list[tuple[HopRow, str]], base_hops: list[tuple[HopRow, str]], threshold: float,
+                   test: str, base: str):
     """Hops of ``test`` whose clip fraction exceeds ``threshold`` (see the module docstring)."""
     findings, checked, notes = [], [], []
     worst = _worst_per_hop(test_hops)
