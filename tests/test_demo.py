@@ -1,5 +1,7 @@
 """``bandcensus demo`` end to end on the bundled simulated recordings (as CI runs it too)."""
 
+import re
+
 import pytest
 
 from bandcensus.cli import main
@@ -27,6 +29,11 @@ def test_demo_runs_every_step_and_writes_its_outputs(tmp_path, capsys):
             < joined.index("Trouble:")
     assert "covers 1 of 8 stations in 88-100 MHz" in text          # the peaked preamp misses the band
     assert "at most 1.7 dB of C/N" in text                          # outside noise sets the ceiling
+    # the bench supply injects 30 000 K after the preamp (recordings_demo/quorrelby_hill.toml): the one
+    # added-noise estimate finds it within two of its standard uncertainties
+    found = float(re.search(r"added_noise_k: ([0-9.]+)", text).group(1))
+    sigma = float(re.search(r"added_noise_uncertainty_k: ([0-9.]+)", text).group(1))
+    assert abs(found - 30_000.0) <= 2.0 * sigma and sigma < 0.15 * found
 
 
 def test_demo_refuses_a_non_empty_folder(tmp_path, capsys):

@@ -38,7 +38,7 @@ from analysis.findings import Finding
 from analysis.diagnose.data import ChannelSummary, GainModel, summarise_channels
 from analysis.noise.workflow import NoiseResult
 from analysis.selection import Survey
-from survey.units import nf_db_to_k, ratio_to_db
+from survey.units import T0_K, nf_db_to_k, ratio_to_db
 
 #: One 8-bit converter step in full-scale units (cu8 samples: 255 steps over -1..+1).
 LSB_FS = 1.0 / 127.5
@@ -107,6 +107,17 @@ def _receiver_temp_k(receiver_nf_db: float | None, receiver_noise: NoiseResult |
         notes.append("the noise workflow gave no receiver noise temperature (needs noise-hot/noise-cold sweeps of the base)")
         return None, ""
     return float(np.median(tr)), "receiver noise temperature from the noise workflow (Y-factor)"
+
+
+def _receiver_temp_sigma_k(receiver_nf_db: float | None, receiver_noise: NoiseResult | None,
+                           tr_k: float) -> float:
+    """Standard uncertainty of the receiver noise temperature, K: from the noise workflow's NF
+    uncertainty (``dT = (T0 + T) ln(10)/10 dNF``); 0 for a figure the user gave."""
+    if receiver_nf_db is not None or receiver_noise is None:
+        return 0.0
+    u = receiver_noise.column("receiver_nf_uncertainty_db")
+    u = u[np.isfinite(u)]
+    return float((T0_K + tr_k) * np.log(10.0) / 10.0 * np.median(u)) if u.size else 0.0
 
 
 def quantisation_noise_lin(survey: Survey, summary: ChannelSummary, channel_bw_hz: float) -> float:
@@ -196,9 +207,15 @@ def check_added_noise(survey: Survey, base: str, test: str, gain: GainModel | No
     if b_term is not None and thermal_ok:
         r = (beta - q) / nbt_med
         if tr_k is not None:
-            ts = r * ambient_k + tr_k * (r - 1.0)
+            # a receiver temperature measured by Y-factor includes the converter's quantisation noise, set
+            # aside here as q: its thermal part solves Tr = Tr_th + q (Tamb + Tr_th) / N_bt,thermal
+            # (a noise figure the user gives is taken as the thermal one)
+            tr_th = tr_k if receiver_nf_db is not None else (tr_k * nbt_med - q * ambient_k) / (nbt_med + q)
+            ts = r * ambient_k + tr_th * (r - 1.0)
+            sigma_tr = _receiver_temp_sigma_k(receiver_nf_db, receiver_noise, tr_k)
             ev["added_noise_k"] = float(ts)
-            ev["added_noise_uncertainty_k"] = float((ambient_k + tr_k) * sigma_beta / nbt_med)
+            ev["added_noise_uncertainty_k"] = float(np.hypot((ambient_k + tr_th) * sigma_beta / nbt_med,
+                                                             (r - 1.0) * sigma_tr))
             ev["receiver_noise_k"] = tr_k
             kelvin = f"about {ts:.0f} K at the receiver input"
         else:
