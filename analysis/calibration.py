@@ -280,12 +280,12 @@ def calibrate_from_generator(
             f"{', '.join(sorted(map(_fmt_gain, gains)))}; a calibration needs one fixed gain: "
             "repeat them with one manual gain (scan --gain-db)"
         )
-    clipped = [h for h in hops if h["clip_fraction"] is not None and h["clip_fraction"] > MAX_CLIP_FRACTION]
+    clipped = [h for h in hops if h.clip_fraction is not None and h.clip_fraction > MAX_CLIP_FRACTION]
     if clipped:
-        worst = max(clipped, key=lambda h: h["clip_fraction"])
+        worst = max(clipped, key=lambda h: h.clip_fraction)
         raise BadParameterError(
-            f"{worst['clip_fraction']:.2%} of the samples hit the ADC rails in the hop at "
-            f"{worst['center_hz'] / 1e6:.3f} MHz of generator sweep {worst['sweep_id']}; the generator level "
+            f"{worst.clip_fraction:.2%} of the samples hit the ADC rails in the hop at "
+            f"{worst.center_hz / 1e6:.3f} MHz of generator sweep {worst.sweep_id}; the generator level "
             "is too high for a linear reading: lower it by 10 dB and repeat"
         )
     p = np.power(10.0, matrix.power_dbfs.astype(np.float64) / 10.0)

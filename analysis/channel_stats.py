@@ -27,22 +27,18 @@ axis 0).
 
 from __future__ import annotations
 
-import sqlite3
 import warnings
 from dataclasses import dataclass
-from datetime import datetime, timezone
 from pathlib import Path
 
 import numpy as np
 
-from analysis.errors import BadParameterError, NoDataError
-from survey.units import db_to_ratio, ratio_to_db
-from survey.store import ChannelMatrix, SweepRow, list_sweeps, open_for_reading, read_channel_matrix
+from analysis.selection import Survey, as_survey
+from analysis.terms import check_input, normalise_utc, utc_to_epoch_s
+from survey.store import ChannelMatrix
 
 #: Name of the spread measure reported beside every median.
 SPREAD_NAME = "IQR (75th minus 25th percentile over sweeps)"
-
-_STORED_FORMAT = "%Y-%m-%dT%H:%M:%S.%fZ"
 
 
 @dataclass(frozen=True)
@@ -73,116 +69,15 @@ class ConfigurationStats:
         return self.received_fraction >= 0.5
 
 
-def normalise_utc(text: str | None, option: str = "time") -> str | None:
-    """An ISO 8601 time as the database stores it (UTC, ``...%fZ``), for string comparison.
-
-    A time without a zone is taken as UTC. Raises :class:`BadParameterError` for text that is
-    not ISO 8601.
-    """
-    if text is None:
-        return None
-    raw = text.strip()
-    try:
-        stamp = datetime.fromisoformat(raw[:-1] + "+00:00" if raw.endswith(("Z", "z")) else raw)
-    except ValueError:
-        raise BadParameterError(
-            f"{option} {text!r} is not an ISO 8601 time; write it like 2026-05-01T18:00 (UTC)"
-        ) from None
-    if stamp.tzinfo is None:
-        stamp = stamp.replace(tzinfo=timezone.utc)
-    return stamp.astimezone(timezone.utc).strftime(_STORED_FORMAT)
-
-
-def utc_to_epoch_s(stamps: tuple[str, ...] | list[str]) -> np.ndarray:
-    """Stored UTC times (ISO 8601) to seconds since 1970 as float64 (vectorised parse)."""
-    if not stamps:
-        return np.zeros(0, np.float64)
-    try:
-        cleaned = np.asarray([s[:-1] if s.endswith("Z") else s for s in stamps])
-        us = cleaned.astype("datetime64[us]").astype(np.int64)
-        return us.astype(np.float64) / 1e6
-    except ValueError:
-        return np.asarray([datetime.fromisoformat(normalise_utc(s)[:-1] + "+00:00").timestamp()
-                           for s in stamps], np.float64)
-
-
-def labels_present(conn: sqlite3.Connection) -> list[str]:
-    """Every configuration label with ``(input: n sweeps)``, for error messages."""
-    rows = conn.execute(
-        "SELECT configuration, input, COUNT(*) FROM sweeps WHERE complete = 1"
-        " GROUP BY configuration, input ORDER BY configuration, input"
-    ).fetchall()
-    return [f"{c} ({i}: {n} sweeps)" for c, i, n in rows]
-
-
-def select_sweeps(
-    conn: sqlite3.Connection,
-    configuration: str | None,
-    input: str = "antenna",
-    since: str | None = None,
-    until: str | None = None,
-) -> list[SweepRow]:
-    """Complete sweeps of one configuration and input in a time range, oldest first.
-
-    Raises :class:`NoDataError` naming the labels present when nothing matches, and
-    :class:`BadParameterError` for an input label that does not exist.
-    """
-    check_input(input)
-    rows = list_sweeps(
-        conn, configuration=configuration, input=input,
-        since_utc=normalise_utc(since, "since"), until_utc=normalise_utc(until, "until"),
-    )
-    if not rows:
-        present = labels_present(conn)
-        what = f"configuration '{configuration}'" if configuration is not None else "any configuration"
-        span = ""
-        if since or until:
-            span = f" between {since or 'the start'} and {until or 'the end'}"
-        raise NoDataError(
-            f"no complete sweeps of {what} with input '{input}'{span}; labels present: "
-            + (", ".join(present) if present else "none (the database has no complete sweeps)")
-            + "; check the spelling or the time range"
-        )
-    return rows
-
-
-def read_matrix(conn: sqlite3.Connection, rows: list[SweepRow]) -> ChannelMatrix:
-    """Channel readings of ``rows`` (time order kept), as :func:`survey.store.read_channel_matrix`.
-
-    Fast path for the usual case, every sweep on one frequency axis: the columnar blobs are
-    joined and decoded once (``numpy.frombuffer``) instead of sweep by sweep. Anything else
-    (mixed axes, a sweep without its columnar copy) goes through ``read_channel_matrix``.
-    """
-    ids = [int(r.id) for r in rows]
-    blobs: dict[int, tuple[bytes, bytes, bytes, bytes]] = {}
-    for start in range(0, len(ids), 900):
-        chunk = ids[start:start + 900]
-        marks = ",".join("?" * len(chunk))
-        for sid, fr, pw, nz, rc in conn.execute(
-            f"SELECT sweep_id, freqs_hz, power_dbfs, noise_dbfs, received FROM channel_vectors"
-            f" WHERE sweep_id IN ({marks})", chunk,
-        ):
-            blobs[int(sid)] = (fr, pw, nz, rc)
-    if not ids or len(blobs) != len(ids) or len({b[0] for b in blobs.values()}) != 1:
-        return read_channel_matrix(conn, ids)
-    freqs = np.frombuffer(blobs[ids[0]][0], dtype="<i8").astype(np.int64)
-    n, m = len(ids), freqs.size
-    ordered = [blobs[i] for i in ids]
-    power = np.frombuffer(b"".join(b[1] for b in ordered), dtype="<f4").reshape(n, m).astype(np.float32)
-    noise = np.frombuffer(b"".join(b[2] for b in ordered), dtype="<f4").reshape(n, m).astype(np.float32)
-    received = np.frombuffer(b"".join(b[3] for b in ordered), dtype=np.uint8).reshape(n, m).astype(bool)
-    return ChannelMatrix(np.asarray(ids, np.int64), tuple(r.started_utc for r in rows), freqs, power, noise,
-                         received)
-
-
 def cn_db_from(power_dbfs: np.ndarray, noise_dbfs: np.ndarray, received: np.ndarray) -> np.ndarray:
     """Per-sweep C/N ``10 log10((P - N)/N)`` in dB (float32), NaN where not received or P <= N.
 
-    Computed from the level difference, ``10 log10(10**((P - N)/10) - 1)``, in one pass.
+    Computed from the level difference, ``10 log10(10**((P - N)/10) - 1)``, in one float32 pass.
     """
-    with np.errstate(invalid="ignore", over="ignore"):
-        excess = np.asarray(db_to_ratio(np.asarray(power_dbfs, np.float32) - np.asarray(noise_dbfs, np.float32)))
-        cn = np.asarray(ratio_to_db(excess - 1.0), np.float32)
+    ten = np.float32(10.0)
+    with np.errstate(invalid="ignore", over="ignore", divide="ignore"):
+        excess = np.power(ten, (np.asarray(power_dbfs, np.float32) - np.asarray(noise_dbfs, np.float32)) / ten)
+        cn = ten * np.log10(excess - np.float32(1.0))
     return np.where(received & np.isfinite(cn), cn, np.float32(np.nan))
 
 
@@ -276,7 +171,7 @@ def statistics_from_matrix(
 
 
 def configuration_statistics(
-    db_path: str | Path,
+    source: Survey | str | Path,
     configuration: str | None,
     *,
     input: str = "antenna",
@@ -287,12 +182,12 @@ def configuration_statistics(
 
     Raises :class:`NoDataError` (naming the labels present) when no sweep matches.
     """
-    conn = open_for_reading(db_path)
+    survey, opened = as_survey(source)
     try:
-        rows = select_sweeps(conn, configuration, input, since, until)
-        matrix = read_matrix(conn, rows)
+        matrix = survey.channel_matrix(survey.sweeps(configuration, input, since, until))
     finally:
-        conn.close()
+        if opened:
+            survey.close()
     return statistics_from_matrix(matrix, configuration, input)
 
 
@@ -301,7 +196,7 @@ def _opt(value: float) -> float | None:
 
 
 def channel_table(
-    db_path: str | Path,
+    source: Survey | str | Path,
     configuration: str | None = None,
     since: str | None = None,
     until: str | None = None,
@@ -316,7 +211,7 @@ def channel_table(
     None where ``cn_db`` is None or the lower quartile is censored). ``configuration=None`` takes
     every configuration of ``input``.
     """
-    stats = configuration_statistics(db_path, configuration, input=input, since=since, until=until)
+    stats = configuration_statistics(source, configuration, input=input, since=since, until=until)
     table = []
     for j, freq in enumerate(stats.freqs_hz.tolist()):
         received = bool(stats.received_fraction[j] >= 0.5)
@@ -335,10 +230,6 @@ def channel_table(
     return table
 
 
-def check_input(input: str) -> str:
-    """Validate an input label against :data:`survey.records.INPUT_KINDS`."""
-    from survey.records import INPUT_KINDS
-
-    if input not in INPUT_KINDS:
-        raise BadParameterError(f"input {input!r} is not one of {', '.join(INPUT_KINDS)}")
-    return input
+__all__ = ["ConfigurationStats", "SPREAD_NAME", "channel_table", "check_input", "cn_db_from", "configuration_statistics",
+           "masked_cn_db", "median_iqr", "normalise_utc", "statistics_from_arrays", "statistics_from_matrix",
+           "utc_to_epoch_s"]

@@ -4,4 +4,6 @@ The capture side lives in :mod:`survey` (antenna to database), the analysis side
 :mod:`analysis` (database to conclusion); this package holds the command line and the demo.
 """
 
-__version__ = "0.1.0"
+from survey.version import __version__
+
+__all__ = ["__version__"]

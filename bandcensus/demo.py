@@ -81,12 +81,16 @@ def demo_steps(out: Path, recordings: Sequence[Path]) -> list[DemoStep]:
         DemoStep("What is in the database", ("runs", "--db", db)),
         DemoStep("Per-channel table without a preamp (medians over sweeps)", ("channels", "--db", db, "--config", "bare")),
     ]
+    # the receiver alone: its noise figure and the site's outside noise (the ceiling of any preamp)
+    steps.append(DemoStep(
+        "The receiver's noise figure and the site's outside noise (no preamp needed)",
+        ("noise", "--db", db, "--receiver", "bare", "--enr-db", "15"),
+    ))
     for test in ("preamp-peaked", "preamp-staggered", "preamp-bench-supply"):
-        # the staggered preamp also has noise-source runs: its measured noise figure predicts its noise rise
-        enr = ("--enr-db", "15") if test == "preamp-staggered" else ()
+        # bare has noise-source runs: the ENR lets every comparison check its result against the ceiling
         steps.append(DemoStep(
             f"Compare {test} against bare",
-            ("compare", "--db", db, "--base", "bare", "--test", test, *enr,
+            ("compare", "--db", db, "--base", "bare", "--test", test, "--enr-db", "15",
              "--plot", str(out / f"compare-{test}.png")),
         ))
     steps.append(DemoStep(

@@ -1,5 +1,5 @@
 """Capture side of bandcensus: band plans, hop planning, IQ sources, DSP, sweeps and storage."""
 
-from bandcensus import __version__
+from survey.version import __version__
 
 __all__ = ["__version__"]

@@ -34,7 +34,7 @@ import jsonschema
 import numpy as np
 import sigmf
 
-from bandcensus import __version__
+from survey.version import __version__
 from survey.errors import RecordingError
 from survey.records import IQBlock
 from survey.sources.recording import COMPONENT_DTYPES, NAMESPACE, NAMESPACE_VERSION, normalize_utc

@@ -27,8 +27,8 @@ from typing import Iterable, Sequence
 
 import numpy as np
 
-from bandcensus import __version__
 from survey import spectra_codec
+from survey.version import __version__
 from survey.errors import StoreError
 from survey.records import RunInfo, SweepResult
 
@@ -439,12 +439,15 @@ class ChannelMatrix:
 
     @property
     def cn_db(self) -> np.ndarray:
-        """Carrier-to-noise ``10 log10((P-N)/N)`` in dB; NaN where P <= N or not measured."""
-        p = np.power(10.0, self.power_dbfs.astype(np.float64) / 10.0)
-        n = np.power(10.0, self.noise_dbfs.astype(np.float64) / 10.0)
-        with np.errstate(divide="ignore", invalid="ignore"):
-            cn = 10.0 * np.log10((p - n) / n)
-        return np.where(np.isfinite(cn), cn, np.nan)
+        """Carrier-to-noise ``10 log10((P-N)/N)`` in dB (float32); NaN where P <= N or not measured.
+
+        Computed from the level difference, ``10 log10(10^((P - N)/10) - 1)``, in one pass.
+        """
+        ten = np.float32(10.0)
+        with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+            excess = np.power(ten, (self.power_dbfs - self.noise_dbfs) / ten) - np.float32(1.0)
+            cn = ten * np.log10(excess)
+        return np.where(np.isfinite(cn), cn, np.float32(np.nan))
 
 
 def open_for_reading(path: str | Path) -> sqlite3.Connection:
@@ -581,19 +584,32 @@ def read_channel_matrix(conn: sqlite3.Connection, sweep_ids: Sequence[int]) -> C
     return ChannelMatrix(np.asarray(ids, np.int64), tuple(started.get(i, "") for i in ids), freqs, power, noise, received)
 
 
-def read_hops(conn: sqlite3.Connection, sweep_ids: Iterable[int]) -> list[dict]:
-    """Hop rows of the given sweeps as dicts, in sweep then hop order."""
+@dataclass(frozen=True)
+class HopRow:
+    """One row of the ``hops`` table: where and how a hop was measured."""
+
+    sweep_id: int
+    hop_index: int
+    center_hz: float
+    sample_rate_hz: float
+    n_samples: int
+    clip_fraction: float | None
+    floor_dbfs_hz: float | None
+    started_utc: str
+
+
+def read_hops(conn: sqlite3.Connection, sweep_ids: Iterable[int]) -> list[HopRow]:
+    """Hop rows of the given sweeps, in sweep then hop order."""
     ids = [int(i) for i in sweep_ids]
-    out: list[dict] = []
-    cols = ["sweep_id", "hop_index", "center_hz", "sample_rate_hz", "n_samples", "clip_fraction",
-            "floor_dbfs_hz", "started_utc"]
+    out: list[HopRow] = []
+    cols = [f for f in HopRow.__dataclass_fields__]
     for chunk_start in range(0, len(ids), 900):
         chunk = ids[chunk_start:chunk_start + 900]
         marks = ",".join("?" * len(chunk))
         for r in conn.execute(
             f"SELECT {', '.join(cols)} FROM hops WHERE sweep_id IN ({marks}) ORDER BY sweep_id, hop_index", chunk
         ):
-            out.append(dict(zip(cols, r)))
+            out.append(HopRow(*r))
     return out
 
 
@@ -620,3 +636,155 @@ def read_events(conn: sqlite3.Connection, run_id: int | None = None) -> list[dic
         sql += " WHERE run_id = ?"; args.append(int(run_id))
     cols = ["id", "run_id", "sweep_id", "utc", "kind", "message"]
     return [dict(zip(cols, r)) for r in conn.execute(sql + " ORDER BY id", args)]
+
+
+# ---------------------------------------------------------------------------------------
+# Typed read helpers for the analysis side (records, never dicts or storage blobs).
+# ---------------------------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class RunRow:
+    """One run with its sweep counts (settings and device decoded from JSON where possible)."""
+
+    id: int
+    started_utc: str
+    ended_utc: str | None
+    status: str
+    tool_version: str
+    source_kind: str
+    device: object
+    settings: object
+    seed: int | None
+    notes: str | None
+    complete_sweeps: int
+    incomplete_sweeps: int
+    gaps: int
+    configurations: tuple[str, ...]
+    inputs: tuple[str, ...]
+
+
+def read_runs(conn: sqlite3.Connection) -> list[RunRow]:
+    """All runs as :class:`RunRow`, oldest first (the typed form of :func:`list_runs`)."""
+    return [RunRow(**{**r, "configurations": tuple(r["configurations"]), "inputs": tuple(r["inputs"])})
+            for r in list_runs(conn)]
+
+
+@dataclass(frozen=True)
+class EventRow:
+    """One logged event (gap, error, clock jump, stop)."""
+
+    id: int
+    run_id: int | None
+    sweep_id: int | None
+    utc: str
+    kind: str
+    message: str
+
+
+def read_event_rows(conn: sqlite3.Connection, run_id: int | None = None) -> list[EventRow]:
+    """Events as :class:`EventRow` (the typed form of :func:`read_events`)."""
+    return [EventRow(**e) for e in read_events(conn, run_id)]
+
+
+@dataclass(frozen=True)
+class LabelCount:
+    """How many complete sweeps one (configuration, input) has."""
+
+    configuration: str
+    input: str
+    sweeps: int
+
+
+def count_complete_sweeps(conn: sqlite3.Connection) -> list[LabelCount]:
+    """Complete sweeps per (configuration, input), sorted by label then input."""
+    return [LabelCount(c, i, int(n)) for c, i, n in conn.execute(
+        "SELECT configuration, input, COUNT(*) FROM sweeps WHERE complete = 1"
+        " GROUP BY configuration, input ORDER BY configuration, input")]
+
+
+@dataclass(frozen=True)
+class HopSpectrum:
+    """A kept spectrum of one hop with the hop's centre, sample rate and sample count.
+
+    ``freqs_hz`` absolute (Hz), ``psd_dbfs_hz`` in dBFS/Hz (float64).
+    """
+
+    hop_index: int
+    center_hz: float
+    sample_rate_hz: float
+    n_samples: int
+    freqs_hz: np.ndarray
+    psd_dbfs_hz: np.ndarray
+
+
+def read_hop_spectra(conn: sqlite3.Connection, sweep_id: int) -> list[HopSpectrum]:
+    """Kept spectra of one sweep with their hop's settings, in hop order (empty if none kept)."""
+    out = []
+    for hop, f0, df, n, blob, fc, fs, ns in conn.execute(
+        "SELECT s.hop_index, s.f_start_hz, s.bin_hz, s.n_bins, s.psd_centi_dbfs_hz, h.center_hz,"
+        " h.sample_rate_hz, h.n_samples FROM spectra s JOIN hops h"
+        " ON h.sweep_id = s.sweep_id AND h.hop_index = s.hop_index WHERE s.sweep_id = ? ORDER BY s.hop_index",
+        (int(sweep_id),),
+    ):
+        freqs, psd = spectra_codec.decode_row(f0, df, n, blob)  # thinned rows back on the FFT grid
+        out.append(HopSpectrum(int(hop), float(fc), float(fs), int(ns), freqs, psd))
+    return out
+
+
+def sweeps_with_spectra(conn: sqlite3.Connection) -> list[int]:
+    """Ids of the sweeps that kept spectra."""
+    return [int(r[0]) for r in conn.execute("SELECT DISTINCT sweep_id FROM spectra")]
+
+
+def spectra_span_hz(conn: sqlite3.Connection, sweep_id: int) -> tuple[float, float] | None:
+    """Lowest and highest bin frequency (Hz) of the kept spectra of one sweep; None if none kept."""
+    row = conn.execute(
+        "SELECT MIN(f_start_hz), MAX(f_start_hz + bin_hz * (n_bins - 1)) FROM spectra WHERE sweep_id = ?",
+        (int(sweep_id),),
+    ).fetchone()
+    if row is None or row[0] is None:
+        return None
+    return float(row[0]), float(row[1])
+
+
+def read_channel_hop_centers(conn: sqlite3.Connection, sweep_id: int) -> tuple[np.ndarray, np.ndarray]:
+    """Each channel of a sweep with the centre of the hop it was measured in: ``(freqs_hz, centers_hz)``."""
+    rows = conn.execute(
+        "SELECT c.freq_hz, h.center_hz FROM channels c JOIN hops h"
+        " ON h.sweep_id = c.sweep_id AND h.hop_index = c.hop_index WHERE c.sweep_id = ? ORDER BY c.freq_hz",
+        (int(sweep_id),),
+    ).fetchall()
+    if not rows:
+        return np.zeros(0, np.int64), np.zeros(0)
+    arr = np.asarray(rows, dtype=np.float64)
+    return arr[:, 0].astype(np.int64), arr[:, 1]
+
+
+def read_sweep_matrix(conn: sqlite3.Connection, sweeps: Sequence[SweepRow]) -> ChannelMatrix:
+    """Channel readings of ``sweeps`` (order kept), as :func:`read_channel_matrix`.
+
+    Fast path for the usual case, every sweep on one frequency axis: the columnar blobs are
+    joined and decoded once instead of sweep by sweep; anything else (mixed axes, a sweep
+    without its columnar copy) goes through :func:`read_channel_matrix`.
+    """
+    ids = [int(r.id) for r in sweeps]
+    blobs: dict[int, tuple[bytes, bytes, bytes, bytes]] = {}
+    for start in range(0, len(ids), 900):
+        chunk = ids[start:start + 900]
+        marks = ",".join("?" * len(chunk))
+        for sid, fr, pw, nz, rc in conn.execute(
+            f"SELECT sweep_id, freqs_hz, power_dbfs, noise_dbfs, received FROM channel_vectors"
+            f" WHERE sweep_id IN ({marks})", chunk,
+        ):
+            blobs[int(sid)] = (fr, pw, nz, rc)
+    if not ids or len(blobs) != len(ids) or len({b[0] for b in blobs.values()}) != 1:
+        return read_channel_matrix(conn, ids)
+    freqs = np.frombuffer(blobs[ids[0]][0], dtype="<i8").astype(np.int64)
+    n, m = len(ids), freqs.size
+    ordered = [blobs[i] for i in ids]
+    power = np.frombuffer(b"".join(b[1] for b in ordered), dtype="<f4").reshape(n, m).astype(np.float32)
+    noise = np.frombuffer(b"".join(b[2] for b in ordered), dtype="<f4").reshape(n, m).astype(np.float32)
+    received = np.frombuffer(b"".join(b[3] for b in ordered), dtype=np.uint8).reshape(n, m).astype(bool)
+    return ChannelMatrix(np.asarray(ids, np.int64), tuple(r.started_utc for r in sweeps), freqs, power, noise,
+                         received)

@@ -13,7 +13,7 @@ from pathlib import Path
 
 import numpy as np
 
-from analysis.outside_noise import fa_to_temp_k, median_fa_db
+from analysis.noise.outside import fa_to_temp_k, median_fa_db
 from survey.records import ChannelReading, HopReading, RunInfo, SweepResult, SweepSettings
 from survey.store import SurveyStore
 from survey.units import T0_K, db_to_ratio, nf_db_to_k, ratio_to_db

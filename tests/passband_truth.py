@@ -20,7 +20,7 @@ from typing import Callable, Sequence
 
 import numpy as np
 
-from analysis.passband import TunedStage, cascade_response_db
+from analysis.passband.fit import TunedStage, cascade_response_db
 from survey.records import ChannelReading, HopReading, RunInfo, SweepResult, SweepSettings
 from survey.store import SurveyStore
 from survey.units import db_to_ratio, ratio_to_db

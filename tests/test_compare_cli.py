@@ -13,7 +13,8 @@ from compare_truth import FREQS_HZ, make_truth, write_db
 from survey.records import SweepSettings
 
 ROW_KEYS = {"freq_hz", "base_cn_db", "test_cn_db", "delta_cn_db", "ci_low_db", "ci_high_db", "gain_db",
-            "noise_rise_db", "verdict"}
+            "noise_rise_db", "verdict", "pairs"}
+COUNT_KEYS = ("helped", "hurt", "unchanged", "undetermined", "gained", "lost")
 
 
 @pytest.fixture(scope="module")
@@ -30,18 +31,24 @@ def _reject_nan(text):
 def test_json_shape(db, capsys):
     assert main(["compare", "--db", db, "--base", "bare", "--test", "preamp-a", "--json"]) == 0
     doc = json.loads(capsys.readouterr().out, parse_constant=_reject_nan)
-    assert {"base", "test", "method", "thresholds", "channels", "summary", "warnings"} <= set(doc)
+    assert {"base", "test", "method", "thresholds", "summary", "headlines", "warnings"} <= set(doc)
     assert doc["base"] == "bare" and doc["test"] == "preamp-a" and doc["warnings"] == []
-    assert doc["method"].startswith("paired")
-    assert doc["thresholds"]["min_change_db"] == 0.5 and doc["thresholds"]["usable_cn_db"] == 12.0
-    assert len(doc["channels"]) == FREQS_HZ.size
-    for row in doc["channels"]:
-        assert ROW_KEYS <= set(row)
+    assert doc["method"].startswith("paired") and doc["unit"] == "channel"
+    assert doc["thresholds"]["min_change_db"] == 0.5
+    # this database has raster channels only (no census): the rows say so
+    rows = doc["channels"]
+    assert len(rows) == FREQS_HZ.size
+    for row in rows:
+        assert set(row) == ROW_KEYS
         if row["verdict"] == "not received":
             assert row["delta_cn_db"] is None and row["base_cn_db"] is None
-    assert [r["freq_hz"] for r in doc["channels"]] == FREQS_HZ.tolist()
-    counts = doc["summary"]["verdict_counts"]
-    assert sum(counts.values()) == FREQS_HZ.size and counts["improved"] >= 8
+    assert [r["freq_hz"] for r in rows] == FREQS_HZ.tolist()
+    s = doc["summary"]
+    assert all(isinstance(s[k], int) for k in COUNT_KEYS)
+    assert sum(s[k] for k in COUNT_KEYS) + s["not_received"] == len(rows) and s["helped"] >= 8
+    for k, verdict in zip(COUNT_KEYS, ("improved", "worse", "unchanged", "undetermined", "gained", "lost")):
+        assert s[k] == sum(r["verdict"] == verdict for r in rows)
+    assert len(doc["headlines"]) == 4 and doc["headlines"][0].startswith("Channels helped")
 
 
 def test_time_range_options(db, capsys):
@@ -56,7 +63,7 @@ def test_csv_rows(db, capsys):
     assert main(["compare", "--db", db, "--base", "bare", "--test", "preamp-a", "--csv",
                  "--min-change-db", "1", "--confidence", "0.9"]) == 0
     rows = list(csv.DictReader(io.StringIO(capsys.readouterr().out)))
-    assert len(rows) == FREQS_HZ.size and set(rows[0]) == ROW_KEYS
+    assert len(rows) == FREQS_HZ.size and set(rows[0]) == ROW_KEYS and list(rows[0])[:2] == ["freq_hz", "verdict"]
     assert rows[3]["verdict"] == "not received" and rows[3]["delta_cn_db"] == ""
     assert float(rows[0]["delta_cn_db"]) == pytest.approx(5.0, abs=0.5)
 
@@ -65,8 +72,9 @@ def test_terminal_summary_then_rows(db, capsys, tmp_path):
     png = tmp_path / "cmp.png"
     assert main(["compare", "--db", db, "--base", "bare", "--test", "preamp-a", "--plot", str(png)]) == 0
     out = capsys.readouterr().out
-    assert out.count("SNR (C/N)") == 1 and "(P - N) / N" in out
-    assert out.index("Median change") < out.index("│ 88.10") < out.index("│ 88.30") < out.index("│ 92.70")
+    assert out.count("SNR (C/N) =") == 1 and "(P - N) / N" in out
+    assert out.index("Channels helped") < out.index("Listenable") < out.index("Could any preamp help") \
+        < out.index("Trouble") < out.index("│ 88.10") < out.index("│ 88.30") < out.index("│ 92.70")
     assert "common practice, no source" in out and "Verdicts:" in out
     assert png.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n" and png.stat().st_size > 20_000
 
@@ -79,7 +87,7 @@ def _one_line_error(capsys, argv):
 
 def test_no_data_is_one_line_exit_1(db, capsys):
     code, err = _one_line_error(capsys, ["compare", "--db", db, "--base", "bare", "--test", "preamp-q"])
-    assert code == 1 and len(err) == 1 and err[0].startswith("Error: ") and "labels present" in err[0]
+    assert code == 1 and len(err) == 1 and err[0].startswith("Error: ") and "it holds: bare (antenna" in err[0]
     code, err = _one_line_error(capsys, ["compare", "--db", db + ".missing", "--base", "a", "--test", "b"])
     assert code == 1 and len(err) == 1 and "does not exist" in err[0]
 
@@ -114,6 +122,6 @@ def test_help_names_the_definitions(capsys):
     assert main(["compare", "--help"]) == 0
     out = capsys.readouterr().out
     for opt in ("--base", "--test", "--json", "--csv", "--plot", "--since", "--until", "--min-change-db",
-                "--usable-cn-db", "--confidence"):
+                "--confidence", "--channels", "--enr-db", "--enr-table", "--cold-k"):
         assert opt in out
-    assert "Wilcoxon" in out and "Hodges-Lehmann" in out
+    assert "Student t" in out and "Welch" in out

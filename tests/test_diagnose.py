@@ -20,12 +20,14 @@ sys.path.insert(0, str(Path(__file__).parent))
 
 from diagnose_scenes import attenuated, base_doc, record, scene_from, scene_with  # noqa: E402
 
-from analysis import diagnose_checks as checks  # noqa: E402
-from analysis.diagnose import Diagnosis, Finding, diagnose, summarise_findings  # noqa: E402
-from analysis.diagnose_data import gain_model, summarise_channels  # noqa: E402
-from analysis.diagnose_noise import fit_unshaped_floor  # noqa: E402
+from analysis.diagnose import checks as checks  # noqa: E402
+from analysis.diagnose.core import Diagnosis, Finding, summarise_findings  # noqa: E402
+from analysis.diagnose.data import gain_model, summarise_channels  # noqa: E402
+from analysis.diagnose.noise_checks import fit_unshaped_floor  # noqa: E402
 from analysis.errors import BadParameterError, NoDataError  # noqa: E402
-from survey.store import open_for_reading  # noqa: E402
+from analysis.passband.data import load_gain_curve  # noqa: E402
+from analysis.selection import Survey  # noqa: E402
+from analysis.workflows import diagnose_chain as diagnose  # noqa: E402
 
 OSC_HZ = 97.337e6
 SUPPLY_K = 20_000.0
@@ -147,12 +149,9 @@ def test_iq_image_is_not_called_intermodulation(tmp_path):
     assert not d.of_kind("intermodulation")
     assert any("96.400 MHz is the IQ image of 98.000 MHz" in n for n in d.notes)
     # without the image check the same data would be called a product: the trap is real
-    conn = open_for_reading(db)
-    try:
-        b, t = summarise_channels(conn, "bare", "antenna"), summarise_channels(conn, "narrow", "antenna")
-    finally:
-        conn.close()
-    g, _ = gain_model(db, "bare", "narrow")
+    with Survey(db) as survey:
+        b, t = summarise_channels(survey, "bare", "antenna"), summarise_channels(survey, "narrow", "antenna")
+    g, _ = gain_model(load_gain_curve(db, "bare", "narrow"))
     naive, *_ = checks.check_intermodulation(b, t, g, [])
     assert [round(f.freq_hz) for f in naive] == [96_400_000]
 
@@ -245,7 +244,7 @@ def test_summarise_findings_one_line_each():
 
 
 def test_bad_parameters_and_missing_labels(clean_db):
-    with pytest.raises(NoDataError, match="no complete sweeps with configuration 'nope'"):
+    with pytest.raises(NoDataError, match="no complete sweeps of configuration 'nope'"):
         diagnose(clean_db, "bare", "nope")
     with pytest.raises(BadParameterError, match="attenuation"):
         diagnose(clean_db, "bare", "clean", attenuated="clean")

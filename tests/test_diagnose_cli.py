@@ -88,7 +88,7 @@ def test_clean_preamp_says_what_was_checked(sim_db, capsys):
 def test_unknown_label_fails_with_one_line(sim_db, capsys):
     assert main(["diagnose", "--db", str(sim_db), "--base", "bare", "--test", "nope"]) == 1
     err = capsys.readouterr().err
-    assert err.startswith("Error: no complete sweeps with configuration 'nope'") and err.count("\n") == 1
+    assert err.startswith("Error: no complete sweeps of configuration 'nope'") and err.count("\n") == 1
 
 
 def test_bad_usage_exits_2(sim_db, capsys):

@@ -11,8 +11,8 @@ import pytest
 import skrf as rf
 from skrf.network import cascade_list
 
-from analysis import noise as nz
-from analysis import outside_noise as p372
+from analysis.noise import arithmetic as nz
+from analysis.noise import outside as p372
 from analysis.errors import BadParameterError
 from survey.units import k_to_nf_db, nf_db_to_k
 

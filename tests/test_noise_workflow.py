@@ -12,8 +12,8 @@ import numpy as np
 import pytest
 
 from analysis.errors import BadParameterError, MismatchError, MissingInputError, NoDataError
-from analysis.noise import EnrTable
-from analysis.noise_workflow import POINT_KEYS, analyse_noise, predicted_noise_rise_db
+from analysis.noise.arithmetic import EnrTable
+from analysis.noise.workflow import POINT_KEYS, analyse_noise, predicted_noise_rise_db
 from bandcensus.cli import main
 from noise_truth import FREQS_HZ, FULL_PLAN, NoiseTruth, build_db
 from survey.errors import StoreError
@@ -220,9 +220,10 @@ def test_hot_without_cold(hot_only_db):
     assert "record noise-cold" in str(exc.value)
 
 
-def test_no_enr(full_db):
-    with pytest.raises(MissingInputError, match="--enr-db"):
-        analyse_noise(full_db, RX, SYS)
+def test_no_enr_keeps_what_needs_no_noise_source(full_db):
+    partial = analyse_noise(full_db, RX, SYS)  # hot/cold sweeps present, ENR missing: no abort
+    assert any("--enr-db" in a for a in partial.assumptions)
+    assert "y-factor receiver" not in partial.workflows and "station gain" in partial.workflows
     with pytest.raises(BadParameterError, match="both 'bare'"):
         analyse_noise(full_db, RX, RX, enr_db=15.0)
     with pytest.raises(BadParameterError, match="not both"):
@@ -249,7 +250,7 @@ def test_clipping_is_flagged_with_numbers(tmp_path):
 
 
 def test_unknown_label_and_nothing_to_compute(tmp_path, full_db):
-    with pytest.raises(NoDataError, match="configurations present: bare, preamp-staggered"):
+    with pytest.raises(NoDataError, match=r"it holds: bare \(antenna: 4 sweeps.*preamp-staggered \(antenna"):
         analyse_noise(full_db, "nope", SYS, enr_db=15.0)
     db = build_db(tmp_path / "ant.db", TRUTH, {RX: ("antenna",), SYS: ("terminated",)}, n_sweeps=1)
     with pytest.raises(MissingInputError, match="nothing to compute"):
@@ -285,7 +286,6 @@ def test_cli_table(full_db, tmp_path, capsys):
 
 
 @pytest.mark.parametrize("extra, code, text", [
-    ([], 1, "--enr-db"),
     (["--enr-db", "15", "--enr-table", "x.csv"], 2, "not both"),
     (["--enr-table", "MISSING"], 1, "cannot read ENR table"),
 ])
@@ -306,7 +306,18 @@ def test_cli_out_of_range_table_and_missing_db(full_db, tmp_path, capsys):
     assert len(err) == 1 and "90.000-100.000 MHz" in err[0]
     assert main(["noise", "--db", str(tmp_path / "none.db"), "--receiver", RX, "--system", SYS]) == 1
     assert "does not exist" in capsys.readouterr().err
-    assert main(["noise", "--db", str(full_db), "--receiver", RX]) == 2
+    # the receiver alone without a noise source: nothing to compute, one clear line
+    assert main(["noise", "--db", str(full_db), "--receiver", RX]) == 1
+    assert capsys.readouterr().err.startswith("Error: nothing to compute")
+
+
+def test_receiver_alone_gives_its_nf_and_the_outside_noise(full_db, capsys):
+    """`noise --receiver LABEL` without --system: the receiver's NF (Y-factor) and the site's Ta/Fa."""
+    assert main(["noise", "--db", str(full_db), "--receiver", RX, "--enr-db", "15", "--json"]) == 0
+    doc = json.loads(capsys.readouterr().out)
+    assert doc["system"] is None and {"y-factor receiver", "outside noise"} <= set(doc["workflows"])
+    assert doc["summary"]["receiver_nf_db"] == pytest.approx(TRUTH.receiver_nf_db, abs=0.3)
+    assert doc["summary"]["outside_fa_db"] is not None
 
 
 def test_store_error_type_is_surfaced(tmp_path):

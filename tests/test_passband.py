@@ -4,15 +4,15 @@ import numpy as np
 import pytest
 
 from analysis.errors import BadParameterError, FitError, MismatchError, NoDataError
-from analysis.passband import (
+from analysis.passband.fit import (
     TunedStage,
     cascade_response_db,
     coverage,
     curve_features,
     fit_passband,
 )
-from analysis.passband_report import analyse_passband
-from analysis.passband_data import (
+from analysis.passband.report import analyse_passband
+from analysis.passband.data import (
     SOURCE_FLOOR,
     SOURCE_NOISE,
     SOURCE_READINGS,
@@ -194,7 +194,7 @@ def test_stations_and_floor_sources(db_full):
 
 
 def test_missing_labels_and_inputs(db_full, tmp_path):
-    with pytest.raises(NoDataError, match="bare / noise-hot"):
+    with pytest.raises(NoDataError, match=r"bare \(antenna: \d+ sweeps, noise-cold"):
         load_gain_curve(db_full, "bare", "nonesuch")
     only_ant = build_db(tmp_path / "ant.db", preamp_gain_db(TRUE_STAGES, TRUE_GAIN_DB), inputs=("antenna",))
     with pytest.raises(NoDataError):

@@ -5,7 +5,7 @@ import json
 import numpy as np
 import pytest
 
-from analysis.passband import TunedStage
+from analysis.passband.fit import TunedStage
 from bandcensus.cli import main
 from passband_truth import build_db, preamp_gain_db
 
@@ -103,7 +103,7 @@ def test_db_path_json(tmp_path, capsys):
 def test_db_unknown_label_exit_1(tmp_path, capsys):
     db = build_db(tmp_path / "s.db", preamp_gain_db([TunedStage(94.5e6, 47.0)], 20.0), inputs=("noise-hot",))
     assert main(["passband", "--db", str(db), "--base", "bare", "--test", "other"]) == 1
-    assert "no complete sweeps with configuration 'other'" in capsys.readouterr().err
+    assert "no complete sweeps of configuration 'other'" in capsys.readouterr().err
 
 
 def test_help_text():

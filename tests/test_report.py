@@ -12,13 +12,14 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from analysis.compare import compare_configurations
-from analysis.diagnose import summarise_findings
+from analysis.compare.core import compare_configurations
+from analysis.diagnose.core import summarise_findings
 from analysis.errors import BadParameterError, NoDataError
-from analysis.noise_workflow import analyse_noise
-from analysis.report import SECTIONS, build_report, preamp_verdict
-from analysis.report_html import render_html, write_report
-from analysis.report_plots import mpl_text, png_data_uri
+from analysis.noise.workflow import analyse_noise
+from analysis.report.build import SECTIONS, build_report, preamp_verdict
+from analysis.workflows import NoiseOptions, assess
+from analysis.report.html import render_html, write_report
+from analysis.report.plots import mpl_text, png_data_uri
 from bandcensus.cli import main
 from report_fixtures import (
     ENR_DB, HOSTILE_BASE, HOSTILE_DEVICE, HOSTILE_NOTES, HOSTILE_TEST, N_CHANNELS, STRONGEST_HZ,
@@ -76,7 +77,7 @@ def test_model_reuses_the_analyses(sim):
     r = written.report
     assert r.unavailable == {}, r.unavailable
     # the comparison in the report is the comparison module's own result, not a re-derivation
-    direct = compare_configurations(db, "bare", "preamp-peaked", noise_options={"enr_db": ENR_DB})
+    direct = compare_configurations(db, "bare", "preamp-peaked")
     assert r.comparison.to_dict() == direct.to_dict()
     assert r.noise.to_dict() == analyse_noise(db, "bare", "preamp-peaked", enr_db=ENR_DB).to_dict()
     assert len(r.comparison.channels) == N_CHANNELS
@@ -92,17 +93,26 @@ def test_model_reuses_the_analyses(sim):
     assert all(a in noise_items for a in r.noise.assumptions)
 
 
+def db_path_of(written):
+    return written.report.db_path
+
+
 def test_summary_in_plain_words(sim):
     _, written = sim
     r = written.report
     s = r.comparison.summary
     text = "\n".join(r.summary)
-    assert r.summary[0] == preamp_verdict(r.comparison)
-    assert f"{s['received_base']} with 'bare'" in text and f"{s['received_test']} with 'preamp-peaked'" in text
-    assert f"{s['median_delta_cn_db']:+.1f} dB" in text
-    for f in s["gained_hz"]:
-        assert f"{f / 1e6:.2f}" in text
-    assert "Main finding:" in text and r.passband.verdict()[1:] in text
+    # the same headlines as `compare`, in the same order, then the verdict sentence
+    assessment = assess(db_path_of(written), "bare", "preamp-peaked", options=NoiseOptions(enr_db=ENR_DB))
+    assert list(r.summary[:4]) == list(assessment.headlines)
+    assert r.summary[4] == preamp_verdict(r.comparison)
+    for key in ("gained", "lost", "helped", "hurt"):
+        for f in s["frequencies_hz"][key]:
+            assert f"{f / 1e6:.1f}" in r.summary[0]
+    assert r.summary[1].startswith("Listenable") and r.summary[2].startswith("Could any preamp help")
+    assert r.summary[3].startswith("Trouble")
+    if r.passband is not None:
+        assert r.passband.verdict()[1:] in text
 
 
 def test_page_is_self_contained(sim):
@@ -150,7 +160,7 @@ def test_table_rows_carry_the_comparison_numbers(tmp_path):
     assert cells[0] == "88.10" and float(cells[3]) == pytest.approx(ch.delta_cn_db, abs=0.005)
     assert float(cells[3]) == pytest.approx(5.0, abs=1.0)
     assert float(cells[5]) == pytest.approx(14.0, abs=1.0) and float(cells[6]) == pytest.approx(9.0, abs=0.5)
-    assert cells[7].endswith(ch.verdict)
+    assert cells[7] == str(ch.pairs) and cells[8].endswith(ch.verdict)
 
 
 def test_user_text_is_escaped(tmp_path):
@@ -204,7 +214,7 @@ def test_findings_listed_with_summary_lines(sim):
 
 def test_refusals(tmp_path, sim):
     db, _ = sim
-    with pytest.raises(NoDataError, match="configurations present: bare, preamp-peaked"):
+    with pytest.raises(NoDataError, match=r"it holds: bare \(antenna: 3 sweeps.*preamp-peaked \(antenna"):
         build_report(db, "bare", "preamp-q")
     with pytest.raises(BadParameterError, match="both 'bare'"):
         build_report(db, "bare", "bare")
@@ -269,14 +279,14 @@ def test_verdict_rule_and_default_target(tmp_path):
 
     db = hostile_db(tmp_path / "truth.db")
     r = build_report(db, HOSTILE_BASE, HOSTILE_TEST)
-    n = r.comparison.summary["verdict_counts"]
+    n = r.comparison.summary
     # known truth: 14 stations gain 9.6-14 dB against a 9 dB noise rise, one (2 dB gain) loses
-    assert n["improved"] + n["gained"] > n["worse"] + n["lost"]
-    assert r.summary[0].startswith(f"On balance '{HOSTILE_TEST}' helps: {n['improved']} better")
-    flipped = dict(r.comparison.summary, median_delta_cn_db=-2.0,
-                   verdict_counts={**n, "improved": 0, "gained": 0, "worse": 5, "lost": 2})
-    assert "makes reception worse: 0 better, 5 worse" in preamp_verdict(replace(r.comparison, summary=flipped))
-    mixed = dict(flipped, median_delta_cn_db=+1.0)
+    assert n["helped"] + n["gained"] > n["hurt"] + n["lost"]
+    verdict = next(line for line in r.summary if line.startswith("On balance"))
+    assert verdict.startswith(f"On balance '{HOSTILE_TEST}' helps: {n['helped']} helped")
+    flipped = dict(n, helped=0, gained=0, hurt=5, lost=2)
+    assert "makes reception worse: 0 helped, 5 hurt" in preamp_verdict(replace(r.comparison, summary=flipped))
+    mixed = dict(flipped, helped=7)
     assert preamp_verdict(replace(r.comparison, summary=mixed)).startswith("The result of")
     # no --target and a band name that is no band plan: the span of the channels compared
     assert r.target_hz == (88_100_000.0, 92_700_000.0) and "span of the channels" in r.target_note

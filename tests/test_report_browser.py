@@ -16,8 +16,8 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from analysis.report import SECTIONS
-from analysis.report_html import write_report
+from analysis.report.build import SECTIONS
+from analysis.report.html import write_report
 from report_fixtures import ENR_DB, HOSTILE_BASE, HOSTILE_DEVICE, HOSTILE_TEST, N_CHANNELS, hostile_db, simulated_db
 
 pytestmark = pytest.mark.browser
@@ -108,7 +108,7 @@ def test_report_renders_offline_without_errors(browser, pages):
     rows = browser.find_elements(By.CSS_SELECTOR, "#channel-table tbody tr")
     assert len(rows) == len(sim.report.comparison.channels) == N_CHANNELS
     first = rows[0].find_elements(By.TAG_NAME, "td")
-    assert first[0].text == "92.00" and len(first) == 8
+    assert first[0].text == "92.00" and len(first) == 9
     ids = [s.get_attribute("id") for s in browser.find_elements(By.TAG_NAME, "section")]
     assert ids == [k for k, _ in SECTIONS]
     heads = [h.text for h in browser.find_elements(By.CSS_SELECTOR, "section > h2")]

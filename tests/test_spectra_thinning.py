@@ -17,7 +17,7 @@ import pytest
 import synth_signals as ss
 from diagnose_scenes import record, scene_with
 from analysis.diagnose import diagnose
-from analysis.passband_data import load_gain_curve
+from analysis.passband.data import load_gain_curve
 from bandcensus.cli import main
 from bandcensus.demo import demo_recordings
 from survey import dsp, spectra_codec
@@ -153,6 +153,11 @@ def test_demo_passband_is_the_same_within_its_uncertainty(demo_dbs, capsys, test
         answers.append(_json(capsys, ["passband", "--db", str(db), "--base", "bare", "--test", test,
                                       "--target", "88-100", "--source", source]))
     a, b = answers
+    if "target_covered" not in a:
+        # the fit was not trusted on the full-resolution data: the thinned data must say the same
+        assert a["verdict"] == b["verdict"] == "not enough data to fit", (a, b)
+        assert a["source"] == b["source"] and a["n_points"] == b["n_points"]
+        return
     assert (a["source"], a["target_covered"], a["uncovered_stations_hz"]) == \
            (b["source"], b["target_covered"], b["uncovered_stations_hz"])
     # each gain point within its stated standard uncertainty (the library's sigma_db)

@@ -194,8 +194,8 @@ def test_terminal_view_without_a_terminal_prints_summary_lines(capsys, tmp_path)
 
 
 def test_view_plot_marks_peak_edges_and_target():
-    from analysis.tuning_curve import measure_curve
-    from analysis.tuning_tracker import TuneFrame
+    from analysis.tuning.curve import measure_curve
+    from analysis.tuning.tracker import TuneFrame
     from bandcensus.commands._tune_view import plot_lines, summary_lines
 
     f = np.arange(86.8e6, 101.2e6 + 1, 200e3)

@@ -18,10 +18,10 @@ import pytest
 
 from analysis.errors import BadParameterError
 from analysis.passband import TunedStage, cascade_response_db
-from analysis.tuning_curve import HALF_POWER_DB, better_than, measure_curve, radiometer_sigma_db, station_gain_db
-from analysis.tuning_hints import FitWorker, hint_for, stagger_plan_for
-from analysis.tuning_reference import reference_from_channels
-from analysis.tuning_tracker import TuneTracker
+from analysis.tuning.curve import HALF_POWER_DB, better_than, measure_curve, radiometer_sigma_db, station_gain_db
+from analysis.tuning.hints import FitWorker, hint_for, stagger_plan_for
+from analysis.tuning.reference import reference_from_channels
+from analysis.tuning.tracker import TuneTracker
 from survey.errors import SceneError
 from survey.scene import parse_scene
 from survey.sources.simulated import SimulatedSource
@@ -157,10 +157,11 @@ def test_narrow_hint_names_the_widths_and_the_stagger_plan():
     assert h.kind == "narrow"
     assert h.text.startswith(f"{m.width_hz / 1e6:.1f} MHz wide at -3 dB, target 12 MHz: stagger the circuits")
     assert h.text.endswith("see `passband` advice")
-    # references, narrowband stagger triple: one circuit at f0 = sqrt(88 * 100) = 93.808 MHz with
-    # BW = B (Q 7.82), two at f0 -+ 0.433 B with BW = B/2 (88.612 MHz Q 14.77, 99.004 MHz Q 16.50) [D]
-    assert "88.61 MHz Q 14.8, 93.81 MHz Q 7.8, 99.00 MHz Q 16.5" in h.text
-    assert [s.f0_hz for s in plan.stages] == pytest.approx([88.612e6, 93.808e6, 99.004e6], abs=2e3)
+    # REFERENCES.md, "Stations, identity, passive tuned circuits": maximally flat (Butterworth)
+    # three-pole bandpass for 88-100 MHz by the stagger formulas with the bandpass transform:
+    # 88.753, 93.808 and 99.151 MHz with Q 15.66, 7.82 and 15.66 [D]
+    assert "88.75 MHz Q 15.7, 93.81 MHz Q 7.8, 99.15 MHz Q 15.7" in h.text
+    assert [s.f0_hz for s in plan.stages] == pytest.approx([88.753e6, 93.808e6, 99.151e6], abs=2e3)
 
 
 def test_off_centre_and_covered_hints():

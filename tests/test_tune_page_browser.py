@@ -17,8 +17,8 @@ import numpy as np
 import pytest
 
 from analysis.passband import TunedStage, cascade_response_db
-from analysis.tuning_reference import reference_from_channels
-from analysis.tuning_tracker import TuneTracker
+from analysis.tuning.reference import reference_from_channels
+from analysis.tuning.tracker import TuneTracker
 from bandcensus.commands._common import _clean
 from bandcensus.commands._tune_page import CSP, TunePageServer
 

@@ -11,7 +11,7 @@ import math
 
 import numpy as np
 
-from analysis.tuning_tracker import TuneFrame
+from analysis.tuning.tracker import TuneFrame
 
 PLOT_ROWS = 16
 DB_PER_ROW = 1.25

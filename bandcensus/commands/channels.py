@@ -8,6 +8,8 @@ import sys
 import click
 
 from analysis.channel_stats import channel_table
+from analysis.errors import NoDataError
+from analysis.selection import Survey
 from bandcensus.commands._common import db_option, echo_json
 from bandcensus.commands._tables import channel_rows_table, print_table
 from survey.records import INPUT_KINDS
@@ -17,7 +19,7 @@ _CSV_FIELDS = ["freq_hz", "power_dbfs", "noise_dbfs", "cn_db", "received", "rece
 
 @click.command("channels")
 @db_option
-@click.option("--config", "configuration", help="Configuration label (default: all).")
+@click.option("--config", "configuration", help="Configuration label (default: one block per configuration).")
 @click.option("--input", "input_kind", type=click.Choice(INPUT_KINDS), default="antenna", show_default=True,
               help="Input label of the sweeps to summarise.")
 @click.option("--since", help="Only sweeps started at or after this UTC time (ISO 8601).")
@@ -33,14 +35,34 @@ def command(db_path, configuration, input_kind, since, until, as_json, as_csv):
     """
     if as_json and as_csv:
         raise click.UsageError("choose one of --json and --csv")
-    rows = channel_table(db_path, configuration=configuration, input=input_kind, since=since, until=until)
+    with Survey(db_path) as survey:
+        if configuration is not None:
+            blocks = [(configuration, channel_table(survey, configuration, input=input_kind, since=since, until=until))]
+        else:  # one block per configuration: medians are never pooled across configurations
+            labels = [c.configuration for c in survey.label_counts() if c.input == input_kind]
+            if not labels:
+                survey.sweeps(None, input_kind, since, until)  # raises the one-line error naming what exists
+            blocks = []
+            for label in labels:
+                try:
+                    blocks.append((label, channel_table(survey, label, input=input_kind, since=since, until=until)))
+                except NoDataError:
+                    continue  # no sweeps of this label in the time range
+            if not blocks:
+                survey.sweeps(None, input_kind, since, until)
     if as_json:
-        echo_json({"configuration": configuration, "input": input_kind, "channels": rows})
+        if configuration is not None:
+            echo_json({"configuration": configuration, "input": input_kind, "channels": blocks[0][1]})
+        else:
+            echo_json({"input": input_kind,
+                       "configurations": [{"configuration": label, "channels": rows} for label, rows in blocks]})
     elif as_csv:
-        writer = csv.DictWriter(sys.stdout, fieldnames=_CSV_FIELDS, extrasaction="ignore", lineterminator="\n")
+        fields = _CSV_FIELDS + ([] if configuration is not None else ["configuration"])
+        writer = csv.DictWriter(sys.stdout, fieldnames=fields, extrasaction="ignore", lineterminator="\n")
         writer.writeheader()
-        for r in rows:
-            writer.writerow(r)
+        for label, rows in blocks:
+            for r in rows:
+                writer.writerow({**r, "configuration": label})
     else:
-        label = configuration or "all configurations"
-        print_table(channel_rows_table(rows, f"Channels of {label} ({input_kind}), medians over sweeps"))
+        for label, rows in blocks:
+            print_table(channel_rows_table(rows, f"Channels of '{label}' ({input_kind}), medians over its sweeps"))

@@ -1,4 +1,4 @@
-"""``bandcensus compare``: channel-by-channel A/B comparison of two configurations."""
+"""``bandcensus compare``: station-by-station A/B comparison of two configurations."""
 
 from __future__ import annotations
 
@@ -9,30 +9,43 @@ import click
 from rich.console import Console
 from rich.table import Table
 
-from analysis.compare import Comparison, compare_configurations
+from analysis.selection import Survey
+from analysis.workflows import Assessment, assess
 from bandcensus.commands._common import _clean, db_option, echo_json, json_option
+from bandcensus.commands._noise_source import noise_options_from, noise_source_options
 
-#: Columns of the channel rows (JSON and CSV), units in the names.
-CHANNEL_FIELDS = ["freq_hz", "base_cn_db", "test_cn_db", "delta_cn_db", "ci_low_db", "ci_high_db",
-                  "gain_db", "noise_rise_db", "verdict"]
+#: Columns of the station (or channel) rows (JSON and CSV), units in the names.
+ROW_FIELDS = ["freq_hz", "verdict", "base_cn_db", "test_cn_db", "delta_cn_db", "ci_low_db", "ci_high_db",
+              "gain_db", "noise_rise_db", "pairs"]
+#: Integer counts of the JSON summary (they add up to the rows).
+COUNT_FIELDS = ["helped", "hurt", "unchanged", "undetermined", "gained", "lost"]
 
 
-def comparison_payload(result: Comparison) -> dict:
-    """The JSON document of a comparison (channel rows restricted to :data:`CHANNEL_FIELDS`
-    plus ``p_value`` and ``n_used``)."""
-    full = result.to_dict()
-    keep = CHANNEL_FIELDS + ["p_value", "n_used"]
+def comparison_payload(a: Assessment) -> dict:
+    """The JSON document of a comparison: rows under ``"stations"`` (or ``"channels"`` with
+    ``--channels``), integer counts in ``"summary"``, then the checks and headlines."""
+    r = a.comparison
+    rows_key = "stations" if r.unit == "station" else "channels"
+    s = r.summary
+    summary = {k: int(s[k]) for k in COUNT_FIELDS}
+    if "not_received" in s:
+        summary["not_received"] = int(s["not_received"])
+    summary.update({
+        "listenable": s["listenable"], "median_gain_db": s["median_gain_db"],
+        "median_noise_rise_db": s["median_noise_rise_db"], "broadband_noise_rise_db": s["broadband_noise_rise_db"],
+        "noise_source": s["noise_source"], "noise_split": a.noise_split,
+        "predicted_noise_rise": a.predicted_noise_rise, "ceiling": a.ceiling,
+    })
     return {
-        "base": full["base"],
-        "test": full["test"],
-        "input": full["input"],
-        "method": full["method"],
-        "paired": full["paired"],
-        "sweeps": {"base": full["n_base_sweeps"], "test": full["n_test_sweeps"], "pairs": full["n_pairs"]},
-        "thresholds": full["thresholds"],
-        "channels": [{k: row[k] for k in keep} for row in full["channels"]],
-        "summary": full["summary"],
-        "warnings": full["warnings"],
+        "base": r.base, "test": r.test, "input": r.input, "unit": r.unit, "method": r.method, "paired": r.paired,
+        "sweeps": {"base": r.n_base_sweeps, "test": r.n_test_sweeps, "pairs": r.n_pairs},
+        "thresholds": r.thresholds,
+        rows_key: [{k: getattr(c, k) for k in ROW_FIELDS} for c in r.items],
+        "summary": summary,
+        "headlines": list(a.headlines),
+        "findings": [f.to_dict() for f in a.findings],
+        "diagnosis": a.diagnosis_note or "run",
+        "warnings": list(r.warnings),
     }
 
 
@@ -40,8 +53,8 @@ def _iso_time(ctx, param, value):
     """Validate an ISO 8601 time option at parse time (bad usage: exit code 2)."""
     if value is None:
         return None
-    from analysis.channel_stats import normalise_utc
     from analysis.errors import BadParameterError
+    from analysis.terms import normalise_utc
 
     try:
         return normalise_utc(value, param.opts[0])
@@ -59,48 +72,41 @@ def _num(value, fmt: str = "{:+.1f}") -> str:
     return "-" if value is None else fmt.format(value)
 
 
-def _summary_lines(result: Comparison) -> list[str]:
-    s = result.summary
-    t = result.thresholds
-    lines = [
-        f"Compared '{result.test}' (test) against '{result.base}' (base), input {result.input}: "
-        f"{result.n_base_sweeps} base and {result.n_test_sweeps} test sweeps.",
-        f"Method: {result.method}.",
-        "SNR (C/N) = (P - N) / N in dB: channel power P above the local noise power N; "
-        "delta = test minus base; gain = ratio of P - N; noise rise = ratio of N; delta = gain - noise rise.",
-        f"Received: base {s['received_base']}, test {s['received_test']}, both {s['received_both']}. "
-        f"Usable (SNR >= {t['usable_cn_db']:g} dB, {t['usable_cn_db_source']}): "
-        f"base {s['usable_base']}, test {s['usable_test']}.",
-        f"Median change over stations received in both: {_num(s['median_delta_cn_db'])} dB "
-        f"(median gain {_num(s['median_gain_db'])} dB).",
+def _summary_lines(a: Assessment) -> list[str]:
+    r = a.comparison
+    lines = list(a.headlines) + [
+        "",
+        f"Compared '{r.test}' (test) against '{r.base}' (base), input {r.input}: {r.n_base_sweeps} base and "
+        f"{r.n_test_sweeps} test sweeps, per {r.unit}.",
+        f"Method: {r.method}.",
+        "SNR (C/N) = (P - N) / N in dB: power P above the local noise power N; delta = test minus base; "
+        "gain = ratio of P - N; noise rise = ratio of N; delta = gain - noise rise.",
+        f"Verdicts: improved/worse need the {r.thresholds['improved_if'].split(' of ')[0]} wholly above/below "
+        f"0 dB; unchanged needs it within +-{r.thresholds['min_change_db']:g} dB; otherwise undetermined.",
+        f"Noise: {r.summary['noise_source']}.",
     ]
-    for key, name in (("best_channel", "Best"), ("worst_channel", "Worst")):
-        c = s[key]
-        if c is not None:
-            ci = "" if c["ci_low_db"] is None else f" [{c['ci_low_db']:+.1f}, {c['ci_high_db']:+.1f}]"
-            lines.append(f"{name}: {c['freq_hz'] / 1e6:.2f} MHz {c['delta_cn_db']:+.1f} dB{ci}")
-    counts = ", ".join(f"{k} {v}" for k, v in s["verdict_counts"].items() if v)
-    lines.append(f"Verdicts: {counts}. Improved/worse needs {t['improved_if']}.")
-    lines.append(f"Noise: {s['noise_source']}.")
-    pred = s["predicted_noise_rise"]
+    if a.noise_split:
+        lines.append(f"Noise split: {a.noise_split}.")
+    pred = a.predicted_noise_rise
     lines.append(f"Predicted noise rise: {pred['note'] if isinstance(pred, dict) else pred}.")
-    for finding in s.get("findings", []):
-        lines.append(f"Diagnosis: {finding}")
+    for f in a.findings:
+        lines.append(f"Finding: {f.severity}: {f.kind}" + ("" if f.freq_hz is None else f" at {f.freq_hz / 1e6:.2f} MHz")
+                     + f": {f.advice}")
     return lines
 
 
-def _table(result: Comparison) -> Table:
-    pct = f"{100 * result.thresholds['confidence']:g}%"
-    table = Table(title=f"'{result.test}' against '{result.base}', per channel (SNR, delta, interval, "
-                        "gain and noise rise in dB)", title_justify="left")
-    for name in ("MHz", "base SNR", "test SNR", "delta", f"{pct} interval", "gain",
-                 "noise rise", "verdict"):
+def _table(a: Assessment) -> Table:
+    r = a.comparison
+    pct = f"{100 * r.thresholds['confidence']:g}%"
+    table = Table(title=f"'{r.test}' against '{r.base}', per {r.unit} (SNR, delta, interval, gain and noise rise "
+                        "in dB; base and test SNR over the same pairs as the delta)", title_justify="left")
+    for name in ("MHz", "base SNR", "test SNR", "delta", f"{pct} interval", "gain", "noise rise", "pairs", "verdict"):
         table.add_column(name, justify="left" if name == "verdict" else "right", no_wrap=True)
-    for c in sorted(result.channels, key=lambda c: c.freq_hz):
+    for c in sorted(r.items, key=lambda c: c.freq_hz):
         interval = "-" if c.ci_low_db is None else f"[{c.ci_low_db:+.2f}, {c.ci_high_db:+.2f}]"
         table.add_row(
             f"{c.freq_hz / 1e6:.2f}", _num(c.base_cn_db, "{:.1f}"), _num(c.test_cn_db, "{:.1f}"),
-            _num(c.delta_cn_db, "{:+.2f}"), interval, _num(c.gain_db), _num(c.noise_rise_db), c.verdict,
+            _num(c.delta_cn_db, "{:+.2f}"), interval, _num(c.gain_db), _num(c.noise_rise_db), str(c.pairs), c.verdict,
         )
     return table
 
@@ -110,59 +116,57 @@ def _table(result: Comparison) -> Table:
 @click.option("--base", required=True, help="Configuration label of the reference (e.g. bare).")
 @click.option("--test", required=True, help="Configuration label compared against it (e.g. preamp-a).")
 @json_option
-@click.option("--csv", "as_csv", is_flag=True, help="Print the channel rows as CSV.")
+@click.option("--csv", "as_csv", is_flag=True, help="Print the station rows as CSV.")
+@click.option("--channels", is_flag=True, help="Rows per raster channel instead of per station (the detail view).")
 @click.option("--plot", "plot_path", type=click.Path(dir_okay=False), callback=_png_path,
               help="Also write a PNG figure here.")
 @click.option("--since", callback=_iso_time, help="Only sweeps started at or after this UTC time (ISO 8601).")
 @click.option("--until", callback=_iso_time, help="Only sweeps started before this UTC time (ISO 8601).")
 @click.option("--min-change-db", type=click.FloatRange(min=0.0), default=0.5, show_default=True,
-              help="Smallest SNR change (dB) called improved or worse.")
-@click.option("--usable-cn-db", type=float, default=12.0, show_default=True,
-              help="SNR (dB) counted as usable FM reception in the summary (common practice, no source).")
+              help="Equivalence margin (dB): a change whose interval lies within +- this is unchanged.")
 @click.option("--confidence", type=click.FloatRange(0.5, 1.0, max_open=True), default=0.95, show_default=True,
               help="Confidence level of the intervals.")
-@click.option("--enr-db", type=float, help="ENR of the noise source (dB), used when noise-hot/noise-cold runs "
-              "exist, to predict the noise rise from the preamp's measured noise figure.")
+@noise_source_options
 @click.option("--no-diagnosis", is_flag=True, help="Skip the chain diagnosis (clipping, intermodulation, "
               "oscillation, added noise) in the summary.")
-def command(db_path, base, test, as_json, as_csv, plot_path, since, until, min_change_db, usable_cn_db,
-            confidence, enr_db, no_diagnosis):
+def command(db_path, base, test, as_json, as_csv, channels, plot_path, since, until, min_change_db, confidence,
+            enr_db, enr_table, cold_k, receiver_nf_db, no_diagnosis):
     """Which stations gained or lost SNR (C/N) with TEST compared to BASE, by how much, how sure.
 
     SNR (C/N) is (P - N)/N in dB. Sweeps that alternated between the two configurations are
-    compared in pairs (Wilcoxon signed-rank test, bootstrap interval of the median paired
-    difference); sweeps taken at different times with a Hodges-Lehmann shift and its
-    Mann-Whitney interval. Gain is the ratio of signal powers P - N, noise rise the ratio
-    of N, and delta SNR = gain - noise rise.
+    compared in pairs (mean of the paired differences with its Student t interval, n - 1
+    degrees of freedom, from 3 pairs); sweeps taken at different times with Welch's t
+    interval. Gain is the ratio of signal powers P - N, noise rise the ratio of N, and
+    delta SNR = gain - noise rise. With noise-figure runs the C/N ceiling set by outside noise
+    is checked too.
     """
     if as_json and as_csv:
         raise click.UsageError("choose one of --json and --csv")
     if base == test:
         raise click.UsageError("--base and --test name the same configuration; give two different labels")
-    result = compare_configurations(
-        db_path, base, test, since=since, until=until, min_change_db=min_change_db,
-        confidence=confidence, usable_cn_db=usable_cn_db,
-        noise_options=None if enr_db is None else {"enr_db": enr_db},
-        with_diagnosis=not no_diagnosis,
-    )
+    options = noise_options_from(enr_db, enr_table, cold_k, receiver_nf_db)
+    with Survey(db_path) as survey:
+        a = assess(survey, base, test, options=options, with_diagnosis=not no_diagnosis, since=since, until=until,
+                   min_change_db=min_change_db, confidence=confidence, channels=channels)
     if plot_path:
-        from analysis.compare_plots import plot_comparison
+        from analysis.compare.plots import plot_comparison
 
-        plot_comparison(result, plot_path)
+        plot_comparison(a.comparison, plot_path)
+    payload = comparison_payload(a)
     if as_json:
-        echo_json(comparison_payload(result))
+        echo_json(payload)
         return
     if as_csv:
-        writer = csv.DictWriter(sys.stdout, fieldnames=CHANNEL_FIELDS, extrasaction="ignore", lineterminator="\n")
+        writer = csv.DictWriter(sys.stdout, fieldnames=ROW_FIELDS, extrasaction="ignore", lineterminator="\n")
         writer.writeheader()
-        for row in comparison_payload(result)["channels"]:
+        for row in payload["stations" if a.comparison.unit == "station" else "channels"]:
             writer.writerow({k: ("" if v is None else v) for k, v in _clean(row).items()})
         return
     console = Console(width=max(110, Console().width))
-    for line in _summary_lines(result):
+    for line in _summary_lines(a):
         console.print(line, highlight=False, markup=False)
-    for warning in result.warnings:
+    for warning in a.comparison.warnings:
         console.print(f"Warning: {warning}", highlight=False, markup=False)
-    console.print(_table(result))
+    console.print(_table(a))
     if plot_path:
         console.print(f"Figure written to {plot_path}", highlight=False, markup=False)

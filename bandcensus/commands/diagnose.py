@@ -4,8 +4,10 @@ from __future__ import annotations
 
 import click
 
-from analysis.diagnose import DEFAULT_CLIP_THRESHOLD, diagnose
+from analysis.diagnose.core import DEFAULT_CLIP_THRESHOLD
+from analysis.workflows import diagnose_chain
 from bandcensus.commands._common import db_option, echo_json, json_option
+from bandcensus.commands._noise_source import noise_options_from, noise_source_options
 
 
 def _fmt(key: str, value) -> str:
@@ -27,12 +29,10 @@ def _fmt(key: str, value) -> str:
 @click.option("--attenuation-db", type=float, default=None, help="Loss of that attenuator, dB.")
 @click.option("--clip-threshold", type=float, default=DEFAULT_CLIP_THRESHOLD, show_default=True,
               help="Fraction of 8-bit samples at the rails per hop counted as clipping.")
-@click.option("--receiver-nf-db", type=float, default=None,
-              help="Receiver noise figure, dB, to give added noise in kelvin exactly.")
-@click.option("--enr-db", type=float, default=None,
-              help="Noise source ENR, dB, to measure the receiver noise figure from noise-hot/noise-cold sweeps.")
+@noise_source_options
 @json_option
-def command(db_path, base, test, attenuated, attenuation_db, clip_threshold, receiver_nf_db, enr_db, as_json):
+def command(db_path, base, test, attenuated, attenuation_db, clip_threshold, enr_db, enr_table, cold_k,
+            receiver_nf_db, as_json):
     """Check the --test configuration against --base for the four ways a preamp makes things worse.
 
     Clipping of the receiver's 8-bit converter, intermodulation products of strong stations,
@@ -42,9 +42,11 @@ def command(db_path, base, test, attenuated, attenuation_db, clip_threshold, rec
     """
     if (attenuated is None) != (attenuation_db is None):
         raise click.UsageError("give --attenuated LABEL together with --attenuation-db X")
-    result = diagnose(
-        db_path, base, test, attenuated=attenuated, attenuation_db=attenuation_db,
-        clip_threshold=clip_threshold, receiver_nf_db=receiver_nf_db, enr_db=enr_db,
+    options = noise_options_from(enr_db, enr_table, cold_k, receiver_nf_db)
+    result = diagnose_chain(
+        db_path, base, test, attenuated=attenuated, attenuation_db=attenuation_db, clip_threshold=clip_threshold,
+        enr_db=options.enr_db, enr_table=options.enr_table, cold_k=options.cold_k,
+        receiver_nf_db=options.receiver_nf_db,
     )
     if as_json:
         echo_json(result.to_dict())

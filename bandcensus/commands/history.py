@@ -90,7 +90,7 @@ def command(db_path, station_mhz, configurations, input_kind, since, until, deta
     summaries = [summarise_series(s) for s in history.series]
     written = None
     if plot_path:
-        from analysis.history_plots import plot_history
+        from analysis.history.plots import plot_history
 
         written = plot_history(history, plot_path)
     if as_json:

@@ -5,9 +5,9 @@ from __future__ import annotations
 import click
 from rich.table import Table
 
-from analysis.noise import load_enr_table
-from analysis.noise_workflow import analyse_noise
+from analysis.noise.workflow import analyse_noise
 from bandcensus.commands._common import db_option, echo_json, json_option
+from bandcensus.commands._noise_source import noise_options_from, noise_source_options
 from bandcensus.commands._tables import print_table
 
 #: Table columns: (point key, heading, format).
@@ -50,21 +50,17 @@ def _cell(value, fmt: str) -> str:
 @click.command("noise")
 @db_option
 @click.option("--receiver", required=True, help="Configuration label of the receiver alone (e.g. bare).")
-@click.option("--system", required=True, help="Configuration label of preamp + receiver.")
-@click.option("--enr-db", type=float, help="Flat excess noise ratio of the noise source, dB.")
-@click.option("--enr-table", type=click.Path(dir_okay=False),
-              help="ENR table CSV with rows freq_mhz,enr_db (interpolated, never extrapolated).")
+@click.option("--system", default=None,
+              help="Configuration label of preamp + receiver (without it: the receiver's NF and the site's "
+                   "outside noise only).")
+@noise_source_options
 @click.option("--enr-uncertainty-db", type=float, default=0.2, show_default=True,
               help="Standard uncertainty of the ENR, dB.")
-@click.option("--cold-k", type=float, default=290.0, show_default=True,
-              help="Physical temperature of the termination and of the noise source when off, K.")
-@click.option("--receiver-nf-db", type=float,
-              help="Assumed receiver NF, dB, used only where hot/cold runs of the receiver are missing.")
 @click.option("--for-receiver-nf-db", type=float,
               help="Project the preamp's C/N gain onto another receiver of this NF, dB.")
 @json_option
 @click.option("--plot", "plot_path", type=click.Path(dir_okay=False), help="Write a PNG figure here.")
-def command(db_path, receiver, system, enr_db, enr_table, enr_uncertainty_db, cold_k, receiver_nf_db,
+def command(db_path, receiver, system, enr_db, enr_table, cold_k, receiver_nf_db, enr_uncertainty_db,
             for_receiver_nf_db, as_json, plot_path):
     """Noise figure of receiver, system and preamp; preamp gain; outside noise beside ITU-R P.372.
 
@@ -73,15 +69,13 @@ def command(db_path, receiver, system, enr_db, enr_table, enr_uncertainty_db, co
     and receiver NF) and antenna + terminated (outside noise temperature Ta and Fa). States
     every assumption and which runs would remove it.
     """
-    if enr_db is not None and enr_table is not None:
-        raise click.UsageError("give either --enr-db or --enr-table, not both")
-    table = load_enr_table(enr_table) if enr_table else None
+    options = noise_options_from(enr_db, enr_table, cold_k, receiver_nf_db)
     result = analyse_noise(
-        db_path, receiver, system, enr_db=enr_db, enr_table=table, enr_uncertainty_db=enr_uncertainty_db,
-        cold_k=cold_k, receiver_nf_db=receiver_nf_db, for_receiver_nf_db=for_receiver_nf_db,
+        db_path, receiver, system, enr_uncertainty_db=enr_uncertainty_db, for_receiver_nf_db=for_receiver_nf_db,
+        **options.workflow_kwargs(),
     )
     if plot_path:
-        from analysis.noise_plots import plot_noise
+        from analysis.noise.plots import plot_noise
 
         plot_noise(result, plot_path)
     payload = result.to_dict()
@@ -90,7 +84,8 @@ def command(db_path, receiver, system, enr_db, enr_table, enr_uncertainty_db, co
         return
     points = payload["points"]
     step = max(1, -(-len(points) // 30))
-    grid = Table(title=f"Noise: '{receiver}' (receiver alone) and '{system}' (preamp + receiver)"
+    what = f" and '{system}' (preamp + receiver)" if system else ""
+    grid = Table(title=f"Noise: '{receiver}' (receiver alone){what}"
                  + (f", every {step}th channel" if step > 1 else ""), title_justify="left")
     grid.add_column("MHz", justify="right")
     for _, head, _ in _COLUMNS:

@@ -6,8 +6,11 @@ import click
 from rich.table import Table
 
 from analysis.errors import BadParameterError
-from analysis.passband_report import analyse_passband
-from analysis.passband_data import load_gain_curve, load_readings_csv
+from analysis.passband.data import load_gain_curve, load_readings_csv
+from analysis.passband.fit import fit_trust
+from analysis.passband.report import analyse_passband
+from analysis.selection import Survey
+from analysis.workflows import passband_for
 from bandcensus.commands._common import echo_json, json_option, parse_mhz_range
 from bandcensus.commands._tables import print_table
 
@@ -42,9 +45,14 @@ def _mhz(v: float | None, digits: int = 2) -> str:
               help="Which database data give the gain (best: noise source, else stations, else floor rise).")
 @click.option("--bin-khz", default=100.0, show_default=True, type=float,
               help="Bin width dense spectra are averaged into, kHz.")
+@click.option("--circuits", type=click.IntRange(1, 3), default=None,
+              help="Number of tuned circuits when known (otherwise chosen by BIC from 1 to 3).")
+@click.option("--q-unloaded", type=click.FloatRange(min=1.0, min_open=True), default=None,
+              help="Unloaded Q of the coils for the insertion loss (default: 150, assumed and flagged).")
 @json_option
 @click.option("--plot", "plot_path", type=click.Path(dir_okay=False), default=None, help="Write a PNG figure.")
-def command(db_path, base, test, points_path, target, band, source, bin_khz, as_json, plot_path) -> None:
+def command(db_path, base, test, points_path, target, band, source, bin_khz, circuits, q_unloaded, as_json,
+            plot_path) -> None:
     """Measure the passband of a preamp and how well it covers a band.
 
     Gain against frequency comes from the database (noise-source sweeps, else stations received
@@ -69,9 +77,29 @@ def command(db_path, base, test, points_path, target, band, source, bin_khz, as_
                                 prefer=None if source == "best" else source)
     if target_hz is None:
         target_hz = _target_from_band(band or curve.band or "europe")
-    report = analyse_passband(curve, target_hz)
+    report = analyse_passband(curve, target_hz, circuits=circuits, q_unloaded=q_unloaded)
+    trusted, why = fit_trust(report.fit, curve.freqs_hz, curve.gain_db, curve.sigma_db)
+    if not trusted and db_path is not None and source == "best":
+        with Survey(db_path) as survey:
+            fallback, reason = passband_for(survey, base, test, target_hz, circuits=circuits,
+                                            q_unloaded=q_unloaded)
+        if fallback is not None:
+            click.echo(f"note: the {curve.source} fit is not trusted ({why}); using {fallback.curve.source} data",
+                       err=True)
+            report, trusted = fallback, True
+        else:
+            why = reason
+    if not trusted:
+        if as_json:
+            echo_json({"verdict": "not enough data to fit", "reason": why, "source": curve.source,
+                       "n_points": curve.n_points})
+            return
+        click.echo(f"Not enough data to fit a passband: {why}.")
+        click.echo(f"data: {curve.source}, {curve.n_points} points; record noise-hot/noise-cold sweeps of both "
+                   "configurations, or more sweeps, for a curve that a tuned-circuit model can be trusted on")
+        return
     if plot_path:
-        from analysis.passband_plots import plot_passband
+        from analysis.passband.plots import plot_passband
 
         plot_passband(report, plot_path)
     if as_json:
@@ -117,16 +145,11 @@ def _print_report(report, plot_path) -> None:
         f"plan checked with the exact circuit response: edges {plan.edge_atten_db[0]:.2f} / "
         f"{plan.edge_atten_db[1]:.2f} dB, ripple {plan.ripple_db:.2f} dB over the target"
     )
-    r = report.refined_plan
-    if r is not None and plan.n_circuits > 1:
-        click.echo(
-            "refined (same proportions, centre and width adjusted so the exact response is -3.01 dB at "
-            "both edges): " + ", ".join(f"{_mhz(s.f0_hz, 3)} MHz Q {s.q:.1f}" for s in r.stages)
-            + f"; ripple {r.ripple_db:.2f} dB"
-        )
+    qu = f"unloaded Q {plan.q_unloaded:g}" + (" (assumed: give --q-unloaded)" if plan.q_unloaded_assumed else "")
+    click.echo("insertion loss of the planned circuits at resonance, -20 log10(1 - Ql/Qu) with " + qu + ": "
+               + ", ".join(f"{v:.2f} dB" for v in plan.insertion_loss_db))
     if plan.peak_gain_change_db is not None:
-        click.echo(
-            f"peak gain change at the same gain-bandwidth per stage: {plan.peak_gain_change_db:+.1f} dB"
-        )
+        click.echo(f"peak gain change of the retuned passive circuits against the fitted ones: "
+                   f"{plan.peak_gain_change_db:+.1f} dB ({qu})")
     if plot_path:
         click.echo(f"figure: {plot_path}")

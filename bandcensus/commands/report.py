@@ -4,8 +4,9 @@ from __future__ import annotations
 
 import click
 
-from analysis.report_html import write_report
+from analysis.report.html import write_report
 from bandcensus.commands._common import db_option, parse_mhz_range
+from bandcensus.commands._noise_source import noise_options_from, noise_source_options
 
 
 @click.command("report")
@@ -16,9 +17,8 @@ from bandcensus.commands._common import db_option, parse_mhz_range
               help="HTML file to write (replaced if it exists).")
 @click.option("--target", default=None,
               help="Band the preamp should cover, START-STOP in MHz (default: the band plan's edges).")
-@click.option("--enr-db", type=float, default=None,
-              help="ENR of the noise source (dB), needed when noise-hot/noise-cold runs exist.")
-def command(db_path, base, test, out_path, target, enr_db) -> None:
+@noise_source_options
+def command(db_path, base, test, out_path, target, enr_db, enr_table, cold_k, receiver_nf_db) -> None:
     """Write one HTML page summing up TEST against BASE: what the preamp did per station,
     its passband, its noise figure, the site's noise, any trouble found and how things moved
     overnight.
@@ -30,7 +30,9 @@ def command(db_path, base, test, out_path, target, enr_db) -> None:
     if base == test:
         raise click.UsageError("--base and --test name the same configuration; give two different labels")
     target_hz = parse_mhz_range(target, "--target") if target is not None else None
-    written = write_report(db_path, base, test, out_path, target_hz=target_hz, enr_db=enr_db)
+    options = noise_options_from(enr_db, enr_table, cold_k, receiver_nf_db)
+    written = write_report(db_path, base, test, out_path, target_hz=target_hz, enr_db=options.enr_db,
+                           enr_table=options.enr_table, cold_k=options.cold_k)
     click.echo(str(written.path))
 
 

@@ -1,7 +1,7 @@
 """``bandcensus tune``: live passband of a preamp while its trimmers are turned.
 
 Thin: parses the options, opens the source and the database, finds the reference, and hands
-each refresh of :func:`survey.tuning_session.run_tuning` to :class:`analysis.tuning_tracker.TuneTracker`
+each refresh of :func:`survey.tuning_session.run_tuning` to :class:`analysis.tuning.tracker.TuneTracker`
 and to the chosen output (terminal view, JSON lines, local page). Ctrl-C or SIGTERM ends the
 session cleanly (exit 0) and says where it was stored.
 """
@@ -16,9 +16,9 @@ from pathlib import Path
 import click
 import numpy as np
 
-from analysis.tuning_hints import FitWorker
-from analysis.tuning_reference import load_reference, reference_from_channels
-from analysis.tuning_tracker import TUNE_INPUTS, TuneTracker
+from analysis.tuning.hints import FitWorker
+from analysis.tuning.reference import load_reference, reference_from_channels
+from analysis.tuning.tracker import TUNE_INPUTS, TuneTracker
 from bandcensus import __version__
 from bandcensus.commands._common import _clean, parse_mhz_range
 from survey.errors import ScheduleError

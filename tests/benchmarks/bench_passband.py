@@ -11,8 +11,8 @@ import time
 import numpy as np
 import scipy.optimize
 
-import analysis.passband as pb
-from analysis.passband import TunedStage, cascade_response_db, fit_passband
+import analysis.passband.fit as pb
+from analysis.passband.fit import TunedStage, cascade_response_db, fit_passband
 
 
 def _curve(seed: int = 7):

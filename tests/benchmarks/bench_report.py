@@ -26,11 +26,11 @@ HERE = Path(__file__).resolve().parent
 sys.path.insert(0, str(HERE.parent))
 sys.path.insert(0, str(HERE.parent.parent))
 
-from analysis.compare import compare_configurations  # noqa: E402
-from analysis.compare_plots import plot_comparison  # noqa: E402
-from analysis.report import build_report  # noqa: E402
-from analysis.report_html import render_html  # noqa: E402
-from analysis.report_plots import render_figures  # noqa: E402
+from analysis.compare.core import compare_configurations  # noqa: E402
+from analysis.compare.plots import plot_comparison  # noqa: E402
+from analysis.report.build import build_report  # noqa: E402
+from analysis.report.html import render_html  # noqa: E402
+from analysis.report.plots import render_figures  # noqa: E402
 from bandcensus.cli import main as cli  # noqa: E402
 
 DEMO = HERE.parent.parent / "recordings_demo" / "sigmf"

@@ -25,8 +25,8 @@ sys.path.insert(0, str(Path(__file__).resolve().parents[2]))
 
 import numpy as np  # noqa: E402
 
-from analysis.tuning_reference import reference_from_channels  # noqa: E402
-from analysis.tuning_tracker import TuneTracker  # noqa: E402
+from analysis.tuning.reference import reference_from_channels  # noqa: E402
+from analysis.tuning.tracker import TuneTracker  # noqa: E402
 from survey.scene import load_scene  # noqa: E402
 from survey.sources.simulated import SimulatedSource  # noqa: E402
 from survey.sweep import run_sweep  # noqa: E402
