@@ -49,6 +49,7 @@ import scipy.signal
 from survey.errors import PlanError, RecordingError
 from survey.records import ChannelReading, HopReading, IQBlock, SweepSettings
 from survey.noise_floor import local_noise_floor, log_average_bias_db  # re-exported: public API
+from survey.emissions import find_emissions
 from survey.units import ratio_to_db
 
 #: Datatypes (SigMF spelling) that :func:`to_complex64` converts.
@@ -390,6 +391,7 @@ def measure_hop(
     settings: SweepSettings,
     hop_index: int,
     keep_psd: bool = False,
+    emissions_out: list | None = None,
 ) -> tuple[HopReading, list[ChannelReading]]:
     """Measure one hop: clipping, PSD, local noise floor and each channel's P, N and C/N.
 
@@ -411,6 +413,9 @@ def measure_hop(
         Stored with the readings.
     keep_psd : bool
         Attach absolute bin frequencies (Hz, float64) and the PSD (dBFS/Hz, float32).
+    emissions_out : list, optional
+        When given, the hop's emissions (:func:`survey.emissions.find_emissions`, from the
+        same PSD and floor) are appended to it as :class:`~survey.records.EmissionReading`.
 
     Raises
     ------
@@ -428,6 +433,12 @@ def measure_hop(
     k_eff = welch_effective_averages(samples.size, settings.fft_size)
     floor = local_noise_floor(offsets, psd, usable, effective_averages=k_eff)
     floor_db = _median_db(floor[usable])
+    if emissions_out is not None:
+        emissions_out.extend(find_emissions(
+            offsets, psd, floor, usable, center_hz=center, hop_index=int(hop_index),
+            channels_hz=channels_hz, channel_bw_hz=float(settings.channel_bw_hz),
+            effective_averages=k_eff, samples=samples, sample_rate_hz=fs,
+        ))
 
     freqs = np.asarray(list(channels_hz), dtype=np.float64)
     readings: list[ChannelReading] = []

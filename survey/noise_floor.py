@@ -111,6 +111,12 @@ def _group_variance_factor(fft_size: int, group: int) -> float:
     return float((1.0 + 2.0 * np.sum((1.0 - lags / group) * rho2)) / group)
 
 
+def group_variance_factor(fft_size: int, group: int) -> float:
+    """Variance of the mean of ``group`` adjacent Hann-periodogram bins relative to one bin
+    (white Gaussian noise; see :func:`_group_variance_factor`)."""
+    return _group_variance_factor(int(fft_size), int(group))
+
+
 @lru_cache(maxsize=64)
 def _window_ends(n: int, half: int) -> tuple[np.ndarray, np.ndarray]:
     i = np.arange(n)

@@ -16,6 +16,7 @@ from survey.errors import PlanError
 from survey.records import (
     BandPlan,
     ChannelReading,
+    EmissionReading,
     HopPlan,
     HopReading,
     IQBlock,
@@ -102,10 +103,12 @@ def run_sweep(
     Returns
     -------
     SweepResult
-        Hop and channel readings; times from the source's block timestamps (UTC).
+        Hop and channel readings and the emissions found in each hop
+        (:func:`survey.emissions.find_emissions`, each reported by one hop); times from the source's block timestamps (UTC).
     """
     hops: list[HopReading] = []
     channels: list[ChannelReading] = []
+    emissions: list[EmissionReading] = []
     started = None
     ended = None
     complete = True
@@ -123,7 +126,8 @@ def run_sweep(
         if sink is not None:
             sink.add_block(block)
         hop_reading, channel_readings = dsp.measure_hop(
-            block, hop.channels_hz, settings, hop_index=hop.index, keep_psd=keep_psd
+            block, hop.channels_hz, settings, hop_index=hop.index, keep_psd=keep_psd,
+            emissions_out=emissions,
         )
         hops.append(hop_reading)
         channels.extend(channel_readings)
@@ -142,4 +146,5 @@ def run_sweep(
         hops=tuple(hops),
         channels=tuple(channels),
         complete=complete,
+        emissions=tuple(sorted(emissions, key=lambda e: e.freq_hz)),
     )

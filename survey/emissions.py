@@ -1,0 +1,346 @@
+"""Emissions of one hop: every transmitter above the local floor, measured on its own.
+
+A raster channel is a place on the band plan; an emission is a transmitter. One FM station fills
+the 100 kHz raster points either side of its carrier with its sidebands, and a strong station's
+skirt spills into its neighbours' channels. This module finds the emissions in the PSD and the
+local floor that :func:`survey.dsp.measure_hop` already computes, and measures each one alone.
+
+Method (all arrays over the hop's bins, vectorised)
+---------------------------------------------------
+1. Excess density ``E = PSD - N0`` (FS^2/Hz), smoothed over ``smooth_hz``; bins outside the
+   usable span (and the DC guard) are unknown (NaN), never zero.
+2. Detection: the mean excess over ``detect_hz`` windows against its standard deviation. For an
+   averaged periodogram of ``K_eff`` averages each bin is ``S chi2(2K)/(2K)`` (Welch 1967), so the
+   mean of ``M`` Hann-correlated bins has relative standard deviation ``sqrt(v(M) / K_eff)``
+   (``v`` from :func:`survey.noise_floor.group_variance_factor`); a model term ``model_error``
+   of the local density is added in quadrature (a strong station's programme spectrum is not
+   exactly symmetric). A window ``detect_sigma`` deviations above zero holds an emission.
+3. Strongest first ("mirror subtraction"): at the strongest remaining window the carrier is the
+   frequency about which the residual is most symmetric (``sum_d min(R(c+d), R(c-d))`` largest,
+   searched within ``carrier_search_hz``, parabolic sub-bin refinement). The emission's own
+   spectrum is taken as that mirror minimum, made non-increasing outward (a skirt falls with
+   distance from its carrier) and clipped at zero, out to ``skirt_reach_hz``; it is subtracted
+   from the residual, and the next strongest window is examined. Power on one side of a carrier
+   that has no mirror on the other side belongs to someone else. A window whose carrier would be
+   closer than ``sideband_hz`` to a stronger emission's carrier is that emission's own sideband
+   or programme asymmetry: never a station.
+4. Per emission, over its channel ``carrier +- B/2`` (``B`` the channel bandwidth):
+   ``I`` = the other emissions' estimated spectra (the neighbours' skirts), ``C`` = excess minus
+   ``I`` (its own power), ``N`` = floor integral; ``C/N = 10 log10(C/N)``, ``C/I = 10 log10(C/I)``
+   (None when no neighbour power is estimated in the channel). ``power_dbfs`` is ``C + N``
+   (signal plus noise in the channel, neighbour removed), as channel rows store ``P``.
+   ``separable`` is False when ``C/I`` is below ``separable_ci_db``: a neighbour's skirt
+   estimated to 10 % (the mirror's accuracy, measured on the simulated and synthetic pairs in
+   tests/test_emissions.py) would then move C by more than about 1.5 dB.
+5. Occupied bandwidth: the 99 % power bandwidth of the emission's own (mirror) spectrum, 0.5 %
+   of the power beyond each limit (ITU-R SM.328, ITU-R SM.443), linear interpolation inside a bin.
+6. Kind: ``narrow`` when the occupied bandwidth is below ``narrow_below_hz`` (25 kHz: an
+   unmodulated carrier, a spur or a supply line occupies a few bins of the window's main lobe),
+   otherwise ``fm``. An FM broadcast station occupies about 2 (75 + 15) = 180 kHz mono and
+   2 (75 + 53) = 256 kHz stereo by Carson's rule (Carson 1922; FS-1037C "Carson bandwidth
+   rule"); an FM station silent and mono for a whole dwell would read ``narrow`` (a limit).
+7. Stereo: FM emissions at C/N >= ``pilot_min_cn_db`` are cut out of one FFT of the hop's
+   samples (``+- pilot_band_hz``), decimated, frequency-discriminated, and the multiplex spectrum
+   is examined at 19 kHz (ITU-R BS.450-3 pilot-tone system): stereo when the pilot bin stands
+   ``pilot_ratio_db`` above the median of the 15-23 kHz gap around it (empty in the multiplex).
+
+References
+----------
+ITU-R SM.328-11 "Spectra and bandwidth of emissions" (occupied bandwidth, beta/2 = 0.5 %);
+ITU-R SM.443-4 "Bandwidth measurement at monitoring stations";
+J. R. Carson, "Notes on the theory of modulation", Proc. IRE 10, 57-64, 1922;
+ITU-R BS.450-3 "Transmission standards for FM sound broadcasting at VHF" (19 kHz pilot);
+P. D. Welch, IEEE Trans. Audio Electroacoust. AU-15, 70-73, 1967.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Sequence
+
+import numpy as np
+import scipy.fft
+import scipy.signal
+
+from survey.noise_floor import group_variance_factor
+from survey.records import EmissionReading
+from survey.units import ratio_to_db
+
+PILOT_HZ = 19_000.0
+
+
+@dataclass(frozen=True)
+class EmissionTuning:
+    """Thresholds of :func:`find_emissions` (keep them fixed for sweeps that are compared)."""
+
+    smooth_hz: float = 5_000.0
+    envelope_hz: float = 25_000.0
+    detect_hz: float = 25_000.0
+    detect_sigma: float = 6.0
+    model_error: float = 0.05
+    carrier_search_hz: float = 60_000.0
+    symmetry_reach_hz: float = 100_000.0
+    skirt_reach_hz: float = 300_000.0
+    sideband_hz: float = 80_000.0
+    separable_ci_db: float = -6.0
+    narrow_below_hz: float = 25_000.0
+    max_emissions: int = 60
+    pilot_band_hz: float = 110_000.0
+    pilot_min_cn_db: float = 6.0
+    pilot_ratio_db: float = 10.0
+
+
+DEFAULT_TUNING = EmissionTuning()
+
+
+def _boxcar(x: np.ndarray, width: int) -> np.ndarray:
+    """Running mean over ``width`` bins (odd), NaN-aware: the mean of the known bins, NaN if none."""
+    if width <= 1:
+        return x.copy()
+    known = np.isfinite(x)
+    vals = np.where(known, x, 0.0)
+    kernel = np.ones(width)
+    total = np.convolve(vals, kernel, mode="same")
+    count = np.convolve(known.astype(np.float64), kernel, mode="same")
+    with np.errstate(invalid="ignore", divide="ignore"):
+        out = total / count
+    out[count == 0] = np.nan
+    return out
+
+
+def _odd(n: float) -> int:
+    k = max(1, int(round(n)))
+    return k if k % 2 else k + 1
+
+
+def _take(x: np.ndarray, idx: np.ndarray) -> np.ndarray:
+    """``x[idx]`` with NaN where the index falls outside the array."""
+    inside = (idx >= 0) & (idx < x.size)
+    out = np.full(idx.shape, np.nan)
+    out[inside] = x[idx[inside]]
+    return out
+
+
+def _mirror_min(r: np.ndarray, centers: np.ndarray, reach: int) -> np.ndarray:
+    """``min(r[c+d], r[c-d])`` for ``d = 0..reach`` per centre; one side alone where the other is unknown."""
+    d = np.arange(reach + 1)
+    plus = _take(r, centers[:, None] + d[None, :])
+    minus = _take(r, centers[:, None] - d[None, :])
+    return np.fmin(plus, minus)
+
+
+def occupied_bandwidth(freqs_hz: np.ndarray, density: np.ndarray, fraction: float = 0.99) -> tuple[float, float]:
+    """Limits (Hz) below and above which ``(1 - fraction)/2`` of the power lies (ITU-R SM.328).
+
+    ``density`` is a non-negative power density on the ascending, uniform grid ``freqs_hz``;
+    the cumulative power is interpolated linearly inside a bin.
+    """
+    p = np.clip(np.nan_to_num(np.asarray(density, dtype=np.float64)), 0.0, None)
+    total = float(p.sum())
+    if total <= 0.0:
+        c = float(freqs_hz[p.size // 2])
+        return c, c
+    step = float(freqs_hz[1] - freqs_hz[0])
+    cum = np.concatenate([[0.0], np.cumsum(p)]) / total
+    edges = np.concatenate([[freqs_hz[0] - step / 2.0], freqs_hz + step / 2.0])
+    tail = (1.0 - fraction) / 2.0
+    return float(np.interp(tail, cum, edges)), float(np.interp(1.0 - tail, cum, edges))
+
+
+def _band_sum(cum: np.ndarray, edges: np.ndarray, lo_hz: np.ndarray, hi_hz: np.ndarray) -> np.ndarray:
+    """Integral between ``lo`` and ``hi`` from a cumulative integral sampled at bin edges."""
+    return np.interp(hi_hz, edges, cum) - np.interp(lo_hz, edges, cum)
+
+
+def _stereo_pilot(spectrum: np.ndarray, n: int, sample_rate_hz: float, offset_hz: float,
+                  tuning: EmissionTuning) -> bool:
+    """Whether the emission at ``offset_hz`` carries a 19 kHz pilot (see the module notes)."""
+    band = tuning.pilot_band_hz
+    out_rate = 4.0 * band
+    length = int(n * out_rate / sample_rate_hz)
+    if length < 256:
+        return False
+    freqs = scipy.fft.fftfreq(length, 1.0 / out_rate)
+    keep = np.abs(freqs) <= band
+    src = np.rint((offset_hz + freqs[keep]) * n / sample_rate_hz).astype(np.int64) % n
+    cut = np.zeros(length, dtype=np.complex64)
+    cut[keep] = spectrum[src]
+    z = scipy.fft.ifft(cut)
+    inst = np.angle(z[1:] * np.conj(z[:-1]))
+    seg = min(1024, inst.size)
+    f, pxx = scipy.signal.welch(inst, fs=out_rate, nperseg=seg, detrend="constant")
+    gap = ((f > 15_500.0) & (f < 18_000.0)) | ((f > 20_000.0) & (f < 22_500.0))
+    near = np.abs(f - PILOT_HZ) <= 1.5 * (f[1] - f[0])
+    if not gap.any() or not near.any():
+        return False
+    return bool(np.max(pxx[near]) >= np.median(pxx[gap]) * 10.0 ** (tuning.pilot_ratio_db / 10.0))
+
+
+def find_emissions(
+    offsets_hz: np.ndarray,
+    psd: np.ndarray,
+    floor: np.ndarray,
+    usable: np.ndarray,
+    *,
+    center_hz: float,
+    hop_index: int,
+    channels_hz: Sequence[int],
+    channel_bw_hz: float,
+    effective_averages: float,
+    samples: np.ndarray | None = None,
+    sample_rate_hz: float | None = None,
+    tuning: EmissionTuning = DEFAULT_TUNING,
+) -> list[EmissionReading]:
+    """Emissions of one hop, each measured alone (method in the module notes).
+
+    Parameters
+    ----------
+    offsets_hz, psd : numpy.ndarray
+        :func:`survey.dsp.averaged_psd` output (Hz from the hop centre; FS^2/Hz).
+    floor : numpy.ndarray
+        :func:`survey.noise_floor.local_noise_floor` (FS^2/Hz; NaN outside the usable span).
+    usable : numpy.ndarray
+        Usable bins (:func:`survey.dsp.usable_bins`).
+    center_hz : float
+        Hop centre, Hz (carriers are reported absolute).
+    channels_hz : sequence of int
+        Raster channels this hop measures. An emission is reported by the hop whose channel is
+        nearest its carrier (within half the raster step), so a sweep reports it once.
+    channel_bw_hz : float
+        Channel bandwidth ``B`` for C, N and I, Hz.
+    effective_averages : float
+        ``K_eff`` of the PSD.
+    samples : numpy.ndarray, optional
+        The hop's complex samples, for the stereo pilot (without them ``stereo`` is False).
+
+    Returns
+    -------
+    list of EmissionReading
+        Ascending in frequency.
+    """
+    chans = np.asarray(sorted(int(c) for c in channels_hz), dtype=np.float64)
+    if chans.size == 0:
+        return []
+    offsets = np.asarray(offsets_hz, dtype=np.float64)
+    step = float(offsets[1] - offsets[0])
+    psd64 = np.asarray(psd, dtype=np.float64)
+    n0 = np.asarray(floor, dtype=np.float64)
+    known = np.asarray(usable, dtype=bool) & np.isfinite(n0)
+    if not known.any():
+        return []
+    excess = np.where(known, psd64 - n0, np.nan)
+    residual = _boxcar(excess, _odd(tuning.smooth_hz / step))
+    residual[~known] = np.nan
+    total = np.where(known, psd64, np.nan)
+
+    detect_w = _odd(tuning.detect_hz / step)
+    rel_var = group_variance_factor(offsets.size, detect_w) / float(effective_averages) + tuning.model_error**2
+    local_total = _boxcar(total, detect_w)
+    search = int(round(tuning.carrier_search_hz / step))
+    sym_reach = int(round(tuning.symmetry_reach_hz / step))
+    skirt_reach = int(round(tuning.skirt_reach_hz / step))
+    envelope_w = _odd(tuning.envelope_hz / step)
+
+    carriers: list[float] = []
+    components: list[tuple[int, np.ndarray]] = []  # (carrier bin, mirror spectrum for d = 0..reach)
+    strengths: list[float] = []
+    blocked = np.zeros(offsets.size, dtype=bool)
+    for _ in range(tuning.max_emissions * 3):
+        if len(carriers) >= tuning.max_emissions:
+            break
+        score = _boxcar(residual, detect_w) / (local_total * np.sqrt(rel_var))
+        score[~known | blocked] = np.nan
+        if not np.isfinite(score).any():
+            break
+        peak = int(np.nanargmax(score))
+        if not score[peak] >= tuning.detect_sigma:
+            break
+        cand = np.arange(max(peak - search, 0), min(peak + search + 1, offsets.size))
+        sym = np.nansum(np.clip(_mirror_min(residual, cand, sym_reach), 0.0, None), axis=1)
+        best = int(np.argmax(sym))
+        frac = 0.0
+        if 0 < best < sym.size - 1:
+            a, b, c = sym[best - 1], sym[best], sym[best + 1]
+            den = a - 2.0 * b + c
+            frac = float(np.clip(0.5 * (a - c) / den, -0.5, 0.5)) if den < 0 else 0.0
+        at = int(cand[best])
+        carrier = float(offsets[at] + frac * step)
+        half_block = max(detect_w // 2, 1)
+        if any(abs(carrier - c) < tuning.sideband_hz for c in carriers):
+            blocked[max(peak - half_block, 0) : peak + half_block + 1] = True
+            continue  # a sideband or the asymmetry of a stronger emission
+        mirror = _mirror_min(residual, np.asarray([at]), skirt_reach)[0]
+        mirror = np.clip(np.nan_to_num(mirror, nan=0.0), 0.0, None)
+        envelope = np.minimum.accumulate(np.clip(np.nan_to_num(
+            _boxcar(_mirror_min(residual, np.asarray([at]), skirt_reach)[0], envelope_w), nan=0.0), 0.0, None))
+        own = np.minimum(mirror, envelope)
+        if own[: sym_reach + 1].sum() <= 0.0:
+            blocked[max(peak - half_block, 0) : peak + half_block + 1] = True
+            continue
+        d = np.arange(own.size)
+        for idx in (at + d, at - d[1:]):
+            inside = (idx >= 0) & (idx < offsets.size)
+            residual[idx[inside]] -= own[: idx.size][inside]
+        carriers.append(carrier)
+        components.append((at, own))
+        strengths.append(float(score[peak]))
+
+    if not carriers:
+        return []
+    # per-emission spectra on the bin grid, for the channel integrals
+    spectra = np.zeros((len(carriers), offsets.size))
+    for k, (at, own) in enumerate(components):
+        d = np.arange(own.size)
+        for idx in (at + d, at - d[1:]):
+            inside = (idx >= 0) & (idx < offsets.size)
+            spectra[k, idx[inside]] = own[: idx.size][inside]
+    edges = np.concatenate([[offsets[0] - step / 2.0], offsets + step / 2.0])
+    raw_excess = np.nan_to_num(excess, nan=0.0)
+    cum_excess = np.concatenate([[0.0], np.cumsum(raw_excess)]) * step
+    cum_floor = np.concatenate([[0.0], np.cumsum(np.nan_to_num(n0, nan=0.0))]) * step
+    cum_parts = np.concatenate([np.zeros((len(carriers), 1)), np.cumsum(spectra, axis=1)], axis=1) * step
+    cum_all = cum_parts.sum(axis=0)
+    car = np.asarray(carriers)
+    lo, hi = car - channel_bw_hz / 2.0, car + channel_bw_hz / 2.0
+    e_chan = _band_sum(cum_excess, edges, lo, hi)
+    n_chan = _band_sum(cum_floor, edges, lo, hi)
+    all_chan = _band_sum(cum_all, edges, lo, hi)
+    self_chan = np.array([_band_sum(cum_parts[k], edges, lo[k : k + 1], hi[k : k + 1])[0]
+                          for k in range(len(carriers))])
+    interference = np.clip(all_chan - self_chan, 0.0, None)
+    own_power = e_chan - interference
+
+    raster = float(np.min(np.diff(chans))) if chans.size > 1 else float(channel_bw_hz)
+    spectrum = None
+    if samples is not None and sample_rate_hz is not None:
+        spectrum = None  # computed lazily below, once per hop
+    out: list[EmissionReading] = []
+    for k in range(len(carriers)):
+        freq = float(center_hz) + carriers[k]
+        nearest = int(np.argmin(np.abs(chans - freq)))
+        if abs(chans[nearest] - freq) > raster / 2.0 + 1.0:
+            continue  # owned by the hop that measures the nearer channel
+        f_lo, f_hi = occupied_bandwidth(offsets, spectra[k])
+        obw = max(f_hi - f_lo, 0.0)
+        kind = "narrow" if obw < tuning.narrow_below_hz else "fm"
+        n_k = float(n_chan[k])
+        c_k = float(own_power[k])
+        cn = float(ratio_to_db(c_k / n_k)) if c_k > 0 and n_k > 0 else float("nan")
+        i_k = float(interference[k])
+        ci = float(ratio_to_db(c_k / i_k)) if i_k > 1e-12 * max(n_k, 1e-300) and c_k > 0 else None
+        separable = ci is None or ci >= tuning.separable_ci_db
+        stereo = False
+        if kind == "fm" and samples is not None and sample_rate_hz is not None and np.isfinite(cn) \
+                and cn >= tuning.pilot_min_cn_db:
+            if spectrum is None:
+                spectrum = scipy.fft.fft(np.asarray(samples, dtype=np.complex64))
+            stereo = _stereo_pilot(spectrum, int(np.size(samples)), float(sample_rate_hz), carriers[k], tuning)
+        power = float(ratio_to_db(max(c_k, 0.0) + n_k)) if n_k > 0 else float("nan")
+        out.append(EmissionReading(
+            freq_hz=freq, hop_index=int(hop_index), kind=kind, occupied_bw_hz=float(obw),
+            power_dbfs=power, noise_dbfs=float(ratio_to_db(n_k)) if n_k > 0 else float("nan"),
+            cn_db=cn, ci_db=ci, stereo=bool(stereo), channel_freq_hz=int(chans[nearest]),
+            separable=bool(separable),
+        ))
+    out.sort(key=lambda e: e.freq_hz)
+    return out
