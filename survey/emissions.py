@@ -9,21 +9,31 @@ Method (all arrays over the hop's bins, vectorised)
 ---------------------------------------------------
 1. Excess density ``E = PSD - N0`` (FS^2/Hz), smoothed over ``smooth_hz``; bins outside the
    usable span (and the DC guard) are unknown (NaN), never zero.
-2. Detection: the mean excess over ``detect_hz`` windows against its standard deviation. For an
+2. Detection: the mean excess over ``detect_hz`` windows (and over ``line_hz`` windows, the
+   Hann main lobe of a carrier) against its standard deviation. For an
    averaged periodogram of ``K_eff`` averages each bin is ``S chi2(2K)/(2K)`` (Welch 1967), so the
    mean of ``M`` Hann-correlated bins has relative standard deviation ``sqrt(v(M) / K_eff)``
    (``v`` from :func:`survey.noise_floor.group_variance_factor`); a model term ``model_error``
    of the local density is added in quadrature (a strong station's programme spectrum is not
    exactly symmetric). A window ``detect_sigma`` deviations above zero holds an emission.
 3. Strongest first ("mirror subtraction"): at the strongest remaining window the carrier is the
-   frequency about which the residual is most symmetric (``sum_d min(R(c+d), R(c-d))`` largest,
+   frequency about which the residual is most symmetric (``sum_d w(d) min(R(c+d), R(c-d))``
+   largest, with the triangular taper ``w(d) = 1 - d / symmetry_reach_hz`` so that power near
+   the carrier counts most and two separate lines are not taken for one emission's sidebands;
    searched within ``carrier_search_hz``, parabolic sub-bin refinement). The emission's own
    spectrum is taken as that mirror minimum, made non-increasing outward (a skirt falls with
    distance from its carrier) and clipped at zero, out to ``skirt_reach_hz``; it is subtracted
    from the residual, and the next strongest window is examined. Power on one side of a carrier
-   that has no mirror on the other side belongs to someone else. A window whose carrier would be
-   closer than ``sideband_hz`` to a stronger emission's carrier is that emission's own sideband
-   or programme asymmetry: never a station.
+   that has no mirror on the other side belongs to someone else. Beyond the emission's core
+   (the offset holding 99.9 % of its mirror power within ``symmetry_reach_hz``) the mirror is
+   bounded by a non-increasing envelope of itself smoothed over ``envelope_hz``: a skirt falls
+   with distance, so stations on both sides of it are not taken for its skirt.
+   A window whose carrier would lie closer to a stronger emission's carrier than ``sideband_hz``
+   or half that emission's 99 % bandwidth is that emission's own sideband or programme
+   asymmetry: never a station. A window whose carrier lies within ``image_hz`` of the mirror
+   (about the hop centre) of an emission whose excess density (over ``detect_hz``) is over
+   ``1 / image_below`` times larger is that emission's image from the receiver's I/Q imbalance (typically 25-45 dB down;
+   common practice, no source): never a station in this hop.
 4. Per emission, over its channel ``carrier +- B/2`` (``B`` the channel bandwidth):
    ``I`` = the other emissions' estimated spectra (the neighbours' skirts), ``C`` = excess minus
    ``I`` (its own power), ``N`` = floor integral; ``C/N = 10 log10(C/N)``, ``C/I = 10 log10(C/I)``
@@ -33,7 +43,9 @@ Method (all arrays over the hop's bins, vectorised)
    estimated to 10 % (the mirror's accuracy, measured on the simulated and synthetic pairs in
    tests/test_emissions.py) would then move C by more than about 1.5 dB.
 5. Occupied bandwidth: the 99 % power bandwidth of the emission's own (mirror) spectrum, 0.5 %
-   of the power beyond each limit (ITU-R SM.328, ITU-R SM.443), linear interpolation inside a bin.
+   of the power beyond each limit (ITU-R SM.328, ITU-R SM.443), linear interpolation inside a bin;
+   bins of the mirror spectrum below two standard deviations of the smoothed floor are left out
+   (the clipped mirror of noise would otherwise widen a weak emission).
 6. Kind: ``narrow`` when the occupied bandwidth is below ``narrow_below_hz`` (25 kHz: an
    unmodulated carrier, a spur or a supply line occupies a few bins of the window's main lobe),
    otherwise ``fm``. An FM broadcast station occupies about 2 (75 + 15) = 180 kHz mono and
@@ -77,6 +89,7 @@ class EmissionTuning:
     envelope_hz: float = 25_000.0
     detect_hz: float = 25_000.0
     detect_sigma: float = 6.0
+    line_hz: float = 3_500.0
     model_error: float = 0.05
     carrier_search_hz: float = 60_000.0
     symmetry_reach_hz: float = 100_000.0
@@ -85,6 +98,8 @@ class EmissionTuning:
     separable_ci_db: float = -6.0
     narrow_below_hz: float = 25_000.0
     max_emissions: int = 60
+    image_hz: float = 20_000.0
+    image_below: float = 0.01
     pilot_band_hz: float = 110_000.0
     pilot_min_cn_db: float = 6.0
     pilot_ratio_db: float = 10.0
@@ -127,6 +142,23 @@ def _mirror_min(r: np.ndarray, centers: np.ndarray, reach: int) -> np.ndarray:
     plus = _take(r, centers[:, None] + d[None, :])
     minus = _take(r, centers[:, None] - d[None, :])
     return np.fmin(plus, minus)
+
+
+def _core_reach(one_sided: np.ndarray, reach: int) -> int:
+    """Offset (bins) within which 99.9 % of a one-sided mirror spectrum's power lies (up to ``reach``)."""
+    part = one_sided[: reach + 1]
+    total = float(part.sum())
+    if total <= 0.0:
+        return 0
+    return int(np.searchsorted(np.cumsum(part), 0.999 * total))
+
+
+def _add_mirrored(target: np.ndarray, at: int, one_sided: np.ndarray) -> None:
+    """Add ``one_sided[d]`` to ``target`` at bins ``at + d`` and ``at - d`` (``d = 0`` once), in range."""
+    d = np.arange(one_sided.size)
+    for idx, vals in ((at + d, one_sided), (at - d[1:], one_sided[1:])):
+        inside = (idx >= 0) & (idx < target.size)
+        target[idx[inside]] += vals[inside]
 
 
 def occupied_bandwidth(freqs_hz: np.ndarray, density: np.ndarray, fraction: float = 0.99) -> tuple[float, float]:
@@ -236,6 +268,9 @@ def find_emissions(
     detect_w = _odd(tuning.detect_hz / step)
     rel_var = group_variance_factor(offsets.size, detect_w) / float(effective_averages) + tuning.model_error**2
     local_total = _boxcar(total, detect_w)
+    line_w = _odd(tuning.line_hz / step)
+    line_var = group_variance_factor(offsets.size, line_w) / float(effective_averages) + tuning.model_error**2
+    line_total = _boxcar(total, line_w)
     search = int(round(tuning.carrier_search_hz / step))
     sym_reach = int(round(tuning.symmetry_reach_hz / step))
     skirt_reach = int(round(tuning.skirt_reach_hz / step))
@@ -243,20 +278,24 @@ def find_emissions(
 
     carriers: list[float] = []
     components: list[tuple[int, np.ndarray]] = []  # (carrier bin, mirror spectrum for d = 0..reach)
-    strengths: list[float] = []
+    reaches: list[float] = []  # sideband reach of each emission found, Hz
+    strengths: list[float] = []  # detection score of each emission found
     blocked = np.zeros(offsets.size, dtype=bool)
     for _ in range(tuning.max_emissions * 3):
         if len(carriers) >= tuning.max_emissions:
             break
-        score = _boxcar(residual, detect_w) / (local_total * np.sqrt(rel_var))
+        wide = _boxcar(residual, detect_w)
+        narrow = _boxcar(residual, line_w)
+        score = np.fmax(wide / (local_total * np.sqrt(rel_var)), narrow / (line_total * np.sqrt(line_var)))
+        window_mean = np.fmax(wide, narrow)
         score[~known | blocked] = np.nan
-        if not np.isfinite(score).any():
+        significant = score >= tuning.detect_sigma
+        if not significant.any():
             break
-        peak = int(np.nanargmax(score))
-        if not score[peak] >= tuning.detect_sigma:
-            break
+        peak = int(np.argmax(np.where(significant, window_mean, -np.inf)))  # strongest first
         cand = np.arange(max(peak - search, 0), min(peak + search + 1, offsets.size))
-        sym = np.nansum(np.clip(_mirror_min(residual, cand, sym_reach), 0.0, None), axis=1)
+        taper = 1.0 - np.arange(sym_reach + 1) / (sym_reach + 1.0)
+        sym = np.nansum(np.clip(_mirror_min(residual, cand, sym_reach), 0.0, None) * taper, axis=1)
         best = int(np.argmax(sym))
         frac = 0.0
         if 0 < best < sym.size - 1:
@@ -266,34 +305,33 @@ def find_emissions(
         at = int(cand[best])
         carrier = float(offsets[at] + frac * step)
         half_block = max(detect_w // 2, 1)
-        if any(abs(carrier - c) < tuning.sideband_hz for c in carriers):
+        if any(abs(carrier + c) < tuning.image_hz and window_mean[peak] < s_c * tuning.image_below
+               for c, s_c in zip(carriers, strengths)):
+            blocked[max(peak - half_block, 0) : peak + half_block + 1] = True
+            continue  # the receiver's IQ-imbalance image of a stronger emission
+        if any(abs(carrier - c) < reach for c, reach in zip(carriers, reaches)):
             blocked[max(peak - half_block, 0) : peak + half_block + 1] = True
             continue  # a sideband or the asymmetry of a stronger emission
-        mirror = _mirror_min(residual, np.asarray([at]), skirt_reach)[0]
-        mirror = np.clip(np.nan_to_num(mirror, nan=0.0), 0.0, None)
-        envelope = np.minimum.accumulate(np.clip(np.nan_to_num(
-            _boxcar(_mirror_min(residual, np.asarray([at]), skirt_reach)[0], envelope_w), nan=0.0), 0.0, None))
-        own = np.minimum(mirror, envelope)
+        raw_mirror = _mirror_min(residual, np.asarray([at]), skirt_reach)[0]
+        own = np.clip(np.nan_to_num(raw_mirror, nan=0.0), 0.0, None)
+        core = _core_reach(own, sym_reach)
+        envelope = np.clip(np.nan_to_num(_boxcar(raw_mirror, envelope_w), nan=0.0), 0.0, None)
+        own[core:] = np.minimum(own[core:], np.minimum.accumulate(envelope[core:]))
         if own[: sym_reach + 1].sum() <= 0.0:
             blocked[max(peak - half_block, 0) : peak + half_block + 1] = True
             continue
-        d = np.arange(own.size)
-        for idx in (at + d, at - d[1:]):
-            inside = (idx >= 0) & (idx < offsets.size)
-            residual[idx[inside]] -= own[: idx.size][inside]
+        _add_mirrored(residual, at, -own)
         carriers.append(carrier)
         components.append((at, own))
-        strengths.append(float(score[peak]))
+        reaches.append(max(tuning.sideband_hz, core * step))
+        strengths.append(float(np.nan_to_num(window_mean[peak])))
 
     if not carriers:
         return []
     # per-emission spectra on the bin grid, for the channel integrals
     spectra = np.zeros((len(carriers), offsets.size))
     for k, (at, own) in enumerate(components):
-        d = np.arange(own.size)
-        for idx in (at + d, at - d[1:]):
-            inside = (idx >= 0) & (idx < offsets.size)
-            spectra[k, idx[inside]] = own[: idx.size][inside]
+        _add_mirrored(spectra[k], at, own)
     edges = np.concatenate([[offsets[0] - step / 2.0], offsets + step / 2.0])
     raw_excess = np.nan_to_num(excess, nan=0.0)
     cum_excess = np.concatenate([[0.0], np.cumsum(raw_excess)]) * step
@@ -310,6 +348,11 @@ def find_emissions(
     interference = np.clip(all_chan - self_chan, 0.0, None)
     own_power = e_chan - interference
 
+    # the mirror of pure noise is clipped at zero, so it leaves a positive trickle: bins below two
+    # standard deviations of the smoothed floor do not count towards the occupied bandwidth
+    smooth_w = _odd(tuning.smooth_hz / step)
+    noise_step = 2.0 * np.nan_to_num(n0, nan=np.inf) * np.sqrt(
+        group_variance_factor(offsets.size, smooth_w) / float(effective_averages))
     raster = float(np.min(np.diff(chans))) if chans.size > 1 else float(channel_bw_hz)
     spectrum = None
     if samples is not None and sample_rate_hz is not None:
@@ -320,7 +363,7 @@ def find_emissions(
         nearest = int(np.argmin(np.abs(chans - freq)))
         if abs(chans[nearest] - freq) > raster / 2.0 + 1.0:
             continue  # owned by the hop that measures the nearer channel
-        f_lo, f_hi = occupied_bandwidth(offsets, spectra[k])
+        f_lo, f_hi = occupied_bandwidth(offsets, np.where(spectra[k] > noise_step, spectra[k], 0.0))
         obw = max(f_hi - f_lo, 0.0)
         kind = "narrow" if obw < tuning.narrow_below_hz else "fm"
         n_k = float(n_chan[k])
