@@ -227,11 +227,11 @@ def summarise_stations(conn: sqlite3.Connection, sweeps: Sequence[SweepRow],
                        kinds=("fm",)) -> list[StationSummary]:
     """Per-station summary of sweeps that share one configuration and input (never pooled).
 
-    Raises ``ValueError`` if ``sweeps`` mixes configurations or inputs.
+    Raises :class:`BadParameterError` if ``sweeps`` mixes configurations or inputs.
     """
     labels = {(s.configuration, s.input) for s in sweeps}
     if len(labels) > 1:
-        raise ValueError("summarise one configuration and input at a time; got " + ", ".join(
+        raise BadParameterError("summarise one configuration and input at a time; got " + ", ".join(
             f"{c}/{i}" for c, i in sorted(labels)))
     if not sweeps:
         return []
