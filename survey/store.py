@@ -431,9 +431,7 @@ def _rebuild_station_rows(c: sqlite3.Connection) -> list[str]:
     without spectra cannot be rebuilt; they are named in the returned notes and in a
     ``migration`` event, and keep their channel rows.
     """
-    from survey.dsp import usable_bins, welch_effective_averages  # heavy imports only when migrating
-    from survey.emissions import find_emissions
-    from survey.noise_floor import local_noise_floor
+    from survey.emissions import emissions_from_spectra  # heavy imports only when migrating
 
     missing: list[int] = []
     rebuilt = 0
@@ -441,27 +439,18 @@ def _rebuild_station_rows(c: sqlite3.Connection) -> list[str]:
     for sweep_id, bw, usable_fraction, dc_guard in sweeps:
         hops = {h: (center, fs, n) for h, center, fs, n in c.execute(
             "SELECT hop_index, center_hz, sample_rate_hz, n_samples FROM hops WHERE sweep_id=?", (sweep_id,))}
-        spectra = c.execute(
-            "SELECT hop_index FROM spectra WHERE sweep_id=? ORDER BY hop_index", (sweep_id,)).fetchall()
-        if not hops or len(spectra) < len(hops):
+        kept = [h for (h,) in c.execute(
+            "SELECT hop_index FROM spectra WHERE sweep_id=? ORDER BY hop_index", (sweep_id,))]
+        if not hops or len(kept) < len(hops):
             missing.append(int(sweep_id))
             continue
         channels: dict[int, list[int]] = {}
         for f, h in c.execute("SELECT freq_hz, hop_index FROM channels WHERE sweep_id=?", (sweep_id,)):
             channels.setdefault(int(h), []).append(int(f))
-        found: list[EmissionReading] = []
-        for (hop_index,), (freqs, psd_db) in zip(spectra, read_spectra(c, sweep_id)):
-            center, fs, n_samples = hops[hop_index]
-            offsets = np.asarray(freqs, dtype=np.float64) - center
-            psd = np.power(10.0, np.asarray(psd_db, dtype=np.float64) / 10.0)
-            usable = usable_bins(offsets, fs, usable_fraction, dc_guard)
-            k_eff = welch_effective_averages(int(n_samples), int(offsets.size))
-            floor = local_noise_floor(offsets, psd, usable, effective_averages=k_eff)
-            found.extend(find_emissions(
-                offsets, psd, floor, usable, center_hz=center, hop_index=int(hop_index),
-                channels_hz=channels.get(int(hop_index), []), channel_bw_hz=float(bw),
-                effective_averages=k_eff,
-            ))
+        spectra = [(int(h), *hops[h], freqs, psd_db, channels.get(int(h), []))
+                   for h, (freqs, psd_db) in zip(kept, read_spectra(c, sweep_id))]
+        found = emissions_from_spectra(spectra, channel_bw_hz=float(bw), usable_fraction=float(usable_fraction),
+                                       dc_guard_hz=float(dc_guard))
         _insert_station_rows(c, int(sweep_id), found)
         rebuilt += 1
     notes = []

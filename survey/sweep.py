@@ -13,6 +13,7 @@ from typing import Callable, Protocol
 from survey import dsp
 from survey.bandplan import assign_to_centers, plan_hops
 from survey.errors import PlanError
+from survey.noise_floor import neighbour_anchors
 from survey.records import (
     BandPlan,
     ChannelReading,
@@ -85,6 +86,7 @@ def run_sweep(
     keep_psd: bool = False,
     on_hop: Callable[[HopProgress], None] | None = None,
     should_stop: Callable[[], bool] | None = None,
+    stitch_floor: bool = True,
 ) -> SweepResult:
     """Measure every hop of ``plan`` with ``source``.
 
@@ -99,6 +101,12 @@ def run_sweep(
     should_stop : callable, optional
         Checked between hops; when it returns True the sweep ends early and is returned with
         ``complete=False`` (never stored as if complete).
+    stitch_floor : bool
+        Measure in two passes: every hop's floor first, then every hop again with its floor
+        pinned beyond the usable edges by the central parts of the other hops' floors
+        (:func:`survey.noise_floor.neighbour_anchors`), so channels at a crowded hop edge are
+        not measured against a floor extrapolated from one side. Blocks are kept in memory
+        until the sweep ends.
 
     Returns
     -------
@@ -115,6 +123,8 @@ def run_sweep(
     dwell_samples = None if source.fixed_centers_hz is not None else max(
         settings.fft_size, int(round(settings.dwell_s * source.sample_rate_hz))
     )
+    blocks: list[tuple[object, IQBlock]] = []
+    floors: list = []
     for hop in plan.hops:
         if should_stop is not None and should_stop():
             complete = False
@@ -125,15 +135,20 @@ def run_sweep(
             started = block.started_utc
         if sink is not None:
             sink.add_block(block)
-        hop_reading, channel_readings = dsp.measure_hop(
-            block, hop.channels_hz, settings, hop_index=hop.index, keep_psd=keep_psd,
-            emissions_out=emissions,
-        )
-        hops.append(hop_reading)
-        channels.extend(channel_readings)
+        hop_reading, _ = dsp.measure_hop(block, hop.channels_hz, settings, hop_index=hop.index, floor_out=floors)
+        blocks.append((hop, block))
         ended = dsp.block_end_utc(block)
         if on_hop is not None:
             on_hop(HopProgress(hop.index, len(plan.hops), hop.center_hz, hop_reading.floor_dbfs_hz))
+    # second pass: each hop's floor pinned beyond its edges by its neighbours' central floors
+    for k, (hop, block) in enumerate(blocks):
+        anchors = neighbour_anchors(floors, k) if stitch_floor else None
+        hop_reading, channel_readings = dsp.measure_hop(
+            block, hop.channels_hz, settings, hop_index=hop.index, keep_psd=keep_psd,
+            emissions_out=emissions, floor_anchors=anchors,
+        )
+        hops.append(hop_reading)
+        channels.extend(channel_readings)
     if len(hops) != len(plan.hops):
         complete = False
     now = utc_now()
