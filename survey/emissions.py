@@ -52,7 +52,7 @@ Method (all arrays over the hop's bins, vectorised)
    2 (75 + 53) = 256 kHz stereo by Carson's rule (Carson 1922; FS-1037C "Carson bandwidth
    rule"); an FM station silent and mono for a whole dwell would read ``narrow`` (a limit).
 7. Stereo: FM emissions at C/N >= ``pilot_min_cn_db`` are cut out of one FFT of the hop's
-   samples (``+- pilot_band_hz``), decimated, frequency-discriminated, and the multiplex spectrum
+   samples (the first ``pilot_samples``; ``+- pilot_band_hz``), decimated, frequency-discriminated, and the multiplex spectrum
    is examined at 19 kHz (ITU-R BS.450-3 pilot-tone system): stereo when the pilot bin stands
    ``pilot_ratio_db`` above the median of the 15-23 kHz gap around it (empty in the multiplex).
 
@@ -68,6 +68,7 @@ P. D. Welch, IEEE Trans. Audio Electroacoust. AU-15, 70-73, 1967.
 from __future__ import annotations
 
 from dataclasses import dataclass
+from functools import lru_cache
 from typing import Sequence
 
 import numpy as np
@@ -103,6 +104,7 @@ class EmissionTuning:
     pilot_band_hz: float = 110_000.0
     pilot_min_cn_db: float = 6.0
     pilot_ratio_db: float = 10.0
+    pilot_samples: int = 1 << 17
 
 
 DEFAULT_TUNING = EmissionTuning()
@@ -184,6 +186,11 @@ def _band_sum(cum: np.ndarray, edges: np.ndarray, lo_hz: np.ndarray, hi_hz: np.n
     return np.interp(hi_hz, edges, cum) - np.interp(lo_hz, edges, cum)
 
 
+@lru_cache(maxsize=8)
+def _hann_real(length: int) -> np.ndarray:
+    return scipy.signal.get_window("hann", length)
+
+
 def _stereo_pilot(spectrum: np.ndarray, n: int, sample_rate_hz: float, offset_hz: float,
                   tuning: EmissionTuning) -> bool:
     """Whether the emission at ``offset_hz`` carries a 19 kHz pilot (see the module notes)."""
@@ -200,7 +207,10 @@ def _stereo_pilot(spectrum: np.ndarray, n: int, sample_rate_hz: float, offset_hz
     z = scipy.fft.ifft(cut)
     inst = np.angle(z[1:] * np.conj(z[:-1]))
     seg = min(1024, inst.size)
-    f, pxx = scipy.signal.welch(inst, fs=out_rate, nperseg=seg, detrend="constant")
+    rows = inst[: (inst.size // seg) * seg].reshape(-1, seg)
+    rows = (rows - rows.mean(axis=1, keepdims=True)) * _hann_real(seg)
+    pxx = np.mean(np.abs(scipy.fft.rfft(rows, axis=1)) ** 2, axis=0)  # averaged periodogram
+    f = scipy.fft.rfftfreq(seg, 1.0 / out_rate)
     gap = ((f > 15_500.0) & (f < 18_000.0)) | ((f > 20_000.0) & (f < 22_500.0))
     near = np.abs(f - PILOT_HZ) <= 1.5 * (f[1] - f[0])
     if not gap.any() or not near.any():
@@ -354,9 +364,7 @@ def find_emissions(
     noise_step = 2.0 * np.nan_to_num(n0, nan=np.inf) * np.sqrt(
         group_variance_factor(offsets.size, smooth_w) / float(effective_averages))
     raster = float(np.min(np.diff(chans))) if chans.size > 1 else float(channel_bw_hz)
-    spectrum = None
-    if samples is not None and sample_rate_hz is not None:
-        spectrum = None  # computed lazily below, once per hop
+    spectrum = None  # FFT of the hop's samples for the pilot test, computed once when first needed
     out: list[EmissionReading] = []
     for k in range(len(carriers)):
         freq = float(center_hz) + carriers[k]
@@ -376,8 +384,9 @@ def find_emissions(
         if kind == "fm" and samples is not None and sample_rate_hz is not None and np.isfinite(cn) \
                 and cn >= tuning.pilot_min_cn_db:
             if spectrum is None:
-                spectrum = scipy.fft.fft(np.asarray(samples, dtype=np.complex64))
-            stereo = _stereo_pilot(spectrum, int(np.size(samples)), float(sample_rate_hz), carriers[k], tuning)
+                head = np.asarray(samples, dtype=np.complex64)[: tuning.pilot_samples]
+                spectrum = scipy.fft.fft(head)
+            stereo = _stereo_pilot(spectrum, int(spectrum.size), float(sample_rate_hz), carriers[k], tuning)
         power = float(ratio_to_db(max(c_k, 0.0) + n_k)) if n_k > 0 else float("nan")
         out.append(EmissionReading(
             freq_hz=freq, hop_index=int(hop_index), kind=kind, occupied_bw_hz=float(obw),
