@@ -392,8 +392,8 @@ def measure_hop(
     hop_index: int,
     keep_psd: bool = False,
     emissions_out: list | None = None,
-    floor_anchors: tuple[np.ndarray, np.ndarray] | None = None,
     floor_out: list | None = None,
+    floor_given: np.ndarray | None = None,
 ) -> tuple[HopReading, list[ChannelReading]]:
     """Measure one hop: clipping, PSD, local noise floor and each channel's P, N and C/N.
 
@@ -418,12 +418,12 @@ def measure_hop(
     emissions_out : list, optional
         When given, the hop's emissions (:func:`survey.emissions.find_emissions`, from the
         same PSD and floor) are appended to it as :class:`~survey.records.EmissionReading`.
-    floor_anchors : (numpy.ndarray, numpy.ndarray), optional
-        Floor known beyond this hop's usable span: absolute frequencies (Hz) and densities
-        (dBFS/Hz), e.g. from the neighbouring hops (see ``anchors`` of
-        :func:`survey.noise_floor.local_noise_floor`).
     floor_out : list, optional
-        When given, ``(absolute bin frequencies Hz, floor dBFS/Hz, usable mask)`` is appended.
+        When given, ``(absolute bin frequencies Hz, floor dBFS/Hz, usable mask, groups)`` is
+        appended (``groups`` a :class:`survey.noise_floor.HopGroups`, for a sweep-wide floor).
+    floor_given : numpy.ndarray, optional
+        Floor density per bin (FS^2/Hz) to use instead of fitting one, e.g. this hop's part of
+        :func:`survey.noise_floor.sweep_floors`.
 
     Raises
     ------
@@ -439,13 +439,15 @@ def measure_hop(
     offsets, psd = averaged_psd(samples, fs, settings.fft_size)
     usable = usable_bins(offsets, fs, settings.usable_fraction, settings.dc_guard_hz)
     k_eff = welch_effective_averages(samples.size, settings.fft_size)
-    anchors = None
-    if floor_anchors is not None:
-        anchors = (np.asarray(floor_anchors[0], dtype=np.float64) - center, np.asarray(floor_anchors[1]))
-    floor = local_noise_floor(offsets, psd, usable, effective_averages=k_eff, anchors=anchors)
+    groups: list = []
+    if floor_given is not None:
+        floor = np.array(floor_given, dtype=np.float64)
+    else:
+        floor = local_noise_floor(offsets, psd, usable, effective_averages=k_eff,
+                                  groups_out=groups if floor_out is not None else None)
     floor_db = _median_db(floor[usable])
     if floor_out is not None:
-        floor_out.append((center + offsets, np.asarray(ratio_to_db(floor)), usable))
+        floor_out.append((center + offsets, np.asarray(ratio_to_db(floor)), usable, groups[0] if groups else None))
     if emissions_out is not None:
         emissions_out.extend(find_emissions(
             offsets, psd, floor, usable, center_hz=center, hop_index=int(hop_index),

@@ -403,29 +403,25 @@ def emissions_from_spectra(spectra, *, channel_bw_hz: float, usable_fraction: fl
     """Emissions of a sweep rebuilt from kept spectra (no IQ samples: ``stereo`` is False).
 
     ``spectra`` holds one ``(hop_index, center_hz, sample_rate_hz, n_samples, absolute bin
-    frequencies Hz, PSD dBFS/Hz, channels_hz)`` per hop. The floors are fitted in the same two
-    passes as :func:`survey.sweep.run_sweep` (each hop's floor pinned beyond its edges by the
-    other hops' central floors), with ``K_eff`` from the hop's sample count.
+    frequencies Hz, PSD dBFS/Hz, channels_hz)`` per hop. The floor is the sweep-wide floor
+    of :func:`survey.sweep.run_sweep` (:func:`survey.noise_floor.sweep_floors`), with ``K_eff``
+    from the hop's sample count.
     """
     from survey.dsp import usable_bins, welch_effective_averages  # survey.dsp imports this module
-    from survey.noise_floor import local_noise_floor, neighbour_anchors
+    from survey.noise_floor import local_noise_floor, sweep_floors
 
     prepared = []
-    floors = []
+    groups = []
     for hop_index, center, fs, n_samples, freqs, psd_db, channels in spectra:
         offsets = np.asarray(freqs, dtype=np.float64) - float(center)
         psd = np.power(10.0, np.asarray(psd_db, dtype=np.float64) / 10.0)
         usable = usable_bins(offsets, float(fs), usable_fraction, dc_guard_hz)
         k_eff = welch_effective_averages(int(n_samples), int(offsets.size))
-        floor = local_noise_floor(offsets, psd, usable, effective_averages=k_eff)
+        local_noise_floor(offsets, psd, usable, effective_averages=k_eff, groups_out=groups)
         prepared.append((hop_index, float(center), offsets, psd, usable, k_eff, channels))
-        floors.append((float(center) + offsets, np.asarray(ratio_to_db(floor)), usable))
+    floors = sweep_floors(groups, [p[1] for p in prepared], [p[2] for p in prepared])
     out: list[EmissionReading] = []
-    for k, (hop_index, center, offsets, psd, usable, k_eff, channels) in enumerate(prepared):
-        anchors = neighbour_anchors(floors, k)
-        if anchors is not None:
-            anchors = (anchors[0] - center, anchors[1])
-        floor = local_noise_floor(offsets, psd, usable, effective_averages=k_eff, anchors=anchors)
+    for (hop_index, center, offsets, psd, usable, k_eff, channels), floor in zip(prepared, floors):
         out.extend(find_emissions(offsets, psd, floor, usable, center_hz=center, hop_index=int(hop_index),
                                   channels_hz=channels, channel_bw_hz=channel_bw_hz, effective_averages=k_eff))
     return sorted(out, key=lambda e: e.freq_hz)

@@ -239,47 +239,25 @@ def _sigma_and_bias_db(effective_averages: float, variance_factor: float) -> tup
     return float(sigma_bin_db * np.sqrt(variance_factor)), log_average_bias_db(effective_averages)
 
 
-def _anchored_fit(y: np.ndarray, weight: np.ndarray, fit: np.ndarray, lay: _Layout,
-                  anchors: tuple[np.ndarray, np.ndarray], reach_hz: float, bias_db: float, sigma_db: float,
-                  core_sigma: float, skirt_sigma: float, occupancy_args: tuple, smooth_hz: float,
-                  tension_hz: float) -> np.ndarray:
-    """The floor refitted on a grid extended beyond the usable span, where ``anchors`` (the floor
-    known there, e.g. from the neighbouring hops' central parts) pin it: a hop edge crowded with
-    stations is then bridged between known floors instead of extrapolated from one side."""
-    a_off = np.asarray(anchors[0], dtype=np.float64)
-    a_db = np.asarray(anchors[1], dtype=np.float64)
-    keep = np.isfinite(a_off) & np.isfinite(a_db)
-    a_off, a_db = a_off[keep], a_db[keep]
-    if a_off.size < 2:
-        return fit
-    order = np.argsort(a_off)
-    a_off, a_db = a_off[order], a_db[order]
-    step = lay.step_hz
-    centers = lay.centers_hz
-    n_ext = int(round(reach_hz / step))
-    left = centers[0] - step * np.arange(n_ext, 0, -1)
-    right = centers[-1] + step * np.arange(1, n_ext + 1)
-    ext_c = np.concatenate([left, right])
-    # an extension group is pinned where an anchor lies within half a group of it
-    nearest = np.clip(np.searchsorted(a_off, ext_c), 1, a_off.size - 1)
-    gap = np.minimum(np.abs(a_off[nearest] - ext_c), np.abs(a_off[nearest - 1] - ext_c))
-    ext_w = (gap <= step).astype(np.float64)
-    if not ext_w.any():
-        return fit
-    ext_y = np.interp(ext_c, a_off, a_db) + bias_db  # the fit works on the biased log-PSD mean
-    n = centers.size + 2 * n_ext
-    curve = _stiffness(smooth_hz, step)
-    penalty = _penalty_bands(np.full(n - 2, curve), np.full(n - 1, curve * (step / tension_hz) ** 2))
-    y_all = np.concatenate([ext_y[:n_ext], y, ext_y[n_ext:]])
-    inner = slice(n_ext, n_ext + centers.size)
-    for _ in range(3):
-        busy = _occupied(y - fit, sigma_db, lay.has_data, core_sigma, skirt_sigma, *occupancy_args)
-        w_all = np.concatenate([ext_w[:n_ext], weight * (~busy & lay.has_data), ext_w[n_ext:]])
-        new = _whittaker(y_all, w_all, penalty)[inner]
-        if np.max(np.abs(new - fit)) < 0.01:
-            return new
-        fit = new
-    return fit
+@dataclass(frozen=True)
+class HopGroups:
+    """The grouped log-PSD of one hop as :func:`local_noise_floor` fitted it (for a sweep fit).
+
+    ``centers_hz`` are group centres relative to the hop centre; ``y`` the group means (dB, the
+    biased log-PSD mean); ``fit_db`` the hop's own floor (dB, bias removed); ``lo``/``hi`` the
+    bin span the groups cover.
+    """
+
+    centers_hz: np.ndarray
+    y: np.ndarray
+    weight: np.ndarray
+    has_data: np.ndarray
+    sigma_db: float
+    bias_db: float
+    occupancy_args: tuple
+    fit_db: np.ndarray
+    lo: int
+    hi: int
 
 
 def local_noise_floor(
@@ -303,8 +281,7 @@ def local_noise_floor(
     peak_hz: float = 40_000.0,
     occupancy_hz: float = 140_000.0,
     occupancy_per_db_hz: float = 2_000.0,
-    anchors: tuple[np.ndarray, np.ndarray] | None = None,
-    anchor_reach_hz: float = 1_000_000.0,
+    groups_out: list | None = None,
 ) -> np.ndarray:
     """Local noise-floor density per bin, FS^2/Hz, from a smooth fit to the log-PSD below signals.
 
@@ -351,12 +328,8 @@ def local_noise_floor(
     below the hysteresis threshold is kept and raises the floor locally (a few hundredths of a
     dB for C/N above 35 dB).
 
-    5. Anchors (optional, ``anchors``): the floor known beyond the usable span, as offsets (Hz,
-       relative to this hop's centre) and densities (dBFS/Hz), e.g. the central parts of the
-       neighbouring hops' floors. The fit is repeated on a grid extended by ``anchor_reach_hz``
-       on each side, pinned to the anchors there (uniform stiffness: the anchors are floors at
-       absolute frequencies, free of this hop's anti-alias roll-off), so a hop edge crowded with
-       stations is bridged between known floors rather than extrapolated from one side.
+    5. A sweep-wide floor (:func:`sweep_floors`) can replace the hop's own: ``groups_out``
+       receives the hop's groups (:class:`HopGroups`) for it.
 
     Parameters
     ----------
@@ -427,46 +400,74 @@ def local_noise_floor(
                 break  # the whole hop is occupied: keep the lower envelope
             fit = _whittaker(y, weight * free, lay.penalty)
             previous = busy
-        if anchors is not None:
-            fit = _anchored_fit(y, weight, fit, lay, anchors, anchor_reach_hz, bias_db, sigma_db, core_sigma,
-                                skirt_sigma, occupancy_args, float(smooth_hz), float(tension_hz))
+    if groups_out is not None:
+        groups_out.append(HopGroups(lay.centers_hz, y, weight, lay.has_data, sigma_db, bias_db,
+                                    occupancy_args, fit - bias_db, lo, hi))
     floor_db = fit - bias_db
     span = slice(max(lo - 1, 0), min(hi + 1, len(out)))
     out[span] = db_to_ratio(np.interp(offsets_hz[span], lay.centers_hz, floor_db))
     return out
 
 
-def neighbour_anchors(floors: list[tuple[np.ndarray, np.ndarray, np.ndarray]], index: int, *,
-                      confident_fraction: float = 0.6,
-                      reach_hz: float = 1_000_000.0) -> tuple[np.ndarray, np.ndarray] | None:
-    """Floor anchors for hop ``index`` from the other hops of the same sweep.
+def sweep_floors(groups: list[HopGroups], centers_hz: list[float], offsets_hz: list[np.ndarray], *,
+                 smooth_hz: float = 150_000.0, tension_hz: float = 80_000.0, core_sigma: float = 4.0,
+                 skirt_sigma: float = 1.0, rounds: int = 4) -> list[np.ndarray]:
+    """One floor for the whole sweep, fitted on absolute frequency to every hop's free groups.
 
-    ``floors[k]`` is ``(absolute bin frequencies Hz, floor dBFS/Hz, usable mask)`` of hop ``k``
-    (``floor_out`` of :func:`survey.dsp.measure_hop`). Taken from each other hop: its usable bins
-    within ``confident_fraction`` of its usable half-width from its centre (where its own floor
-    was fitted between free stretches on both sides, not extrapolated), lying outside hop
-    ``index``'s usable span and within ``reach_hz`` of it. Returns absolute frequencies (Hz) and
-    floor densities (dBFS/Hz), ascending, or None when no other hop reaches.
+    Within the usable span the receiver's own response is flat (its anti-alias roll-off lies
+    beyond it), so the floor is a function of absolute frequency alone, the same in every hop.
+    The hops' group means (bias removed) go on one grid of the group step; the same smoother as
+    :func:`local_noise_floor` (curvature on ``smooth_hz``, slope on ``tension_hz``) is fitted to
+    the groups no hop marks as holding signal, and each hop's groups are classified again
+    against the sweep fit, ``rounds`` times at most. A hop edge crowded with stations is then
+    bridged between the free stretches of both neighbouring hops instead of extrapolated.
+
+    Returns per hop the floor density (FS^2/Hz) on its bins (``offsets_hz[k]``), NaN outside
+    the span its groups cover, like :func:`local_noise_floor`.
     """
-    freqs_i, _, usable_i = floors[index]
-    own = freqs_i[usable_i]
-    if own.size == 0:
-        return None
-    lo, hi = float(own.min()), float(own.max())
-    parts_f, parts_db = [], []
-    for k, (freqs, floor_db, usable) in enumerate(floors):
-        if k == index or not usable.any():
-            continue
-        center = float(freqs[freqs.size // 2])
-        half = float(np.max(np.abs(freqs[usable] - center)))
-        take = usable & (np.abs(freqs - center) <= confident_fraction * half) & np.isfinite(floor_db)
-        take &= ((freqs < lo) & (freqs >= lo - reach_hz)) | ((freqs > hi) & (freqs <= hi + reach_hz))
-        if take.any():
-            parts_f.append(freqs[take])
-            parts_db.append(floor_db[take])
-    if not parts_f:
-        return None
-    f = np.concatenate(parts_f)
-    d = np.concatenate(parts_db)
-    order = np.argsort(f, kind="stable")
-    return f[order], d[order]
+    if not groups:
+        return []
+    step = float(groups[0].centers_hz[1] - groups[0].centers_hz[0]) if groups[0].centers_hz.size > 1 else 8e3
+    absolute = [c + g.centers_hz for c, g in zip(centers_hz, groups)]
+    g0 = min(float(a.min()) for a in absolute)
+    index = [np.rint((a - g0) / step).astype(np.int64) for a in absolute]
+    n = int(max(int(i.max()) for i in index)) + 1
+    curve = _stiffness(smooth_hz, step)
+    penalty = _penalty_bands(np.full(max(n - 2, 0), curve), np.full(max(n - 1, 0), curve * (step / tension_hz) ** 2))
+    grid = g0 + step * np.arange(n)
+    free = []
+    for g in groups:
+        busy = _occupied(g.y - (g.fit_db + g.bias_db), g.sigma_db, g.has_data, core_sigma, skirt_sigma,
+                         *g.occupancy_args)
+        free.append(~busy & g.has_data)
+    fit = None
+    for _ in range(rounds):
+        total = np.zeros(n)
+        weight = np.zeros(n)
+        for g, idx, f in zip(groups, index, free):
+            w = g.weight * f
+            np.add.at(total, idx, w * (g.y - g.bias_db))
+            np.add.at(weight, idx, w)
+        if not weight.any() or n < 4:
+            return [local_floor_from_db(off, g, g.fit_db) for off, g in zip(offsets_hz, groups)]
+        y = np.where(weight > 0, total / np.maximum(weight, 1e-300), 0.0)
+        fit = _whittaker(y, weight, penalty)
+        changed = False
+        for k, (g, a) in enumerate(zip(groups, absolute)):
+            hop_fit = np.interp(a, grid, fit)
+            busy = _occupied(g.y - (hop_fit + g.bias_db), g.sigma_db, g.has_data, core_sigma, skirt_sigma,
+                             *g.occupancy_args)
+            now = ~busy & g.has_data
+            changed |= bool((now != free[k]).any())
+            free[k] = now
+        if not changed:
+            break
+    return [local_floor_from_db(off, g, np.interp(a, grid, fit)) for off, g, a in zip(offsets_hz, groups, absolute)]
+
+
+def local_floor_from_db(offsets_hz: np.ndarray, g: HopGroups, floor_db: np.ndarray) -> np.ndarray:
+    """Group floor values (dB) to a per-bin density (FS^2/Hz), as :func:`local_noise_floor` returns."""
+    out = np.full(np.shape(offsets_hz), np.nan)
+    span = slice(max(g.lo - 1, 0), min(g.hi + 1, out.size))
+    out[span] = db_to_ratio(np.interp(offsets_hz[span], g.centers_hz, floor_db))
+    return out

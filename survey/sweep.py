@@ -13,7 +13,7 @@ from typing import Callable, Protocol
 from survey import dsp
 from survey.bandplan import assign_to_centers, plan_hops
 from survey.errors import PlanError
-from survey.noise_floor import neighbour_anchors
+from survey.noise_floor import sweep_floors
 from survey.records import (
     BandPlan,
     ChannelReading,
@@ -86,7 +86,7 @@ def run_sweep(
     keep_psd: bool = False,
     on_hop: Callable[[HopProgress], None] | None = None,
     should_stop: Callable[[], bool] | None = None,
-    stitch_floor: bool = True,
+    sweep_floor: bool = True,
 ) -> SweepResult:
     """Measure every hop of ``plan`` with ``source``.
 
@@ -101,12 +101,13 @@ def run_sweep(
     should_stop : callable, optional
         Checked between hops; when it returns True the sweep ends early and is returned with
         ``complete=False`` (never stored as if complete).
-    stitch_floor : bool
-        Measure in two passes: every hop's floor first, then every hop again with its floor
-        pinned beyond the usable edges by the central parts of the other hops' floors
-        (:func:`survey.noise_floor.neighbour_anchors`), so channels at a crowded hop edge are
-        not measured against a floor extrapolated from one side. Blocks are kept in memory
-        until the sweep ends.
+    sweep_floor : bool
+        Measure in two passes: every hop's PSD and floor groups first, then every hop against
+        its part of one floor fitted to the free stretches of all hops on absolute frequency
+        (:func:`survey.noise_floor.sweep_floors`), so a channel at a crowded hop edge is
+        measured against a floor bridged between both neighbouring hops instead of one
+        extrapolated from one side. Blocks are kept in memory until the sweep ends. False:
+        each hop's own floor (:func:`survey.noise_floor.local_noise_floor`).
 
     Returns
     -------
@@ -140,12 +141,15 @@ def run_sweep(
         ended = dsp.block_end_utc(block)
         if on_hop is not None:
             on_hop(HopProgress(hop.index, len(plan.hops), hop.center_hz, hop_reading.floor_dbfs_hz))
-    # second pass: each hop's floor pinned beyond its edges by its neighbours' central floors
+    # second pass: every hop measured against its part of one floor fitted to the whole sweep
+    given = [None] * len(blocks)
+    if sweep_floor and blocks and all(f[3] is not None for f in floors):
+        given = sweep_floors([f[3] for f in floors], [float(b.center_hz) for _, b in blocks],
+                             [f[0] - float(b.center_hz) for f, (_, b) in zip(floors, blocks)])
     for k, (hop, block) in enumerate(blocks):
-        anchors = neighbour_anchors(floors, k) if stitch_floor else None
         hop_reading, channel_readings = dsp.measure_hop(
             block, hop.channels_hz, settings, hop_index=hop.index, keep_psd=keep_psd,
-            emissions_out=emissions, floor_anchors=anchors,
+            emissions_out=emissions, floor_given=given[k],
         )
         hops.append(hop_reading)
         channels.extend(channel_readings)
