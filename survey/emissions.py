@@ -195,8 +195,8 @@ def _stereo_pilot(spectrum: np.ndarray, n: int, sample_rate_hz: float, offset_hz
                   tuning: EmissionTuning) -> bool:
     """Whether the emission at ``offset_hz`` carries a 19 kHz pilot (see the module notes)."""
     band = tuning.pilot_band_hz
-    out_rate = 4.0 * band
-    length = int(n * out_rate / sample_rate_hz)
+    length = scipy.fft.next_fast_len(int(n * 4.0 * band / sample_rate_hz))
+    out_rate = length * sample_rate_hz / n  # about 4 band: the discriminator needs no alias guard
     if length < 256:
         return False
     freqs = scipy.fft.fftfreq(length, 1.0 / out_rate)
