@@ -104,7 +104,7 @@ class EmissionTuning:
     pilot_band_hz: float = 110_000.0
     pilot_min_cn_db: float = 6.0
     pilot_ratio_db: float = 10.0
-    pilot_samples: int = 1 << 17
+    pilot_samples: int = 1 << 16
 
 
 DEFAULT_TUNING = EmissionTuning()
@@ -187,6 +187,13 @@ def _band_sum(cum: np.ndarray, edges: np.ndarray, lo_hz: np.ndarray, hi_hz: np.n
 
 
 @lru_cache(maxsize=8)
+def _fft_freqs(length: int, rate: float) -> np.ndarray:
+    out = scipy.fft.fftfreq(length, 1.0 / rate)
+    out.setflags(write=False)
+    return out
+
+
+@lru_cache(maxsize=8)
 def _hann_real(length: int) -> np.ndarray:
     return scipy.signal.get_window("hann", length)
 
@@ -199,7 +206,7 @@ def _stereo_pilot(spectrum: np.ndarray, n: int, sample_rate_hz: float, offset_hz
     out_rate = length * sample_rate_hz / n  # about 4 band: the discriminator needs no alias guard
     if length < 256:
         return False
-    freqs = scipy.fft.fftfreq(length, 1.0 / out_rate)
+    freqs = _fft_freqs(length, out_rate)
     keep = np.abs(freqs) <= band
     src = np.rint((offset_hz + freqs[keep]) * n / sample_rate_hz).astype(np.int64) % n
     cut = np.zeros(length, dtype=np.complex64)
