@@ -74,3 +74,29 @@ def test_a_hop_alone_extrapolates_the_edge_far_worse(sweep_wide):
     errors, margins = _floor_errors(False)
     assert np.max(np.abs(errors)) > 2.0  # what the sweep-wide floor repairs
     assert np.max(np.abs(errors)) > 2 * np.max(np.abs(sweep_wide[0]))
+
+
+# ---- the same check with the numpy-only generator (tests/synth_band.py) -------------------------
+
+def _generator_errors(sweep_floor):
+    from synth_band import CrowdedBand
+
+    settings = SweepSettings(band="europe", dwell_s=0.05)
+    src = CrowdedBand(0.7, 1)
+    plan = plan_for_source(band_plan("europe"), src, settings)
+    result = run_sweep(src, plan, settings, "steep", "antenna", sweep_floor=sweep_floor)
+    edge = settings.usable_fraction * src.sample_rate_hz / 2.0
+    centers = {h.index: h.center_hz for h in plan.hops}
+    errors = np.array([c.noise_dbfs - src.channel_noise_dbfs(c.freq_hz, settings.channel_bw_hz)
+                       for c in result.channels])
+    margins = np.array([edge - abs(c.freq_hz - centers[c.hop_index]) - settings.channel_bw_hz / 2.0
+                        for c in result.channels])
+    return errors, margins
+
+
+def test_generator_band_floor_within_1_db_at_hop_edges_and_a_hop_alone_is_not():
+    errors, margins = _generator_errors(True)
+    alone, _ = _generator_errors(False)
+    assert (margins < 100e3).sum() >= 20
+    assert np.max(np.abs(errors)) <= 1.0, np.max(np.abs(errors))
+    assert np.max(np.abs(alone)) > 3.0
