@@ -26,6 +26,8 @@ Pipeline of :func:`measure_hop`
    log-PSD below the signals, with an FM-shaped occupancy mask.
 5. Per channel: ``P`` (:func:`channel_power`), ``N = integral of N0 over the band``,
    ``C/N = 10 log10((P - N) / N)`` (called SNR in the tool's output).
+6. Optionally (``emissions_out``) the emissions of the hop, each measured alone
+   (:func:`survey.emissions.find_emissions`), from the same PSD and floor.
 
 References
 ----------
