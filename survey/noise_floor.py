@@ -411,7 +411,7 @@ def local_noise_floor(
 
 def sweep_floors(groups: list[HopGroups], centers_hz: list[float], offsets_hz: list[np.ndarray], *,
                  smooth_hz: float = 150_000.0, tension_hz: float = 80_000.0, core_sigma: float = 4.0,
-                 skirt_sigma: float = 1.0, rounds: int = 4) -> list[np.ndarray]:
+                 skirt_sigma: float = 1.0, rounds: int = 4, support_hz: float = 300_000.0) -> list[np.ndarray]:
     """One floor for the whole sweep, fitted on absolute frequency to every hop's free groups.
 
     Within the usable span the receiver's own response is flat (its anti-alias roll-off lies
@@ -421,6 +421,11 @@ def sweep_floors(groups: list[HopGroups], centers_hz: list[float], offsets_hz: l
     the groups no hop marks as holding signal, and each hop's groups are classified again
     against the sweep fit, ``rounds`` times at most. A hop edge crowded with stations is then
     bridged between the free stretches of both neighbouring hops instead of extrapolated.
+
+    Each hop keeps its own floor (:func:`local_noise_floor`) where that is interpolated: where
+    it has a free group of its own within ``support_hz`` on each side (a side beyond which no
+    other hop reaches needs none). The sweep-wide floor replaces it only where it would be
+    extrapolated or bridged over a longer occupied stretch.
 
     Returns per hop the floor density (FS^2/Hz) on its bins (``offsets_hz[k]``), NaN outside
     the span its groups cover, like :func:`local_noise_floor`.
@@ -462,7 +467,34 @@ def sweep_floors(groups: list[HopGroups], centers_hz: list[float], offsets_hz: l
             free[k] = now
         if not changed:
             break
-    return [local_floor_from_db(off, g, np.interp(a, grid, fit)) for off, g, a in zip(offsets_hz, groups, absolute)]
+    lo_all = [float(a.min()) for a in absolute]
+    hi_all = [float(a.max()) for a in absolute]
+    out = []
+    for k, (off, g, a) in enumerate(zip(offsets_hz, groups, absolute)):
+        sweep_db = np.interp(a, grid, fit)
+        own_free = free[k] & ~_occupied(g.y - (g.fit_db + g.bias_db), g.sigma_db, g.has_data, core_sigma,
+                                        skirt_sigma, *g.occupancy_args)  # free by both fits
+        beyond_lo = any(lo < lo_all[k] for j, lo in enumerate(lo_all) if j != k)
+        beyond_hi = any(hi > hi_all[k] for j, hi in enumerate(hi_all) if j != k)
+        supported = _supported(a, own_free, support_hz, beyond_lo, beyond_hi)
+        out.append(local_floor_from_db(off, g, np.where(supported, g.fit_db, sweep_db)))
+    return out
+
+
+def _supported(centers_hz: np.ndarray, free: np.ndarray, reach_hz: float, beyond_lo: bool,
+               beyond_hi: bool) -> np.ndarray:
+    """Groups whose own floor is interpolated: a free group within ``reach_hz`` on each side (a
+    side with no other hop beyond it needs none: the sweep knows no more there)."""
+    where = centers_hz[free]
+    if where.size == 0:
+        return np.zeros(centers_hz.size, dtype=bool)
+    i = np.searchsorted(where, centers_hz, side="right")
+    below = np.where(i > 0, centers_hz - where[np.maximum(i - 1, 0)], np.inf)
+    j = np.searchsorted(where, centers_hz, side="left")
+    above = np.where(j < where.size, where[np.minimum(j, where.size - 1)] - centers_hz, np.inf)
+    left_ok = (below <= reach_hz) | (not beyond_lo and np.isinf(below))
+    right_ok = (above <= reach_hz) | (not beyond_hi and np.isinf(above))
+    return left_ok & right_ok
 
 
 def local_floor_from_db(offsets_hz: np.ndarray, g: HopGroups, floor_db: np.ndarray) -> np.ndarray:
