@@ -10,7 +10,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from analysis.census import StationMatrix, census_matrix, station_census
+from analysis.census import StationMatrix, census_matrix
 from bandcensus.cli import main
 from survey.bandplan import band_plan
 from survey.records import RunInfo, SweepSettings
