@@ -8,9 +8,30 @@ channels, so every count and verdict is per transmitter.
 
 from __future__ import annotations
 
+import sqlite3
 from dataclasses import dataclass
+from typing import Sequence
 
 import numpy as np
+
+from analysis.errors import BadParameterError, NoDataError
+from analysis.terms import check_input, median_iqr
+from survey.errors import StoreError
+from survey.store import (StationRow, SweepRow, count_complete_sweeps, list_sweeps, open_for_reading,
+                          read_channel_matrix, read_station_rows,
+                          upgrade_database)
+from survey.units import db_to_ratio, ratio_to_db
+
+#: Narrow emissions of different sweeps within this distance (Hz) of each other are one line.
+#: A receiver's frequency error of a few ppm moves a carrier by well under 1 kHz in the VHF band.
+SAME_STATION_HZ = 5_000.0
+#: FM emissions within this distance are one station: FM broadcast carriers sit at least
+#: 100 kHz apart (a 100 kHz or wider raster), and the carrier estimate of a station near 0 dB
+#: C/N in a 5 ms dwell scatters by up to about +-10 kHz (measured on the demo recordings).
+SAME_FM_STATION_HZ = 25_000.0
+
+#: Kinds a census can hold, and what ``kinds="all"`` means.
+KINDS = ("fm", "narrow")
 
 
 @dataclass(frozen=True)
@@ -60,3 +81,237 @@ class StationMatrix:
             detected=self.detected[take],
             stereo=self.stereo[take],
         )
+
+
+@dataclass(frozen=True)
+class _Cluster:
+    freq_hz: float
+    kind: str
+    channel_freq_hz: int
+    members: tuple[StationRow, ...]
+
+
+def _cluster(rows: list[StationRow]) -> list[_Cluster]:
+    """Clusters of emissions: single linkage along frequency, FM and narrow emissions apart.
+
+    A gap larger than :data:`SAME_FM_STATION_HZ` (FM) or :data:`SAME_STATION_HZ` (narrow) splits.
+    """
+    out: list[_Cluster] = []
+    for kind, tolerance in (("fm", SAME_FM_STATION_HZ), ("narrow", SAME_STATION_HZ)):
+        out.extend(_cluster_one_kind([r for r in rows if r.kind == kind], tolerance))
+    return sorted(out, key=lambda c: c.freq_hz)
+
+
+def _cluster_one_kind(rows: list[StationRow], tolerance_hz: float) -> list[_Cluster]:
+    if not rows:
+        return []
+    ordered = sorted(rows, key=lambda r: r.freq_hz)
+    freqs = np.asarray([r.freq_hz for r in ordered])
+    breaks = np.flatnonzero(np.diff(freqs) > tolerance_hz) + 1
+    out = []
+    for part in np.split(np.arange(len(ordered)), breaks):
+        members = tuple(ordered[i] for i in part.tolist())
+        kind = members[0].kind
+        chans = [m.channel_freq_hz for m in members]
+        out.append(_Cluster(float(np.median(freqs[part])), kind, max(set(chans), key=chans.count), members))
+    return out
+
+
+def census_matrix(conn: sqlite3.Connection, sweeps: Sequence[SweepRow], kinds=("fm",)) -> StationMatrix:
+    """Stations heard in any of ``sweeps``, one column each, one row per sweep (order kept).
+
+    Emissions (the ``stations`` table) of all the given sweeps are grouped into stations: an
+    emission of the same kind within :data:`SAME_FM_STATION_HZ` (FM) or :data:`SAME_STATION_HZ`
+    (narrow) of another belongs to the same transmitter (single linkage along frequency). A
+    station's frequency is the median of its emissions' carriers. Where a sweep has an emission of the station, the row holds
+    its own power, floor, C/N, C/I and stereo flag (the strongest, if a sweep has two);
+    ``detected`` is C/N at or above the sweep's detection margin. Where it has none, power and
+    noise come from the raster channel the station sits on (as ``channels`` stores them), C/N
+    is ``10 log10((P - N)/N)`` (NaN where P <= N), C/I NaN, stereo False, not detected.
+
+    Parameters
+    ----------
+    conn : sqlite3.Connection
+        An open survey database of schema 2 (:func:`survey.store.open_for_reading`).
+    sweeps : sequence of SweepRow
+        Sweeps to include, e.g. base and test sweeps of a comparison; split the result with
+        :meth:`StationMatrix.rows`.
+    kinds : sequence of str
+        Emission kinds to keep (``"fm"``, ``"narrow"``).
+    """
+    ids = [int(s.id) for s in sweeps]
+    margin = {int(s.id): float(s.received_margin_db) for s in sweeps}
+    keep = set(kinds)
+    rows = [r for r in read_station_rows(conn, ids) if r.kind in keep]
+    clusters = _cluster(rows)
+    n, m = len(ids), len(clusters)
+    shape = (n, m)
+    power = np.full(shape, np.nan)
+    noise = np.full(shape, np.nan)
+    cn = np.full(shape, np.nan)
+    ci = np.full(shape, np.nan)
+    detected = np.zeros(shape, dtype=bool)
+    stereo = np.zeros(shape, dtype=bool)
+    heard = np.zeros(shape, dtype=bool)
+    row_of = {sid: i for i, sid in enumerate(ids)}
+    for j, cl in enumerate(clusters):
+        for r in sorted(cl.members, key=lambda r: -np.nan_to_num(r.cn_db, nan=-np.inf)):
+            i = row_of[r.sweep_id]
+            if heard[i, j]:
+                continue
+            heard[i, j] = True
+            power[i, j], noise[i, j], cn[i, j] = r.power_dbfs, r.noise_dbfs, r.cn_db
+            ci[i, j] = np.nan if r.ci_db is None else r.ci_db
+            stereo[i, j] = r.stereo
+            detected[i, j] = bool(np.isfinite(r.cn_db) and r.cn_db >= margin[r.sweep_id])
+    chan_freqs = np.asarray([c.channel_freq_hz for c in clusters], dtype=np.int64)
+    if m and (~heard).any():
+        channels = read_channel_matrix(conn, ids)
+        axis = channels.freqs_hz
+        if axis.size:
+            col = np.clip(np.searchsorted(axis, chan_freqs), 0, axis.size - 1)
+            fill = ~heard & (axis[col] == chan_freqs)[np.newaxis, :]
+            p_fill = channels.power_dbfs[:, col].astype(np.float64)
+            n_fill = channels.noise_dbfs[:, col].astype(np.float64)
+            power = np.where(fill, p_fill, power)
+            noise = np.where(fill, n_fill, noise)
+            with np.errstate(invalid="ignore", over="ignore"):
+                cn_fill = np.asarray(ratio_to_db(np.asarray(db_to_ratio(p_fill - n_fill)) - 1.0))
+            cn = np.where(fill, np.where(np.isfinite(cn_fill), cn_fill, np.nan), cn)
+    started = {int(s.id): s.started_utc for s in sweeps}
+    return StationMatrix(
+        sweep_ids=np.asarray(ids, dtype=np.int64),
+        started_utc=tuple(started[i] for i in ids),
+        freqs_hz=np.asarray([c.freq_hz for c in clusters], dtype=np.float64),
+        kinds=tuple(c.kind for c in clusters),
+        channel_freqs_hz=chan_freqs,
+        power_dbfs=power,
+        noise_dbfs=noise,
+        cn_db=cn,
+        ci_db=ci,
+        detected=detected,
+        stereo=stereo,
+    )
+
+
+@dataclass(frozen=True)
+class StationSummary:
+    """One station of a census over the sweeps of one configuration and input.
+
+    Medians over the sweeps: ``cn_db`` treats a sweep in which the station was not detected as
+    below the floor (left-censored, ranked below every detected sweep; None when fewer than half
+    detected it); ``ci_db``, ``occupied_bw_hz`` and the levels are medians over the sweeps that
+    heard it (None if none). ``stereo`` is True when the pilot was found in at least half of the
+    sweeps that detected it. ``heard_sweeps`` of ``sweeps`` detected it.
+    """
+
+    configuration: str
+    input: str
+    freq_hz: float
+    kind: str
+    channel_freq_hz: int
+    cn_db: float | None
+    ci_db: float | None
+    power_dbfs: float | None
+    noise_dbfs: float | None
+    occupied_bw_hz: float | None
+    stereo: bool
+    heard_sweeps: int
+    sweeps: int
+
+
+def _finite_or_none(value: float) -> float | None:
+    return float(value) if np.isfinite(value) else None
+
+
+def summarise_stations(conn: sqlite3.Connection, sweeps: Sequence[SweepRow],
+                       kinds=("fm",)) -> list[StationSummary]:
+    """Per-station summary of sweeps that share one configuration and input (never pooled).
+
+    Raises :class:`BadParameterError` if ``sweeps`` mixes configurations or inputs.
+    """
+    labels = {(s.configuration, s.input) for s in sweeps}
+    if len(labels) > 1:
+        raise BadParameterError("summarise one configuration and input at a time; got " + ", ".join(
+            f"{c}/{i}" for c, i in sorted(labels)))
+    if not sweeps:
+        return []
+    configuration, input_label = next(iter(labels))
+    matrix = census_matrix(conn, sweeps, kinds=kinds)
+    rows = read_station_rows(conn, [s.id for s in sweeps])
+    obw: dict[int, list[float]] = {}
+    for j, (f, kind) in enumerate(zip(matrix.freqs_hz.tolist(), matrix.kinds)):
+        reach = SAME_FM_STATION_HZ if kind == "fm" else SAME_STATION_HZ
+        obw[j] = [r.occupied_bw_hz for r in rows if abs(r.freq_hz - f) <= reach and r.kind == kind]
+    censored = np.where(matrix.detected, matrix.cn_db, -np.inf)
+    censored = np.where(np.isfinite(matrix.power_dbfs) | matrix.detected, censored, np.nan)
+    cn_med, _ = median_iqr(censored)
+    out = []
+    for j in range(matrix.n_stations):
+        det = matrix.detected[:, j]
+        ci_vals = matrix.ci_db[det, j]
+        ci_vals = ci_vals[np.isfinite(ci_vals)]
+        out.append(StationSummary(
+            configuration=configuration, input=input_label, freq_hz=float(matrix.freqs_hz[j]),
+            kind=matrix.kinds[j], channel_freq_hz=int(matrix.channel_freqs_hz[j]),
+            cn_db=_finite_or_none(cn_med[j]),
+            ci_db=float(np.median(ci_vals)) if ci_vals.size else None,
+            power_dbfs=_finite_or_none(np.median(matrix.power_dbfs[det, j])) if det.any() else None,
+            noise_dbfs=_finite_or_none(np.median(matrix.noise_dbfs[det, j])) if det.any() else None,
+            occupied_bw_hz=float(np.median(obw[j])) if obw[j] else None,
+            stereo=bool(det.any() and matrix.stereo[det, j].mean() >= 0.5),
+            heard_sweeps=int(det.sum()),
+            sweeps=int(matrix.sweep_ids.size),
+        ))
+    return out
+
+
+def kinds_from_option(kind: str) -> tuple[str, ...]:
+    """``"fm"``, ``"narrow"`` or ``"all"`` as the tuple of kinds :func:`census_matrix` takes."""
+    if kind == "all":
+        return KINDS
+    if kind not in KINDS:
+        raise BadParameterError(f"kind {kind!r} is not one of fm, narrow, all")
+    return (kind,)
+
+
+def _complete_sweeps(conn: sqlite3.Connection, configuration: str | None, input: str) -> list[SweepRow]:
+    """Complete sweeps of one configuration (None: all) and input; one error naming what exists."""
+    rows = list_sweeps(conn, configuration=configuration, input=input)
+    if not rows:
+        present = ", ".join(f"'{c.configuration}' {c.input} ({c.sweeps})" for c in count_complete_sweeps(conn))
+        what = f"configuration '{configuration}'" if configuration is not None else "any configuration"
+        raise NoDataError(f"no complete sweeps of {what} with input '{input}'; the database holds: "
+                          f"{present or 'no complete sweeps'}; check the spelling")
+    return rows
+
+
+def station_census(path, configuration: str | None = None, input: str = "antenna",
+                   kinds=("fm",)) -> tuple[list[StationSummary], list[str]]:
+    """Census of a database file: one :class:`StationSummary` per station and configuration.
+
+    Without ``configuration`` every configuration that has complete sweeps of ``input`` gets its
+    own block (medians are never pooled across configurations). A schema-1 database is migrated
+    first (its station rows rebuilt from kept spectra); the second value lists what the
+    migration could not rebuild and why (empty when nothing was missing).
+    """
+    check_input(input)
+    notes: list[str] = []
+    conn = open_for_reading(path)
+    try:
+        try:
+            read_station_rows(conn, [])
+        except StoreError:
+            conn.close()
+            notes = upgrade_database(path)
+            conn = open_for_reading(path)
+        rows = _complete_sweeps(conn, configuration, input)
+        by_config: dict[str, list[SweepRow]] = {}
+        for r in rows:
+            by_config.setdefault(r.configuration, []).append(r)
+        out: list[StationSummary] = []
+        for label in sorted(by_config):
+            out.extend(summarise_stations(conn, by_config[label], kinds=kinds))
+        return out, notes
+    finally:
+        conn.close()

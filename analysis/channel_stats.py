@@ -34,6 +34,7 @@ from pathlib import Path
 import numpy as np
 
 from analysis.selection import Survey, as_survey
+from analysis.terms import median_iqr  # noqa: F401  (re-exported: the column statistics live in terms)
 from analysis.terms import check_input, normalise_utc, utc_to_epoch_s
 from survey.store import ChannelMatrix
 
@@ -84,27 +85,6 @@ def cn_db_from(power_dbfs: np.ndarray, noise_dbfs: np.ndarray, received: np.ndar
 def masked_cn_db(matrix: ChannelMatrix) -> np.ndarray:
     """Per-sweep C/N in dB, NaN where the channel was not received (or not measured)."""
     return cn_db_from(matrix.power_dbfs, matrix.noise_dbfs, matrix.received)
-
-
-def median_iqr(values: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """Column median and IQR over axis 0; NaN ignored; -inf (censored low) values are ranked.
-
-    All-NaN columns give NaN without a warning; a median or quartile that falls on a
-    censored value is NaN (undefined), never a number. Arrays without NaN take the fast
-    path (one partition of the whole array).
-    """
-    if values.shape[0] == 0:
-        nan = np.full(values.shape[1], np.nan)
-        return nan, nan.copy()
-    fn = np.nanpercentile if np.isnan(values).any() else np.percentile
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore", RuntimeWarning)  # all-NaN columns: NaN is the answer
-        with np.errstate(invalid="ignore"):
-            q25, q50, q75 = fn(values, [25.0, 50.0, 75.0], axis=0)
-            iqr = q75 - q25
-    q50 = np.where(np.isfinite(q50), q50, np.nan)
-    iqr = np.where(np.isfinite(iqr), iqr, np.nan)
-    return np.asarray(q50, np.float64), np.asarray(iqr, np.float64)
 
 
 def statistics_from_arrays(

@@ -22,6 +22,7 @@ from typing import Callable, Sequence, TypeVar
 
 import numpy as np
 
+from analysis.census import StationMatrix, census_matrix
 from analysis.terms import check_input, normalise_utc
 from analysis.errors import NoDataError
 from survey.store import (
@@ -48,18 +49,16 @@ from survey.store import (
 T = TypeVar("T")
 
 
-def _matrix_for(survey: "Survey", sweeps: Sequence[SweepRow], kinds: tuple[str, ...] = ("fm",)):
-    """The per-item matrix (rows = ``sweeps``) every comparison, count and headline is made on.
+def _matrix_for(survey: "Survey", sweeps: Sequence[SweepRow], kinds: tuple[str, ...] = ("fm",)) -> StationMatrix:
+    """The per-station matrix (rows = ``sweeps``) every comparison, count and headline is made on.
 
-    This is the one switch between raster channels and the station census. Both records share
-    the fields the analyses read (``sweep_ids``, ``started_utc``, ``freqs_hz``, ``power_dbfs``,
-    ``noise_dbfs``, ``cn_db``, ``detected`` and ``rows(...)``). While the census reader
-    ``analysis.census.census_matrix`` is not part of this tree the raster
-    :class:`~survey.store.ChannelMatrix` is returned; once it is, this body becomes
-    ``return census_matrix(survey.connection, sweeps, kinds=kinds)``.
+    This is the one place that chooses the unit of the analyses: the station census
+    (:func:`analysis.census.census_matrix`, one column per transmitter). Raster channels
+    (:meth:`Survey.channel_matrix`) stay the detail behind the ``--channels`` option. Both records
+    share the fields the analyses read (``sweep_ids``, ``started_utc``, ``freqs_hz``,
+    ``power_dbfs``, ``noise_dbfs``, ``cn_db``, ``detected`` and ``rows(...)``).
     """
-    del kinds  # the raster matrix has no emission kinds
-    return survey.channel_matrix(sweeps)
+    return census_matrix(survey.connection, sweeps, kinds=kinds)
 
 
 def _take_rows(matrix, start: int, stop: int):

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import warnings
 from datetime import datetime, timezone
 
 import numpy as np
@@ -50,3 +51,24 @@ def check_input(input: str) -> str:
     if input not in INPUT_KINDS:
         raise BadParameterError(f"input {input!r} is not one of {', '.join(INPUT_KINDS)}")
     return input
+
+
+def median_iqr(values: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Column median and IQR over axis 0; NaN ignored; -inf (censored low) values are ranked.
+
+    All-NaN columns give NaN without a warning; a median or quartile that falls on a
+    censored value is NaN (undefined), never a number. Arrays without NaN take the fast
+    path (one partition of the whole array).
+    """
+    if values.shape[0] == 0:
+        nan = np.full(values.shape[1], np.nan)
+        return nan, nan.copy()
+    fn = np.nanpercentile if np.isnan(values).any() else np.percentile
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", RuntimeWarning)  # all-NaN columns: NaN is the answer
+        with np.errstate(invalid="ignore"):
+            q25, q50, q75 = fn(values, [25.0, 50.0, 75.0], axis=0)
+            iqr = q75 - q25
+    q50 = np.where(np.isfinite(q50), q50, np.nan)
+    iqr = np.where(np.isfinite(iqr), iqr, np.nan)
+    return np.asarray(q50, np.float64), np.asarray(iqr, np.float64)

@@ -27,6 +27,8 @@ Pipeline of :func:`measure_hop`
    log-PSD below the signals, with an FM-shaped occupancy mask.
 5. Per channel: ``P`` (:func:`channel_power`), ``N = integral of N0 over the band``,
    ``C/N = 10 log10((P - N) / N)`` (called SNR in the tool's output).
+6. Optionally (``emissions_out``) the emissions of the hop, each measured alone
+   (:func:`survey.emissions.find_emissions`), from the same PSD and floor.
 
 References
 ----------
@@ -50,6 +52,7 @@ import scipy.fft
 from survey.errors import PlanError, RecordingError
 from survey.records import ChannelReading, HopReading, IQBlock, SweepSettings
 from survey.noise_floor import local_noise_floor, log_average_bias_db  # re-exported: public API
+from survey.emissions import find_emissions
 from survey.units import ratio_to_db
 
 #: Datatypes (SigMF spelling) that :func:`to_complex64` converts.
@@ -510,6 +513,9 @@ def measure_hop(
     settings: SweepSettings,
     hop_index: int,
     keep_psd: bool = False,
+    emissions_out: list | None = None,
+    floor_out: list | None = None,
+    floor_given: np.ndarray | None = None,
 ) -> tuple[HopReading, list[ChannelReading]]:
     """Measure one hop: clipping, PSD, local noise floor and each channel's P, N and C/N.
 
@@ -531,6 +537,15 @@ def measure_hop(
         Stored with the readings.
     keep_psd : bool
         Attach absolute bin frequencies (Hz, float64) and the PSD (dBFS/Hz, float32).
+    emissions_out : list, optional
+        When given, the hop's emissions (:func:`survey.emissions.find_emissions`, from the
+        same PSD and floor) are appended to it as :class:`~survey.records.EmissionReading`.
+    floor_out : list, optional
+        When given, ``(absolute bin frequencies Hz, floor dBFS/Hz, usable mask, groups)`` is
+        appended (``groups`` a :class:`survey.noise_floor.HopGroups`, for a sweep-wide floor).
+    floor_given : numpy.ndarray, optional
+        Floor density per bin (FS^2/Hz) to use instead of fitting one, e.g. this hop's part of
+        :func:`survey.noise_floor.sweep_floors`.
 
     Raises
     ------
@@ -546,8 +561,21 @@ def measure_hop(
     offsets, psd = raw_averaged_psd(block.raw, block.datatype, fs, settings.fft_size)
     usable = usable_bins(offsets, fs, settings.usable_fraction, settings.dc_guard_hz)
     k_eff = welch_effective_averages(n_samples, settings.fft_size)
-    floor = local_noise_floor(offsets, psd, usable, effective_averages=k_eff)
+    groups: list = []
+    if floor_given is not None:
+        floor = np.array(floor_given, dtype=np.float64)
+    else:
+        floor = local_noise_floor(offsets, psd, usable, effective_averages=k_eff,
+                                  groups_out=groups if floor_out is not None else None)
     floor_db = _median_db(floor[usable])
+    if floor_out is not None:
+        floor_out.append((center + offsets, np.asarray(ratio_to_db(floor)), usable, groups[0] if groups else None))
+    if emissions_out is not None:
+        emissions_out.extend(find_emissions(
+            offsets, psd, floor, usable, center_hz=center, hop_index=int(hop_index),
+            channels_hz=channels_hz, channel_bw_hz=float(settings.channel_bw_hz),
+            effective_averages=k_eff, samples=to_complex64(block.raw, block.datatype), sample_rate_hz=fs,
+        ))
 
     freqs = np.asarray(list(channels_hz), dtype=np.float64)
     readings: list[ChannelReading] = []

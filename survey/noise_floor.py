@@ -111,6 +111,12 @@ def _group_variance_factor(fft_size: int, group: int) -> float:
     return float((1.0 + 2.0 * np.sum((1.0 - lags / group) * rho2)) / group)
 
 
+def group_variance_factor(fft_size: int, group: int) -> float:
+    """Variance of the mean of ``group`` adjacent Hann-periodogram bins relative to one bin
+    (white Gaussian noise; see :func:`_group_variance_factor`)."""
+    return _group_variance_factor(int(fft_size), int(group))
+
+
 @lru_cache(maxsize=64)
 def _window_ends(n: int, half: int) -> tuple[np.ndarray, np.ndarray]:
     i = np.arange(n)
@@ -233,6 +239,27 @@ def _sigma_and_bias_db(effective_averages: float, variance_factor: float) -> tup
     return float(sigma_bin_db * np.sqrt(variance_factor)), log_average_bias_db(effective_averages)
 
 
+@dataclass(frozen=True)
+class HopGroups:
+    """The grouped log-PSD of one hop as :func:`local_noise_floor` fitted it (for a sweep fit).
+
+    ``centers_hz`` are group centres relative to the hop centre; ``y`` the group means (dB, the
+    biased log-PSD mean); ``fit_db`` the hop's own floor (dB, bias removed); ``lo``/``hi`` the
+    bin span the groups cover.
+    """
+
+    centers_hz: np.ndarray
+    y: np.ndarray
+    weight: np.ndarray
+    has_data: np.ndarray
+    sigma_db: float
+    bias_db: float
+    occupancy_args: tuple
+    fit_db: np.ndarray
+    lo: int
+    hi: int
+
+
 def local_noise_floor(
     offsets_hz: np.ndarray,
     psd: np.ndarray,
@@ -254,6 +281,7 @@ def local_noise_floor(
     peak_hz: float = 40_000.0,
     occupancy_hz: float = 140_000.0,
     occupancy_per_db_hz: float = 2_000.0,
+    groups_out: list | None = None,
 ) -> np.ndarray:
     """Local noise-floor density per bin, FS^2/Hz, from a smooth fit to the log-PSD below signals.
 
@@ -299,6 +327,9 @@ def local_noise_floor(
     extrapolated from one side); median absolute error 0.04 dB. Skirt power
     below the hysteresis threshold is kept and raises the floor locally (a few hundredths of a
     dB for C/N above 35 dB).
+
+    5. A sweep-wide floor (:func:`sweep_floors`) can replace the hop's own: ``groups_out``
+       receives the hop's groups (:class:`HopGroups`) for it.
 
     Parameters
     ----------
@@ -369,7 +400,106 @@ def local_noise_floor(
                 break  # the whole hop is occupied: keep the lower envelope
             fit = _whittaker(y, weight * free, lay.penalty)
             previous = busy
+    if groups_out is not None:
+        groups_out.append(HopGroups(lay.centers_hz, y, weight, lay.has_data, sigma_db, bias_db,
+                                    occupancy_args, fit - bias_db, lo, hi))
     floor_db = fit - bias_db
     span = slice(max(lo - 1, 0), min(hi + 1, len(out)))
     out[span] = db_to_ratio(np.interp(offsets_hz[span], lay.centers_hz, floor_db))
+    return out
+
+
+def sweep_floors(groups: list[HopGroups], centers_hz: list[float], offsets_hz: list[np.ndarray], *,
+                 smooth_hz: float = 150_000.0, tension_hz: float = 80_000.0, core_sigma: float = 4.0,
+                 skirt_sigma: float = 1.0, rounds: int = 4, support_hz: float = 300_000.0) -> list[np.ndarray]:
+    """One floor for the whole sweep, fitted on absolute frequency to every hop's free groups.
+
+    Within the usable span the receiver's own response is flat (its anti-alias roll-off lies
+    beyond it), so the floor is a function of absolute frequency alone, the same in every hop.
+    The hops' group means (bias removed) go on one grid of the group step; the same smoother as
+    :func:`local_noise_floor` (curvature on ``smooth_hz``, slope on ``tension_hz``) is fitted to
+    the groups no hop marks as holding signal, and each hop's groups are classified again
+    against the sweep fit, ``rounds`` times at most. A hop edge crowded with stations is then
+    bridged between the free stretches of both neighbouring hops instead of extrapolated.
+
+    Each hop keeps its own floor (:func:`local_noise_floor`) where that is interpolated: where
+    it has a free group of its own within ``support_hz`` on each side (a side beyond which no
+    other hop reaches needs none). The sweep-wide floor replaces it only where it would be
+    extrapolated or bridged over a longer occupied stretch.
+
+    Returns per hop the floor density (FS^2/Hz) on its bins (``offsets_hz[k]``), NaN outside
+    the span its groups cover, like :func:`local_noise_floor`.
+    """
+    if not groups:
+        return []
+    step = float(groups[0].centers_hz[1] - groups[0].centers_hz[0]) if groups[0].centers_hz.size > 1 else 8e3
+    absolute = [c + g.centers_hz for c, g in zip(centers_hz, groups)]
+    g0 = min(float(a.min()) for a in absolute)
+    index = [np.rint((a - g0) / step).astype(np.int64) for a in absolute]
+    n = int(max(int(i.max()) for i in index)) + 1
+    curve = _stiffness(smooth_hz, step)
+    penalty = _penalty_bands(np.full(max(n - 2, 0), curve), np.full(max(n - 1, 0), curve * (step / tension_hz) ** 2))
+    grid = g0 + step * np.arange(n)
+    free = []
+    for g in groups:
+        busy = _occupied(g.y - (g.fit_db + g.bias_db), g.sigma_db, g.has_data, core_sigma, skirt_sigma,
+                         *g.occupancy_args)
+        free.append(~busy & g.has_data)
+    fit = None
+    for _ in range(rounds):
+        total = np.zeros(n)
+        weight = np.zeros(n)
+        for g, idx, f in zip(groups, index, free):
+            w = g.weight * f
+            np.add.at(total, idx, w * (g.y - g.bias_db))
+            np.add.at(weight, idx, w)
+        if not weight.any() or n < 4:
+            return [local_floor_from_db(off, g, g.fit_db) for off, g in zip(offsets_hz, groups)]
+        y = np.where(weight > 0, total / np.maximum(weight, 1e-300), 0.0)
+        fit = _whittaker(y, weight, penalty)
+        changed = False
+        for k, (g, a) in enumerate(zip(groups, absolute)):
+            hop_fit = np.interp(a, grid, fit)
+            busy = _occupied(g.y - (hop_fit + g.bias_db), g.sigma_db, g.has_data, core_sigma, skirt_sigma,
+                             *g.occupancy_args)
+            now = ~busy & g.has_data
+            changed |= bool((now != free[k]).any())
+            free[k] = now
+        if not changed:
+            break
+    lo_all = [float(a.min()) for a in absolute]
+    hi_all = [float(a.max()) for a in absolute]
+    out = []
+    for k, (off, g, a) in enumerate(zip(offsets_hz, groups, absolute)):
+        sweep_db = np.interp(a, grid, fit)
+        own_free = free[k] & ~_occupied(g.y - (g.fit_db + g.bias_db), g.sigma_db, g.has_data, core_sigma,
+                                        skirt_sigma, *g.occupancy_args)  # free by both fits
+        beyond_lo = any(lo < lo_all[k] for j, lo in enumerate(lo_all) if j != k)
+        beyond_hi = any(hi > hi_all[k] for j, hi in enumerate(hi_all) if j != k)
+        supported = _supported(a, own_free, support_hz, beyond_lo, beyond_hi)
+        out.append(local_floor_from_db(off, g, np.where(supported, g.fit_db, sweep_db)))
+    return out
+
+
+def _supported(centers_hz: np.ndarray, free: np.ndarray, reach_hz: float, beyond_lo: bool,
+               beyond_hi: bool) -> np.ndarray:
+    """Groups whose own floor is interpolated: a free group within ``reach_hz`` on each side (a
+    side with no other hop beyond it needs none: the sweep knows no more there)."""
+    where = centers_hz[free]
+    if where.size == 0:
+        return np.zeros(centers_hz.size, dtype=bool)
+    i = np.searchsorted(where, centers_hz, side="right")
+    below = np.where(i > 0, centers_hz - where[np.maximum(i - 1, 0)], np.inf)
+    j = np.searchsorted(where, centers_hz, side="left")
+    above = np.where(j < where.size, where[np.minimum(j, where.size - 1)] - centers_hz, np.inf)
+    left_ok = (below <= reach_hz) | (not beyond_lo and np.isinf(below))
+    right_ok = (above <= reach_hz) | (not beyond_hi and np.isinf(above))
+    return left_ok & right_ok
+
+
+def local_floor_from_db(offsets_hz: np.ndarray, g: HopGroups, floor_db: np.ndarray) -> np.ndarray:
+    """Group floor values (dB) to a per-bin density (FS^2/Hz), as :func:`local_noise_floor` returns."""
+    out = np.full(np.shape(offsets_hz), np.nan)
+    span = slice(max(g.lo - 1, 0), min(g.hi + 1, out.size))
+    out[span] = db_to_ratio(np.interp(offsets_hz[span], g.centers_hz, floor_db))
     return out

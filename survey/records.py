@@ -103,9 +103,10 @@ class EmissionReading:
     """One emission found above the local floor in one hop of one sweep.
 
     ``freq_hz`` is the carrier estimate; ``occupied_bw_hz`` the 99 % power bandwidth (ITU-R
-    SM.328 / SM.443); ``power_dbfs`` its own power (a neighbour's skirt removed); ``noise_dbfs``
-    the local floor times the channel bandwidth; ``cn_db`` = 10 log10(own power / N), kept even
-    below the detection margin; ``ci_db`` its own power over the neighbour power left in its
+    SM.328 / SM.443); ``power_dbfs`` its own power plus the noise in its channel, ``C + N`` (a
+    neighbour's skirt removed; the same sense as a channel row's P, so ``(P - N) / N`` is C/N
+    for both); ``noise_dbfs`` the local floor times the channel bandwidth; ``cn_db`` =
+    10 log10(own power C / N), kept even below the detection margin (NaN when C <= 0); ``ci_db`` its own power over the neighbour power left in its
     channel (None: no neighbour power); ``kind`` is ``"fm"`` (broadcast) or ``"narrow"``
     (carrier, spur, supply line); ``channel_freq_hz`` the raster channel it sits on;
     ``separable`` False when a neighbour is too close for its own power to be measured.

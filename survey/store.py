@@ -30,10 +30,10 @@ import numpy as np
 from survey import spectra_codec
 from survey.version import __version__
 from survey.errors import StoreError
-from survey.records import RunInfo, SweepResult
+from survey.records import EmissionReading, RunInfo, SweepResult
 
 #: Version of the schema below, stored in ``PRAGMA user_version``.
-SCHEMA_VERSION = 1
+SCHEMA_VERSION = 2
 
 _SCHEMA_V1 = """
 CREATE TABLE IF NOT EXISTS runs (
@@ -121,8 +121,26 @@ CREATE TABLE IF NOT EXISTS events (
 ) STRICT;
 """
 
+_SCHEMA_V2 = """
+CREATE TABLE IF NOT EXISTS stations (
+    sweep_id INTEGER NOT NULL REFERENCES sweeps(id),
+    freq_hz REAL NOT NULL,
+    hop_index INTEGER NOT NULL,
+    kind TEXT NOT NULL,
+    occupied_bw_hz REAL NOT NULL,
+    power_dbfs REAL,
+    noise_dbfs REAL,
+    cn_db REAL,
+    ci_db REAL,
+    stereo INTEGER NOT NULL,
+    channel_freq_hz INTEGER NOT NULL,
+    separable INTEGER NOT NULL
+) STRICT;
+CREATE INDEX IF NOT EXISTS stations_by_sweep ON stations(sweep_id, freq_hz);
+"""
+
 #: Named migrations: version reached -> SQL. Each runs in its own transaction.
-MIGRATIONS: dict[int, str] = {1: _SCHEMA_V1}
+MIGRATIONS: dict[int, str] = {1: _SCHEMA_V1, 2: _SCHEMA_V2}
 
 
 def utc_now() -> str:
@@ -162,6 +180,9 @@ class SurveyStore:
     def __init__(self, path: str | Path, busy_timeout_s: float = 10.0, busy_retries: int = 3):
         self.path = Path(path)
         self.busy_retries = busy_retries
+        #: What the last schema upgrade could not do (e.g. sweeps whose station rows could not
+        #: be rebuilt, and why); also recorded as ``migration`` events.
+        self.migration_notes: list[str] = []
         if self.path.exists() and self.path.is_dir():
             raise StoreError(f"{self.path} is a folder; give a database file path such as survey.db")
         try:
@@ -207,6 +228,8 @@ class SurveyStore:
                 for statement in MIGRATIONS[target].split(";"):
                     if statement.strip():
                         self.conn.execute(statement)
+                if target == 2 and version >= 1:
+                    self.migration_notes.extend(_rebuild_station_rows(self.conn))
                 self.conn.execute(f"PRAGMA user_version = {int(target)}")
                 self.conn.execute("COMMIT")
             except BaseException:
@@ -352,6 +375,7 @@ class SurveyStore:
                     np.asarray([r.received for r in rows], dtype=np.uint8).tobytes(),
                 ),
             )
+            _insert_station_rows(c, sweep_id, result.emissions)
             if keep_spectra:
                 for h in result.hops:
                     if h.psd_dbfs_hz is None or h.psd_freqs_hz is None or len(h.psd_freqs_hz) < 2:
@@ -383,6 +407,77 @@ class SurveyStore:
 
     def __exit__(self, *exc) -> None:
         self.close()
+
+
+def _nullable(value: float | None) -> float | None:
+    """A float for SQLite, None for a missing or non-finite value (a REAL column holds no NaN)."""
+    if value is None:
+        return None
+    f = float(value)
+    return f if np.isfinite(f) else None
+
+
+def _insert_station_rows(c: sqlite3.Connection, sweep_id: int, emissions: Iterable[EmissionReading]) -> None:
+    """One ``stations`` row per emission of a sweep (inside the caller's transaction)."""
+    c.executemany(
+        "INSERT INTO stations (sweep_id, freq_hz, hop_index, kind, occupied_bw_hz, power_dbfs, noise_dbfs,"
+        " cn_db, ci_db, stereo, channel_freq_hz, separable) VALUES (?,?,?,?,?,?,?,?,?,?,?,?)",
+        [
+            (
+                int(sweep_id), float(e.freq_hz), int(e.hop_index), str(e.kind), float(e.occupied_bw_hz),
+                _nullable(e.power_dbfs), _nullable(e.noise_dbfs), _nullable(e.cn_db), _nullable(e.ci_db),
+                int(bool(e.stereo)), int(e.channel_freq_hz), int(bool(e.separable)),
+            )
+            for e in sorted(emissions, key=lambda e: e.freq_hz)
+        ],
+    )
+
+
+def _rebuild_station_rows(c: sqlite3.Connection) -> list[str]:
+    """Station rows of a version-1 database, rebuilt from the kept spectra (inside the migration).
+
+    The floor and the emissions are recomputed from each hop's stored PSD (0.01 dB steps) with
+    the sweep's own settings; ``K_eff`` follows from the hop's sample count. Without the IQ
+    samples the stereo pilot cannot be examined: rebuilt rows say ``stereo`` 0. Sweeps stored
+    without spectra cannot be rebuilt; they are named in the returned notes and in a
+    ``migration`` event, and keep their channel rows.
+    """
+    from survey.emissions import emissions_from_spectra  # heavy imports only when migrating
+
+    missing: list[int] = []
+    rebuilt = 0
+    sweeps = c.execute("SELECT id, channel_bw_hz, usable_fraction, dc_guard_hz FROM sweeps ORDER BY id").fetchall()
+    for sweep_id, bw, usable_fraction, dc_guard in sweeps:
+        hops = {h: (center, fs, n) for h, center, fs, n in c.execute(
+            "SELECT hop_index, center_hz, sample_rate_hz, n_samples FROM hops WHERE sweep_id=?", (sweep_id,))}
+        kept = [h for (h,) in c.execute(
+            "SELECT hop_index FROM spectra WHERE sweep_id=? ORDER BY hop_index", (sweep_id,))]
+        if not hops or len(kept) < len(hops):
+            missing.append(int(sweep_id))
+            continue
+        channels: dict[int, list[int]] = {}
+        for f, h in c.execute("SELECT freq_hz, hop_index FROM channels WHERE sweep_id=?", (sweep_id,)):
+            channels.setdefault(int(h), []).append(int(f))
+        spectra = [(int(h), *hops[h], freqs, psd_db, channels.get(int(h), []))
+                   for h, (freqs, psd_db) in zip(kept, read_spectra(c, sweep_id))]
+        found = emissions_from_spectra(spectra, channel_bw_hz=float(bw), usable_fraction=float(usable_fraction),
+                                       dc_guard_hz=float(dc_guard))
+        _insert_station_rows(c, int(sweep_id), found)
+        rebuilt += 1
+    notes = []
+    if missing:
+        listed = ", ".join(str(i) for i in missing[:20]) + (" ..." if len(missing) > 20 else "")
+        notes.append(
+            f"schema 2: station rows of {len(missing)} sweep(s) could not be rebuilt (ids {listed}):"
+            " they were stored without spectra (keep spectra to allow it); their channel rows are kept"
+        )
+        c.execute("INSERT INTO events (run_id, sweep_id, utc, kind, message) VALUES (?,?,?,?,?)",
+                  (None, None, utc_now(), "migration", notes[-1]))
+    if rebuilt:
+        c.execute("INSERT INTO events (run_id, sweep_id, utc, kind, message) VALUES (?,?,?,?,?)",
+                  (None, None, utc_now(), "migration",
+                   f"schema 2: station rows of {rebuilt} sweep(s) rebuilt from the kept spectra (stereo not known)"))
+    return notes
 
 
 # ---------------------------------------------------------------------------------------
@@ -788,3 +883,69 @@ def read_sweep_matrix(conn: sqlite3.Connection, sweeps: Sequence[SweepRow]) -> C
     received = np.frombuffer(b"".join(b[3] for b in ordered), dtype=np.uint8).reshape(n, m).astype(bool)
     return ChannelMatrix(np.asarray(ids, np.int64), tuple(r.started_utc for r in sweeps), freqs, power, noise,
                          received)
+
+
+@dataclass(frozen=True)
+class StationRow:
+    """One row of the ``stations`` table: one emission found in one sweep.
+
+    Units and meaning as :class:`survey.records.EmissionReading`; ``power_dbfs``, ``noise_dbfs``,
+    ``cn_db`` are NaN where not measurable and ``ci_db`` is None without neighbour power.
+    """
+
+    sweep_id: int
+    freq_hz: float
+    hop_index: int
+    kind: str
+    occupied_bw_hz: float
+    power_dbfs: float
+    noise_dbfs: float
+    cn_db: float
+    ci_db: float | None
+    stereo: bool
+    channel_freq_hz: int
+    separable: bool
+
+
+def read_station_rows(conn: sqlite3.Connection, sweep_ids: Sequence[int]) -> list[StationRow]:
+    """Station rows of the given sweeps, ordered by sweep (as given) then frequency.
+
+    Raises :class:`StoreError` when the database predates the ``stations`` table (schema 1):
+    opening it once for writing (:class:`SurveyStore`) migrates it.
+    """
+    ids = [int(i) for i in sweep_ids]
+    has = conn.execute("SELECT 1 FROM sqlite_master WHERE type='table' AND name='stations'").fetchone()
+    if not has:
+        raise StoreError("the database has no stations table (schema 1); open it once with this version"
+                         " of bandcensus for writing to migrate it")
+    order = {sid: k for k, sid in enumerate(ids)}
+    nan = float("nan")
+    out: list[StationRow] = []
+    for chunk_start in range(0, len(ids), 900):
+        chunk = ids[chunk_start:chunk_start + 900]
+        marks = ",".join("?" * len(chunk))
+        for r in conn.execute(
+            "SELECT sweep_id, freq_hz, hop_index, kind, occupied_bw_hz, power_dbfs, noise_dbfs, cn_db, ci_db,"
+            f" stereo, channel_freq_hz, separable FROM stations WHERE sweep_id IN ({marks})", chunk,
+        ):
+            out.append(StationRow(
+                sweep_id=int(r[0]), freq_hz=float(r[1]), hop_index=int(r[2]), kind=str(r[3]),
+                occupied_bw_hz=float(r[4]), power_dbfs=nan if r[5] is None else float(r[5]),
+                noise_dbfs=nan if r[6] is None else float(r[6]), cn_db=nan if r[7] is None else float(r[7]),
+                ci_db=None if r[8] is None else float(r[8]), stereo=bool(r[9]),
+                channel_freq_hz=int(r[10]), separable=bool(r[11]),
+            ))
+    out.sort(key=lambda row: (order[row.sweep_id], row.freq_hz))
+    return out
+
+
+def upgrade_database(path: str | Path) -> list[str]:
+    """Bring an existing database to :data:`SCHEMA_VERSION`; returns what could not be done.
+
+    A no-op for a current database. Raises :class:`StoreError` for a missing file.
+    """
+    p = Path(path)
+    if not p.exists():
+        raise StoreError(f"database {p} does not exist; run 'bandcensus replay', 'simulate' or 'scan' first")
+    with SurveyStore(p) as store:
+        return list(store.migration_notes)

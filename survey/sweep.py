@@ -13,9 +13,11 @@ from typing import Callable, Protocol
 from survey import dsp
 from survey.bandplan import assign_to_centers, plan_hops
 from survey.errors import PlanError
+from survey.noise_floor import sweep_floors
 from survey.records import (
     BandPlan,
     ChannelReading,
+    EmissionReading,
     HopPlan,
     HopReading,
     IQBlock,
@@ -84,6 +86,7 @@ def run_sweep(
     keep_psd: bool = False,
     on_hop: Callable[[HopProgress], None] | None = None,
     should_stop: Callable[[], bool] | None = None,
+    sweep_floor: bool = True,
 ) -> SweepResult:
     """Measure every hop of ``plan`` with ``source``.
 
@@ -98,20 +101,31 @@ def run_sweep(
     should_stop : callable, optional
         Checked between hops; when it returns True the sweep ends early and is returned with
         ``complete=False`` (never stored as if complete).
+    sweep_floor : bool
+        Measure in two passes: every hop's PSD and floor groups first, then every hop against
+        its part of one floor fitted to the free stretches of all hops on absolute frequency
+        (:func:`survey.noise_floor.sweep_floors`), so a channel at a crowded hop edge is
+        measured against a floor bridged between both neighbouring hops instead of one
+        extrapolated from one side. Blocks are kept in memory until the sweep ends. False:
+        each hop's own floor (:func:`survey.noise_floor.local_noise_floor`).
 
     Returns
     -------
     SweepResult
-        Hop and channel readings; times from the source's block timestamps (UTC).
+        Hop and channel readings and the emissions found in each hop
+        (:func:`survey.emissions.find_emissions`, each reported by one hop); times from the source's block timestamps (UTC).
     """
     hops: list[HopReading] = []
     channels: list[ChannelReading] = []
+    emissions: list[EmissionReading] = []
     started = None
     ended = None
     complete = True
     dwell_samples = None if source.fixed_centers_hz is not None else max(
         settings.fft_size, int(round(settings.dwell_s * source.sample_rate_hz))
     )
+    blocks: list[tuple[object, IQBlock]] = []
+    floors: list = []
     for hop in plan.hops:
         if should_stop is not None and should_stop():
             complete = False
@@ -122,14 +136,23 @@ def run_sweep(
             started = block.started_utc
         if sink is not None:
             sink.add_block(block)
-        hop_reading, channel_readings = dsp.measure_hop(
-            block, hop.channels_hz, settings, hop_index=hop.index, keep_psd=keep_psd
-        )
-        hops.append(hop_reading)
-        channels.extend(channel_readings)
+        hop_reading, _ = dsp.measure_hop(block, hop.channels_hz, settings, hop_index=hop.index, floor_out=floors)
+        blocks.append((hop, block))
         ended = dsp.block_end_utc(block)
         if on_hop is not None:
             on_hop(HopProgress(hop.index, len(plan.hops), hop.center_hz, hop_reading.floor_dbfs_hz))
+    # second pass: every hop measured against its part of one floor fitted to the whole sweep
+    given = [None] * len(blocks)
+    if sweep_floor and blocks and all(f[3] is not None for f in floors):
+        given = sweep_floors([f[3] for f in floors], [float(b.center_hz) for _, b in blocks],
+                             [f[0] - float(b.center_hz) for f, (_, b) in zip(floors, blocks)])
+    for k, (hop, block) in enumerate(blocks):
+        hop_reading, channel_readings = dsp.measure_hop(
+            block, hop.channels_hz, settings, hop_index=hop.index, keep_psd=keep_psd,
+            emissions_out=emissions, floor_given=given[k],
+        )
+        hops.append(hop_reading)
+        channels.extend(channel_readings)
     if len(hops) != len(plan.hops):
         complete = False
     now = utc_now()
@@ -142,4 +165,5 @@ def run_sweep(
         hops=tuple(hops),
         channels=tuple(channels),
         complete=complete,
+        emissions=tuple(sorted(emissions, key=lambda e: e.freq_hz)),
     )

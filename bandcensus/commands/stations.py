@@ -1,0 +1,68 @@
+"""``bandcensus stations``: the census of transmitters, one row per station and configuration."""
+
+from __future__ import annotations
+
+import csv
+import sys
+from dataclasses import asdict
+
+import click
+from rich.table import Table
+
+from analysis.census import kinds_from_option, station_census
+from bandcensus.commands._common import db_option, echo_json
+from bandcensus.commands._tables import print_table
+from survey.records import INPUT_KINDS
+
+_FIELDS = ["configuration", "input", "freq_hz", "kind", "cn_db", "ci_db", "power_dbfs", "noise_dbfs",
+           "occupied_bw_hz", "stereo", "heard_sweeps", "sweeps", "channel_freq_hz"]
+
+
+def _num(value, fmt: str, missing: str = "-") -> str:
+    return missing if value is None else format(value, fmt)
+
+
+@click.command("stations")
+@db_option
+@click.option("--config", "configuration", help="Configuration label (default: one block per configuration).")
+@click.option("--input", "input_kind", type=click.Choice(INPUT_KINDS), default="antenna", show_default=True,
+              help="Input label of the sweeps to take the census of.")
+@click.option("--kind", type=click.Choice(["fm", "narrow", "all"]), default="fm", show_default=True,
+              help="fm: broadcast stations; narrow: carriers, spurs, supply lines; all: both.")
+@click.option("--json", "as_json", is_flag=True, help="Print machine-readable JSON.")
+@click.option("--csv", "as_csv", is_flag=True, help="Print CSV.")
+def command(db_path, configuration, input_kind, kind, as_json, as_csv):
+    """Per station (transmitter, not raster channel): C/N, C/I, how often heard, stereo, bandwidth.
+
+    A station is every emission within a few kHz of the same carrier across sweeps. C/N is its
+    own power over the floor in the channel bandwidth, median over sweeps (a sweep that did not
+    detect it counts as below the floor); C/I is its own power over the neighbours' skirts left
+    in its channel; bandwidth is the 99 % occupied bandwidth (ITU-R SM.328).
+    """
+    if as_json and as_csv:
+        raise click.UsageError("choose one of --json and --csv")
+    stations, notes = station_census(db_path, configuration=configuration, input=input_kind,
+                                     kinds=kinds_from_option(kind))
+    for note in notes:
+        click.echo(f"Note: {note}", err=True)
+    rows = [{k: asdict(s)[k] for k in _FIELDS} for s in stations]
+    if as_json:
+        echo_json({"stations": rows})
+        return
+    if as_csv:
+        writer = csv.DictWriter(sys.stdout, fieldnames=_FIELDS, lineterminator="\n")
+        writer.writeheader()
+        writer.writerows(rows)
+        return
+    for label in sorted({r["configuration"] for r in rows}) or [configuration or "any configuration"]:
+        block = [r for r in rows if r["configuration"] == label]
+        table = Table(title=f"Stations of {label} ({input_kind}), medians over sweeps", title_justify="left")
+        for col in ("MHz", "kind", "SNR (C/N) dB", "C/I dB", "heard", "stereo", "occupied kHz"):
+            table.add_column(col, justify="left" if col in ("kind", "stereo") else "right")
+        for r in block:
+            table.add_row(
+                f"{r['freq_hz'] / 1e6:.3f}", r["kind"], _num(r["cn_db"], ".1f", "below floor"),
+                _num(r["ci_db"], ".1f"), f"{r['heard_sweeps']} of {r['sweeps']}",
+                "yes" if r["stereo"] else "no", _num(None if r["occupied_bw_hz"] is None else r["occupied_bw_hz"] / 1e3, ".0f"),
+            )
+        print_table(table)
