@@ -45,6 +45,12 @@ class StationMatrix:
     where the sweep did not measure that channel). ``cn_db`` is the measured carrier-to-noise
     (may be below the detection margin, NaN where P <= N); ``detected`` says whether C/N reached
     the detection margin. ``sweep_ids`` and ``started_utc`` follow the sweeps asked for.
+
+    Station identity from RDS (IEC 62106), where decoded: ``names`` holds one display name per
+    station (the PS name with its PI, or a user-supplied name; None when unknown), and
+    ``rds_blocks`` / ``rds_block_errors`` the ``(n_sweeps, n_stations)`` counts of RDS block
+    slots received and failed (0 where nothing was decoded). Empty when the census holds no
+    identity data.
     """
 
     sweep_ids: np.ndarray
@@ -58,6 +64,9 @@ class StationMatrix:
     ci_db: np.ndarray
     detected: np.ndarray
     stereo: np.ndarray
+    names: tuple[str | None, ...] = ()
+    rds_blocks: np.ndarray | None = None
+    rds_block_errors: np.ndarray | None = None
 
     @property
     def n_stations(self) -> int:
@@ -80,6 +89,9 @@ class StationMatrix:
             ci_db=self.ci_db[take],
             detected=self.detected[take],
             stereo=self.stereo[take],
+            names=self.names,
+            rds_blocks=None if self.rds_blocks is None else self.rds_blocks[take],
+            rds_block_errors=None if self.rds_block_errors is None else self.rds_block_errors[take],
         )
 
 
