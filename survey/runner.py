@@ -46,6 +46,7 @@ def record_sweep(
     on_hop: Callable[[HopProgress], None] | None = None,
     should_stop: Callable[[], bool] | None = None,
     recording_fields: dict | None = None,
+    recording: str | None = None,
 ) -> SweepOutcome:
     """Measure ``plan`` with ``source`` and write the sweep to ``store`` in one transaction.
 
@@ -60,6 +61,8 @@ def record_sweep(
         (``scan --spectra-every N``).
     recording_fields : dict, optional
         Extra fields for the recorder (device, seed, gain ...), passed as keyword arguments.
+    recording : str, optional
+        The recording the sweep was measured from (replay); stored in ``sweeps.recording``.
     """
     if keep_spectra is None:
         keep_spectra = True
@@ -98,5 +101,7 @@ def record_sweep(
             sink.abort()
     if recording_path is not None:
         result = replace(result, recording=str(recording_path))
+    elif recording is not None:
+        result = replace(result, recording=str(recording))
     sweep_id = store.write_sweep(run_id, result, keep_spectra=keep_spectra)
     return SweepOutcome(sweep_id=sweep_id, result=result, recording_path=recording_path)

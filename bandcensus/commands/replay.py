@@ -11,10 +11,12 @@ from bandcensus.commands._common import db_option, echo_json, json_option
 from bandcensus.commands._tables import channel_rows_table, print_table
 from survey.bandplan import parse_band
 from survey.records import INPUT_KINDS, RunInfo, SweepSettings
-from survey.runner import record_sweep
+from survey.errors import SurveyError
+from survey.session import CaptureSession
 from survey.sources.recording import open_recording
 from survey.store import SurveyStore
 from survey.sweep import plan_for_source
+from survey.text import plain_text, terminal_label
 
 
 @click.command("replay")
@@ -70,31 +72,37 @@ def command(recordings, db_path, configuration, input_kind, band, channel_bw_khz
         plan = plan_for_source(plan_band, source, settings)
         jobs.append((path, source, cfg, inp, settings, plan))
 
+    info = RunInfo(
+        source_kind="recording",
+        device="; ".join(str(s.describe().get("hw") or s.describe().get("path")) for s in sources),
+        tool_version=__version__,
+        settings={"band": band, "channel_bw_hz": channel_bw_khz * 1e3, "usable_fraction": usable_fraction,
+                  "dc_guard_hz": dc_guard_khz * 1e3, "fft_size": fft_size,
+                  "recordings": [str(p) for p in recordings]},
+        seed=next((s.metadata_labels().get("seed") for s in sources if s.metadata_labels().get("seed") is not None), None),
+    )
     store = SurveyStore(db_path)
     summaries = []
     try:
-        run_id = store.begin_run(RunInfo(
-            source_kind="recording",
-            device="; ".join(str(s.describe().get("hw") or s.describe().get("path")) for s in sources),
-            tool_version=__version__,
-            settings={"band": band, "channel_bw_hz": channel_bw_khz * 1e3, "usable_fraction": usable_fraction,
-                      "dc_guard_hz": dc_guard_khz * 1e3, "fft_size": fft_size,
-                      "recordings": [str(p) for p in recordings]},
-            seed=next((s.metadata_labels().get("seed") for s in sources if s.metadata_labels().get("seed") is not None), None),
-        ))
-        status = "failed"
-        try:
+        with CaptureSession(store, info) as session:
+            run_id = session.run_id
             for path, source, cfg, inp, settings, plan in jobs:
-                outcome = record_sweep(store, run_id, source, plan, settings, cfg, inp)
+                if session.stopped:
+                    break
+                try:
+                    outcome = session.record(source, plan, settings, cfg, inp, recording=str(path))
+                except SurveyError as exc:
+                    if str(path) in str(exc):
+                        raise
+                    done = f"; the {len(summaries)} earlier recording(s) are stored" if summaries else ""
+                    raise type(exc)(f"{path}: {exc}{done}") from exc
                 summaries.append((path, outcome, plan))
                 source.close()
-            status = "finished"
-        finally:
-            store.end_run(run_id, status)
     finally:
         store.close()
         for s in sources:
             s.close()
+    summary = session.summary()
 
     payload = []
     for path, outcome, plan in summaries:
@@ -107,14 +115,18 @@ def command(recordings, db_path, configuration, input_kind, band, channel_bw_khz
                         "configuration": outcome.result.configuration, "input": outcome.result.input,
                         "channels": rows, "uncovered_hz": list(plan.uncovered_hz)})
     if as_json:
-        echo_json({"run_id": run_id, "sweeps": payload})
+        echo_json({"run_id": run_id, "status": summary.status, "stop_signal": summary.stop_signal,
+                   "sweeps": payload})
         return
     for item in payload:
         received = sum(1 for r in item["channels"] if r["received"])
         click.echo(
-            f"{item['recording']}: sweep {item['sweep_id']} ({item['configuration']}, {item['input']}): "
+            f"{plain_text(item['recording'])}: sweep {item['sweep_id']} ({plain_text(item['configuration'])}, "
+            f"{item['input']}): "
             f"{len(item['channels'])} channels measured, {received} received, "
             f"{len(item['uncovered_hz'])} of band '{plan_band.name}' not covered by the recording"
         )
         if not quiet:
-            print_table(channel_rows_table(item["channels"], f"Recording {item['recording']}"))
+            print_table(channel_rows_table(item["channels"], f"Recording {terminal_label(item['recording'])}"))
+    if summary.status == "stopped":
+        click.echo(summary.line())

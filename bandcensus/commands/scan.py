@@ -22,6 +22,7 @@ from survey.errors import ScheduleError
 from survey.records import INPUT_KINDS, RunInfo, SweepSettings
 from survey.schedule import ScheduleProgress, StopRequest, parse_duration_s, parse_until, run_schedule
 from survey.store import SurveyStore
+from survey.text import plain_text
 from survey.watchdog import WatchdogSettings, WatchedSource
 
 
@@ -85,14 +86,14 @@ class _Reporter:
             floor = "n/a" if p.noise_floor_dbfs_hz is None else f"{p.noise_floor_dbfs_hz:.1f} dBFS/Hz"
             nxt = f", next in {p.next_sweep_in_s:.0f} s" if p.next_sweep_in_s else ""
             self._clear()
-            self.console.print(f"sweep {p.sweep_number}{total} [{p.configuration}] took {p.last_sweep_s:.1f} s; "
+            self.console.print(f"sweep {p.sweep_number}{total} [{plain_text(p.configuration)}] took {p.last_sweep_s:.1f} s; "
                                f"floor {floor}; strongest {strongest}; elapsed {p.elapsed_s:.0f} s{left}{nxt}")
         elif p.event == "gap":
             self._clear()
-            self.console.print(f"receiver fault: sweep [{p.configuration}] dropped, receiver reopened "
+            self.console.print(f"receiver fault: sweep [{plain_text(p.configuration)}] dropped, receiver reopened "
                                f"({p.gaps} so far)")
         elif self.live and p.event == "hop":
-            self._show(f"sweep {p.sweep_number}{total} [{p.configuration}] hop {p.hop_index + 1}/{p.n_hops}, "
+            self._show(f"sweep {p.sweep_number}{total} [{plain_text(p.configuration)}] hop {p.hop_index + 1}/{p.n_hops}, "
                        f"elapsed {p.elapsed_s:.0f} s{left}")
         elif self.live and p.event == "wait":
             self._show(f"next sweep in {p.next_sweep_in_s:.0f} s{left}")

@@ -10,11 +10,12 @@ from bandcensus import __version__
 from bandcensus.commands._common import db_option, echo_json, json_option
 from survey.bandplan import parse_band
 from survey.records import RunInfo, SweepSettings
-from survey.runner import record_sweep
 from survey.scene import SIM_INPUTS, load_scene
+from survey.session import CaptureSession
 from survey.sources.simulated import SimulatedSource
 from survey.store import SurveyStore
 from survey.sweep import plan_for_source
+from survey.text import plain_text, terminal_label
 
 _UNITS_S = {"": 1.0, "s": 1.0, "m": 60.0, "min": 60.0, "h": 3600.0}
 
@@ -89,59 +90,62 @@ def command(scene_path, db_path, configuration, input_kind, sweeps, every, alter
               "description": f"SIMULATED sweep of scene '{scene.name}' (invented stations), seed {seed}"}
     store = SurveyStore(db_path)
     done = []
+    info = RunInfo(
+        source_kind="simulated", device=device, tool_version=__version__,
+        settings={"scene": str(scene_path), "band": band, "dwell_s": settings.dwell_s, "every_s": interval_s,
+                  "configurations": labels, "input": input_kind, "sweeps": sweeps,
+                  "sample_rate_hz": source.sample_rate_hz},
+        seed=int(seed), notes="SIMULATED",
+    )
     try:
-        run_id = store.begin_run(RunInfo(
-            source_kind="simulated", device=device, tool_version=__version__,
-            settings={"scene": str(scene_path), "band": band, "dwell_s": settings.dwell_s, "every_s": interval_s,
-                      "configurations": labels, "input": input_kind, "sweeps": sweeps,
-                      "sample_rate_hz": source.sample_rate_hz},
-            seed=int(seed), notes="SIMULATED",
-        ))
-        status = "failed"
-        try:
+        with CaptureSession(store, info, keep_iq_dirs=[keep_iq]) as session:
+            run_id = session.run_id
             with _progress(not as_json) as progress:
                 task = progress.add_task("sweep", total=sweeps)
                 for k in range(sweeps):
+                    if session.stopped:
+                        break
                     label = labels[k % len(labels)]
                     source.set_chain(label, input_kind)
-                    progress.update(task, description=f"sweep {k + 1} of {sweeps} ({label}, {input_kind})")
+                    progress.update(task, description=f"sweep {k + 1} of {sweeps} ({terminal_label(label)}, {input_kind})")
                     start_s = source.time_s
-                    outcome = record_sweep(store, run_id, source, plan, settings, label, input_kind,
-                                           keep_iq_dir=keep_iq, recording_fields=fields)
+                    outcome = session.record(source, plan, settings, label, input_kind,
+                                             keep_iq_dir=keep_iq, recording_fields=fields)
                     done.append(outcome)
                     progress.advance(task)
                     if k + 1 < sweeps:
                         source.advance(max(0.0, interval_s - (source.time_s - start_s)))
-            status = "finished"
-        except KeyboardInterrupt:
-            status = "stopped"
-            raise
-        finally:
-            store.end_run(run_id, status)
     finally:
         store.close()
         source.close()
+    summary = session.summary()
     rows = [
         {"sweep_id": o.sweep_id, "configuration": o.result.configuration, "input": o.result.input,
          "started_utc": o.result.started_utc, "channels": len(o.result.channels),
          "received": sum(1 for c in o.result.channels if c.received),
          "max_clip_fraction": max((h.clip_fraction or 0.0) for h in o.result.hops) if o.result.hops else None,
+         "complete": bool(o.result.complete),
          "recording": None if o.recording_path is None else str(o.recording_path)}
         for o in done
     ]
     if as_json:
-        echo_json({"run_id": run_id, "scene": scene.name, "seed": int(seed), "simulated": True, "sweeps": rows})
+        echo_json({"run_id": run_id, "scene": scene.name, "seed": int(seed), "simulated": True,
+                   "status": summary.status, "stop_signal": summary.stop_signal, "sweeps": rows})
         return
-    click.echo(f"SIMULATED scene '{scene.name}', seed {seed}: run {run_id}, {len(rows)} sweep(s) of "
+    click.echo(f"SIMULATED scene '{plain_text(scene.name)}', seed {seed}: run {run_id}, {len(rows)} sweep(s) of "
                f"{len(plan.hops)} hops into {db_path}")
     for r in rows:
-        line = (f"  sweep {r['sweep_id']} {r['started_utc']} {r['configuration']}/{r['input']}: "
+        line = (f"  sweep {r['sweep_id']} {r['started_utc']} {plain_text(r['configuration'])}/{r['input']}: "
                 f"{r['received']} of {r['channels']} channels received")
         if r["max_clip_fraction"]:
             line += f", clipping up to {100 * r['max_clip_fraction']:.3f} % of samples"
         if r["recording"]:
             line += f" -> {r['recording']}"
+        if not r["complete"]:
+            line += " (incomplete: stopped)"
         click.echo(line)
+    if summary.status == "stopped":
+        click.echo(summary.line())
 
 
 __all__ = ["command", "parse_interval_s"]
