@@ -14,6 +14,7 @@ from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 
 from analysis.noise_workflow import NoiseResult
+from survey.text import plot_label
 from analysis.outside_noise import ENVIRONMENTS, decile_fa_db, median_fa_db
 
 # Dark to light so that greyscale keeps them apart; each also has its own marker / dash.
@@ -64,8 +65,8 @@ def plot_noise(result: NoiseResult, path: str | Path, dpi: int = 120) -> Path:
             ax_nf.fill_between(f_mhz, y - u, y + u, color=colour, alpha=0.18, linewidth=0,
                                label="preamp NF ±1 standard uncertainty")
     ax_nf.set_ylabel("noise figure (dB)")
-    ax_nf.set_title(f"Noise figure: '{result.receiver}' and '{result.system}'" if result.system
-                    else f"Noise figure: '{result.receiver}'")
+    ax_nf.set_title(f"Noise figure: '{plot_label(result.receiver)}' and '{plot_label(result.system)}'"
+                    if result.system else f"Noise figure: '{plot_label(result.receiver)}'")
     ax_nf.grid(True, color="#dddddd")
     if plotted:
         ax_nf.legend(fontsize="small")

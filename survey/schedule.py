@@ -51,12 +51,20 @@ _DURATION = re.compile(r"(\d+(?:\.\d+)?)\s*([hms])", re.IGNORECASE)
 _SCALE = {"h": 3600.0, "m": 60.0, "s": 1.0}
 
 
+#: Longest duration or interval accepted (one year): longer ones are typing mistakes.
+MAX_DURATION_S = 366 * 86400.0
+
+
 def parse_duration_s(text: str, option: str = "--for") -> float:
     """Parse ``8h``, ``5m``, ``90s``, ``1h30m`` or ``2.5h`` into seconds (> 0)."""
     s = str(text).strip().replace(" ", "")
     if not s or _DURATION.sub("", s):
-        raise ScheduleError(f"{option} {text!r} is not a duration; write e.g. 8h, 5m, 90s or 1h30m")
+        shown = str(text) if len(str(text)) <= 40 else str(text)[:37] + "..."
+        raise ScheduleError(f"{option} {shown!r} is not a duration; write e.g. 8h, 5m, 90s or 1h30m")
     total = sum(float(v) * _SCALE[u.lower()] for v, u in _DURATION.findall(s))
+    if not total <= MAX_DURATION_S:
+        shown = s if len(s) <= 40 else s[:37] + "..."
+        raise ScheduleError(f"{option} {shown!r} is longer than a year; give at most 366 days (e.g. 720h for 30 days)")
     if total <= 0:
         raise ScheduleError(f"{option} {text!r} is zero; give a positive duration")
     return total

@@ -16,7 +16,7 @@ from datetime import datetime
 import click
 
 from bandcensus import __version__
-from bandcensus.commands._common import db_option
+from bandcensus.commands._common import FiniteFloat, db_option
 from survey.bandplan import parse_band
 from survey.errors import ScheduleError
 from survey.records import INPUT_KINDS, RunInfo, SweepSettings
@@ -55,10 +55,11 @@ def _factory(device, sample_rate_hz, gain_db, ppm, settle_s, simulate_scene, sou
         except (ImportError, AttributeError) as exc:
             raise click.BadParameter(f"cannot import {source_factory!r}: {exc}", param_hint="--source-factory")
     if simulate_scene:
-        from survey.scene import load_scene
         from survey.sources.simulated import SimulatedSource
 
-        scene = load_scene(simulate_scene)
+        from bandcensus.commands.simulate import load_scene_file
+
+        scene = load_scene_file(simulate_scene)
         configuration = label if label in scene.configurations else "bare"
         return functools.partial(SimulatedSource, scene, configuration, input_kind, seed,
                                  sample_rate_hz=sample_rate_hz, settle_s=settle_s), "simulated"
@@ -120,12 +121,12 @@ class _Reporter:
               help="What the receiver input sees.")
 @click.option("--band", default="europe", show_default=True,
               help="Band plan: europe, americas, japan[:UPPER_MHZ], oirt or custom:START-STOP:RASTER_KHZ.")
-@click.option("--gain-db", type=float, help="Manual tuner gain in dB (one of the tuner's steps; "
+@click.option("--gain-db", type=FiniteFloat(-20.0, 100.0), help="Manual tuner gain in dB (one of the tuner's steps; "
               "'bandcensus devices' lists them). Default: tuner AGC, not recommended for measurements.")
-@click.option("--ppm", default=0, show_default=True, type=int, help="Frequency correction, whole ppm.")
-@click.option("--sample-rate", "sample_rate", default=2.4, show_default=True, type=float,
+@click.option("--ppm", default=0, show_default=True, type=click.IntRange(-1000, 1000), help="Frequency correction, whole ppm.")
+@click.option("--sample-rate", "sample_rate", default=2.4, show_default=True, type=FiniteFloat(0.2, 3.2e6),
               help="Sample rate in MS/s (or in Hz when 100000 or more).")
-@click.option("--dwell-ms", default=100.0, show_default=True, type=click.FloatRange(min=0.5),
+@click.option("--dwell-ms", default=100.0, show_default=True, type=FiniteFloat(0.5, 10_000.0),
               help="Samples measured per hop, milliseconds.")
 @click.option("--settle-ms", default=20.0, show_default=True, type=click.FloatRange(min=0.0),
               help="Samples discarded after each retune, milliseconds (at least 32768 samples are).")

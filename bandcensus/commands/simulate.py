@@ -7,10 +7,11 @@ import re
 import click
 
 from bandcensus import __version__
-from bandcensus.commands._common import db_option, echo_json, json_option
+from bandcensus.commands._common import FiniteFloat, db_option, echo_json, json_option, seed_type
 from survey.bandplan import parse_band
 from survey.records import RunInfo, SweepSettings
-from survey.scene import SIM_INPUTS, load_scene
+from survey.errors import SceneError
+from survey.scene import SIM_INPUTS, Scene, load_scene
 from survey.session import CaptureSession
 from survey.sources.simulated import SimulatedSource
 from survey.store import SurveyStore
@@ -20,12 +21,39 @@ from survey.text import plain_text, terminal_label
 _UNITS_S = {"": 1.0, "s": 1.0, "m": 60.0, "min": 60.0, "h": 3600.0}
 
 
+#: Longest interval accepted (one year): longer ones are typing mistakes and overflow clocks.
+MAX_INTERVAL_S = 366 * 86400.0
+
+
 def parse_interval_s(text: str) -> float:
     """``"60s"``, ``"5m"``, ``"1h"`` or ``"90"`` (seconds) to seconds; click.BadParameter otherwise."""
-    m = re.fullmatch(r"\s*([0-9]*\.?[0-9]+)\s*(s|m|min|h)?\s*", str(text))
+    m = re.fullmatch(r"\s*([0-9]*\.?[0-9]+)\s*(s|m|min|h)?\s*", str(text)[:100])
     if not m:
-        raise click.BadParameter(f"expected a duration such as 60s, 5m or 1h, got {text!r}", param_hint="--every")
-    return float(m.group(1)) * _UNITS_S[m.group(2) or ""]
+        shown = str(text) if len(str(text)) <= 40 else str(text)[:37] + "..."
+        raise click.BadParameter(f"expected a duration such as 60s, 5m or 1h, got {shown!r}", param_hint="--every")
+    seconds = float(m.group(1)) * _UNITS_S[m.group(2) or ""]
+    if not seconds <= MAX_INTERVAL_S:
+        raise click.BadParameter(f"{m.group(0).strip()[:40]} is longer than a year; give at most 366 days",
+                                 param_hint="--every")
+    return seconds
+
+
+def load_scene_file(path: str) -> "Scene":
+    """Load a scene file, refusing one that is not text (binary data) with a one-line SceneError."""
+    try:
+        with open(path, "rb") as fh:
+            head = fh.read(1 << 20)
+    except OSError as exc:
+        raise SceneError(f"{path}: cannot read the scene file ({exc.strerror}); check the path") from None
+    try:
+        head.decode("utf-8")
+    except UnicodeDecodeError as exc:
+        if exc.start < len(head) - 4:  # not just a character cut at the 1 MiB boundary
+            raise SceneError(f"{path} is not a text scene file (binary data at byte {exc.start}); "
+                             "give a scene .toml file such as recordings_demo/quorrelby_hill.toml") from None
+    if b"\0" in head:
+        raise SceneError(f"{path} is not a text scene file (NUL bytes); give a scene .toml file") from None
+    return load_scene(path)
 
 
 def _progress(enabled: bool):
@@ -48,10 +76,10 @@ def _progress(enabled: bool):
 @click.option("--every", "every", default="60s", show_default=True,
               help="Simulated time from one sweep start to the next (e.g. 60s, 5m, 1h).")
 @click.option("--alternate", help="Alternate configurations sweep by sweep, e.g. bare,preamp-peaked.")
-@click.option("--seed", default=0, show_default=True, type=int, help="Random seed (recorded with the run).")
+@click.option("--seed", default=0, show_default=True, type=seed_type, help="Random seed (recorded with the run).")
 @click.option("--band", default="europe", show_default=True,
               help="Band plan: europe, americas, japan[:UPPER_MHZ], oirt or custom:START-STOP:RASTER_KHZ.")
-@click.option("--dwell-ms", default=100.0, show_default=True, type=click.FloatRange(min=0.5),
+@click.option("--dwell-ms", default=100.0, show_default=True, type=FiniteFloat(0.5, 10_000.0),
               help="Samples measured per hop, in milliseconds.")
 @click.option("--keep-iq", "keep_iq", type=click.Path(file_okay=False),
               help="Keep each sweep's IQ as a SigMF recording in this folder.")
@@ -65,7 +93,7 @@ def command(scene_path, db_path, configuration, input_kind, sweeps, every, alter
     configuration, or --alternate A,B to switch between them sweep by sweep (A/B pairs).
     """
     interval_s = parse_interval_s(every)
-    scene = load_scene(scene_path)
+    scene = load_scene_file(scene_path)
     if alternate:
         labels = [a.strip() for a in alternate.split(",") if a.strip()]
         if len(labels) < 2:

@@ -99,6 +99,7 @@ def normalize_utc(text: str) -> str:
 
 
 def _utc_plus(utc: str, seconds: float) -> str:
+    """``utc`` plus ``seconds``; OverflowError past the years 1-9999 (the checks at opening catch it)."""
     dt = datetime.strptime(utc, _UTC_FORMAT).replace(tzinfo=timezone.utc)
     return (dt + timedelta(seconds=seconds)).strftime(_UTC_FORMAT)
 
@@ -113,6 +114,20 @@ class _Capture:
     n_samples: int
     started_utc: str
     time_source: str
+
+
+#: Plausible ranges of our namespace's numeric labels (a ppm beyond 1000 is not a receiver's
+#: error but a damaged file; seeds are stored as SQLite INTEGER).
+_LABEL_RANGES = {"ppm": (-1000, 1000), "seed": (0, 2**63 - 1), "gain_db": (-20.0, 100.0),
+                 "channel_bw_hz": (1.0, 1e8)}
+
+
+_KIND_NAMES = {str: "text", int: "an integer", float: "a number"}
+
+
+def _short(value: object) -> str:
+    text = repr(value)
+    return text if len(text) <= 40 else text[:37] + "..."
 
 
 def _resolve(path: Path) -> tuple[str, Path]:
@@ -138,6 +153,11 @@ def _resolve(path: Path) -> tuple[str, Path]:
 def _load_json(raw: bytes, where: Path) -> dict:
     try:
         meta = json.loads(raw.decode("utf-8"))
+    except RecursionError:
+        raise RecordingError(
+            f"{where}: metadata is nested too deeply to read (thousands of levels of JSON); "
+            "give the .sigmf-meta file of a SigMF recording"
+        ) from None
     except (UnicodeDecodeError, ValueError) as exc:
         raise RecordingError(
             f"{where}: metadata is not JSON ({exc}); give the .sigmf-meta file of a SigMF recording"
@@ -425,8 +445,15 @@ class RecordingSource:
             )
             if not ok:
                 raise RecordingError(
-                    f"{self.path}: {NAMESPACE}:{key} is {value!r}, expected a {kind.__name__}; fix or remove it"
+                    f"{self.path}: {NAMESPACE}:{key} is {_short(value)}, expected {_KIND_NAMES[kind]}; fix or remove it"
                 )
+            if value is not None and key in _LABEL_RANGES:
+                low, high = _LABEL_RANGES[key]
+                if not (math.isfinite(float(value)) and low <= value <= high):
+                    raise RecordingError(
+                        f"{self.path}: {NAMESPACE}:{key} is {_short(value)}, outside {low:g} to {high:g}; "
+                        "fix or remove it"
+                    )
             out[key] = None if value is None else kind(value)
         return out
 
@@ -525,8 +552,16 @@ def open_recording(path: str | os.PathLike, *, skip_checksum: bool = False) -> R
     verify = not skip_checksum and sigmf.SHA512_KEY in meta["global"]
     sf = _open_with_sigmf(where, verify)
     data_offset = int(getattr(sf, "data_offset", 0) or 0)
-    times = _capture_times(meta, starts, n_total, rate, data_path, where)
     ends = starts[1:] + [n_total]
+    try:
+        times = _capture_times(meta, starts, n_total, rate, data_path, where)
+        for (utc, _), start, end in zip(times, starts, ends):
+            _utc_plus(utc, (end - start) / rate)  # every sample's time must be a date
+    except (OverflowError, ValueError) as exc:
+        raise RecordingError(
+            f"{where}: a capture's time runs outside the calendar ({exc}); fix core:datetime "
+            "(e.g. 2025-01-31T12:00:00.000Z)"
+        ) from None
     captures = tuple(
         _Capture(k, centers[k], starts[k], ends[k] - starts[k], times[k][0], times[k][1])
         for k in range(len(starts))
