@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import re
+from pathlib import Path
 
 import click
 
@@ -40,6 +41,8 @@ def parse_interval_s(text: str) -> float:
 
 def load_scene_file(path: str) -> "Scene":
     """Load a scene file, refusing one that is not text (binary data) with a one-line SceneError."""
+    if not Path(path).is_file():
+        return load_scene(path)  # its own message for a missing file or a folder
     try:
         with open(path, "rb") as fh:
             head = fh.read(1 << 20)
