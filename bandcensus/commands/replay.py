@@ -11,12 +11,24 @@ from bandcensus.commands._common import db_option, echo_json, json_option
 from bandcensus.commands._tables import channel_rows_table, print_table
 from survey.bandplan import parse_band
 from survey.records import INPUT_KINDS, RunInfo, SweepSettings
-from survey.errors import SurveyError
+from survey.errors import RecordingError, SurveyError
 from survey.session import CaptureSession
 from survey.sources.recording import open_recording
 from survey.store import SurveyStore
 from survey.sweep import plan_for_source
 from survey.text import plain_text, terminal_label
+
+
+def _open_with_progress(path: str, quiet: bool):
+    """Open a recording; show the pass over its data (checksum, sample check) when it is large."""
+    from rich.console import Console
+    from rich.progress import BarColumn, DownloadColumn, Progress, TextColumn
+
+    console = Console(stderr=True)
+    with Progress(TextColumn("checking {task.description}"), BarColumn(), DownloadColumn(), console=console,
+                  transient=True, disable=quiet or not console.is_terminal) as bar:
+        task = bar.add_task(terminal_label(path), total=None)
+        return open_recording(path, progress=lambda done, total: bar.update(task, completed=done, total=total))
 
 
 @click.command("replay")
@@ -46,10 +58,13 @@ def command(recordings, db_path, configuration, input_kind, band, channel_bw_khz
     whole bandwidth a capture covers is measured; the rest are listed as not covered.
     """
     plan_band = parse_band(band)
-    # Open (and so validate) every recording before anything is written.
-    sources = [open_recording(path) for path in recordings]
+    # Open (and so validate: metadata, checksum, finite samples, FFT fill) every recording
+    # before anything is written.
+    sources = [_open_with_progress(path, quiet or as_json) for path in recordings]
     jobs = []
+    warnings_out = []
     for path, source in zip(recordings, sources):
+        warnings_out.extend(source.check_fft(fft_size))
         labels = source.metadata_labels()
         cfg = configuration or labels.get("configuration")
         if not cfg:
@@ -71,6 +86,8 @@ def command(recordings, db_path, configuration, input_kind, band, channel_bw_khz
         )
         plan = plan_for_source(plan_band, source, settings)
         jobs.append((path, source, cfg, inp, settings, plan))
+    for text in warnings_out:
+        click.echo(f"Warning: {plain_text(text)}", err=True)
 
     info = RunInfo(
         source_kind="recording",
@@ -90,12 +107,14 @@ def command(recordings, db_path, configuration, input_kind, band, channel_bw_khz
                 if session.stopped:
                     break
                 try:
-                    outcome = session.record(source, plan, settings, cfg, inp, recording=str(path))
-                except SurveyError as exc:
-                    if str(path) in str(exc):
-                        raise
-                    done = f"; the {len(summaries)} earlier recording(s) are stored" if summaries else ""
-                    raise type(exc)(f"{path}: {exc}{done}") from exc
+                    notes = "; ".join(w.split(": ", 1)[1] for w in warnings_out if w.startswith(f"{source.path}:"))
+                    outcome = session.record(source, plan, settings, cfg, inp, recording=str(path), notes=notes)
+                except (SurveyError, OSError) as exc:
+                    done = f"; the sweeps of the {len(summaries)} earlier recording(s) are stored" if summaries else ""
+                    text = str(exc) if isinstance(exc, SurveyError) else (exc.strerror or str(exc))
+                    if str(path) not in text:
+                        text = f"{path}: {text}"
+                    raise (type(exc) if isinstance(exc, SurveyError) else RecordingError)(f"{text}{done}") from exc
                 summaries.append((path, outcome, plan))
                 source.close()
     finally:
@@ -111,7 +130,8 @@ def command(recordings, db_path, configuration, input_kind, band, channel_bw_khz
              "cn_db": c.cn_db, "received": c.received, "sweeps": 1}
             for c in sorted(outcome.result.channels, key=lambda c: c.freq_hz)
         ]
-        payload.append({"recording": str(path), "sweep_id": outcome.sweep_id,
+        payload.append({"recording": str(path), "sweep_id": outcome.sweep_id, "complete": outcome.result.complete,
+                        "no_signal": bool(outcome.no_signal_hops), "notes": outcome.result.notes,
                         "configuration": outcome.result.configuration, "input": outcome.result.input,
                         "channels": rows, "uncovered_hz": list(plan.uncovered_hz)})
     if as_json:
@@ -120,6 +140,9 @@ def command(recordings, db_path, configuration, input_kind, band, channel_bw_khz
         return
     for item in payload:
         received = sum(1 for r in item["channels"] if r["received"])
+        if item["no_signal"]:
+            click.echo(f"{plain_text(item['recording'])}: sweep {item['sweep_id']}: {plain_text(item['notes'])}")
+            continue
         click.echo(
             f"{plain_text(item['recording'])}: sweep {item['sweep_id']} ({plain_text(item['configuration'])}, "
             f"{item['input']}): "

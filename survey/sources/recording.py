@@ -34,6 +34,8 @@ both are errors, and sigmf's warnings are suppressed so that none escapes.
 
 from __future__ import annotations
 
+import bisect
+import hashlib
 import json
 import math
 import os
@@ -355,6 +357,54 @@ def _capture_times(meta: dict, starts: list[int], n_total: int, rate: float, dat
     return out
 
 
+#: Fewer Welch segments than this per capture give a warning with the stated uncertainty
+#: (common practice, no source: below ~8 averages the bin scatter exceeds 1.3 dB).
+FEW_AVERAGES = 8
+#: Bytes read at a time by the checksum and sample check (bounded memory whatever the size).
+CHECK_BLOCK_BYTES = 1 << 24
+#: Default most samples measured per capture (hop): longer captures are measured over windows
+#: spread evenly across them (see :meth:`RecordingSource.read`), so memory stays bounded.
+DEFAULT_MAX_HOP_SAMPLES = 1 << 23
+
+
+def _stream_check(where: Path, data_path: Path, data_offset: int, data_bytes: int, datatype: str,
+                  expected_sha512: str | None, starts: list[int], progress=None) -> None:
+    """One pass over the data in blocks: SHA-512 (when expected) and, for float data, every
+    sample finite. Memory: one block. ``progress(done_bytes, total_bytes)`` after each block."""
+    digest = hashlib.sha512() if expected_sha512 else None
+    floating = COMPONENT_DTYPES[datatype].kind == "f"
+    if digest is None and not floating:
+        return
+    sample_bytes = 2 * COMPONENT_DTYPES[datatype].itemsize
+    done = 0
+    with open(data_path, "rb") as fh:
+        fh.seek(data_offset)
+        while done < data_bytes:
+            buf = fh.read(min(CHECK_BLOCK_BYTES, data_bytes - done))
+            if not buf:
+                raise RecordingError(f"{where}: data ends after {done} of {data_bytes} bytes; re-copy the recording")
+            if digest is not None:
+                digest.update(buf)
+            if floating:
+                values = np.frombuffer(buf, dtype=COMPONENT_DTYPES[datatype])
+                finite = np.isfinite(values)
+                if not finite.all():
+                    sample = (done + int(np.argmin(finite)) * values.itemsize) // sample_bytes
+                    capture = max(0, bisect.bisect_right(starts, sample) - 1)
+                    raise RecordingError(
+                        f"{where}: sample {sample} (capture {capture}) is NaN or infinite, so no power can be "
+                        "measured; cut the damaged part out of the recording or record again"
+                    )
+            done += len(buf)
+            if progress is not None:
+                progress(done, data_bytes)
+    if digest is not None and digest.hexdigest() != str(expected_sha512).lower():
+        raise RecordingError(
+            f"{where}: checksum (core:sha512) does not match the data; the data was altered or cut "
+            "short: re-copy the recording"
+        )
+
+
 class RecordingSource:
     """A SigMF recording replayed hop by hop through the :class:`~survey.sources.base.IQSource` protocol.
 
@@ -367,8 +417,11 @@ class RecordingSource:
     kind = "recording"
 
     def __init__(self, path: Path, data_path: Path, data_offset: int, datatype: str, sample_rate_hz: float,
-                 captures: tuple[_Capture, ...], meta: dict, checksum_verified: bool, container: str):
+                 captures: tuple[_Capture, ...], meta: dict, checksum_verified: bool, container: str,
+                 max_hop_samples: int = DEFAULT_MAX_HOP_SAMPLES, window_samples: int = 1 << 17):
         self.path = path
+        self.max_hop_samples = int(max_hop_samples)
+        self.window_samples = int(window_samples)
         self._data_path = data_path
         self._datatype = datatype
         self._rate = sample_rate_hz
@@ -408,6 +461,44 @@ class RecordingSource:
     def capture_lengths(self) -> tuple[int, ...]:
         """Number of complex samples in each capture, in capture order."""
         return tuple(c.n_samples for c in self._captures)
+
+    def check_fft(self, fft_size: int, few_averages: int = FEW_AVERAGES) -> list[str]:
+        """Check that every capture can fill the FFT; return warnings for captures with few averages.
+
+        Raises :class:`RecordingError` naming the capture and the largest FFT size that fits
+        ("the recording holds 2048 samples; use --fft-size 1024 or less" style). A capture
+        giving fewer than ``few_averages`` Welch segments is measured, with a warning that
+        states the scatter of each spectrum bin: a Welch average of ``K_eff`` independent
+        periodograms of Gaussian noise is ``S chi2(2 K_eff) / (2 K_eff)`` [Welch 1967], so one
+        standard deviation is ``10 log10(1 + 1/sqrt(K_eff))`` dB.
+        """
+        from survey.dsp import welch_effective_averages
+
+        warnings_out = []
+        fft_size = int(fft_size)
+        for cap in self._captures:
+            n = min(cap.n_samples, self.max_hop_samples)
+            if n < fft_size:
+                fits = 1 << (max(n, 1).bit_length() - 1)
+                if fits < 64:
+                    raise RecordingError(
+                        f"{self.path}: capture {cap.index} holds only {n} samples, too few to measure "
+                        "(at least 64); remove that capture from the metadata"
+                    )
+                raise RecordingError(
+                    f"{self.path}: capture {cap.index} holds {n} samples; use --fft-size {fits} or less"
+                )
+            segments = 1 + (n - fft_size) // max(1, fft_size // 2)
+            if segments < few_averages:
+                k_eff = welch_effective_averages(n, fft_size)
+                sigma_db = 10.0 * math.log10(1.0 + 1.0 / math.sqrt(k_eff))
+                smaller = max(64, fft_size // 4)
+                warnings_out.append(
+                    f"{self.path}: capture {cap.index} gives only {segments} FFT averages at fft size {fft_size}: "
+                    f"each spectrum bin scatters by about {sigma_db:.1f} dB (1 sigma), so P and N are uncertain; "
+                    f"use --fft-size {smaller} for more averages"
+                )
+        return warnings_out
 
     def describe(self) -> dict:
         """File description for the ``runs`` table (JSON-serialisable)."""
@@ -472,10 +563,17 @@ class RecordingSource:
         )
 
     def read(self, n_samples: int | None) -> IQBlock:
-        """Raw samples of the selected capture, in its native datatype (no copy).
+        """Raw samples of the selected capture, in its native datatype.
 
         ``None`` gives the rest of the capture (all of it after ``tune``); an int gives the next
         ``n_samples`` and raises :class:`RecordingError` if the capture has fewer left.
+        Memory stays bounded whatever the capture's length: a request longer than
+        ``max_hop_samples`` returns that many samples taken as equal windows of
+        ``window_samples`` spread evenly over the requested span (a copy; shorter requests
+        are memory-mapped views). Welch segments that straddle two windows are about
+        ``fft_size / window_samples`` of all (under 2 % at the defaults) and only see a phase
+        step, so the averaged PSD level is unchanged for noise and stations (common practice,
+        no source).
         """
         if self._map is None:
             raise RecordingError(f"{self.path}: recording is closed; open it again")
@@ -490,12 +588,21 @@ class RecordingSource:
             if n <= 0 or n > left:
                 raise RecordingError(
                     f"{self.path}: capture {cap.index} has {left} samples left but {n} were asked for; "
-                    "shorten the dwell or read the whole capture"
+                    "read the whole capture or a shorter part"
                 )
         first = cap.start_sample + self._position
-        raw = np.asarray(self._map[2 * first: 2 * (first + n)])
         started = cap.started_utc if self._position == 0 else _utc_plus(cap.started_utc, self._position / self._rate)
         self._position += n
+        if n <= self.max_hop_samples:
+            raw = np.asarray(self._map[2 * first: 2 * (first + n)])
+        else:
+            width = min(self.window_samples, self.max_hop_samples)
+            count = max(1, self.max_hop_samples // width)
+            offsets = np.linspace(0, n - width, count).astype(np.int64)
+            raw = np.empty(2 * width * count, dtype=self._map.dtype)
+            for k, off in enumerate(offsets):
+                a = 2 * (first + int(off))
+                raw[2 * width * k: 2 * width * (k + 1)] = self._map[a: a + 2 * width]
         return IQBlock(center_hz=cap.center_hz, sample_rate_hz=self._rate, datatype=self._datatype,
                        raw=raw, started_utc=started)
 
@@ -510,7 +617,8 @@ class RecordingSource:
         self.close()
 
 
-def open_recording(path: str | os.PathLike, *, skip_checksum: bool = False) -> RecordingSource:
+def open_recording(path: str | os.PathLike, *, skip_checksum: bool = False, progress=None,
+                   max_hop_samples: int = DEFAULT_MAX_HOP_SAMPLES) -> RecordingSource:
     """Open a SigMF recording for replay.
 
     Parameters
@@ -523,6 +631,12 @@ def open_recording(path: str | os.PathLike, *, skip_checksum: bool = False) -> R
         0.06 s without it for 256 MiB (559 captures) on the 2-core test machine, see
         ``tests/benchmarks/bench_recording.py``. A recording without ``core:sha512`` is never
         hashed (there is nothing to compare with).
+    progress : callable, optional
+        ``progress(done_bytes, total_bytes)`` during the pass over the data (checksum and, for
+        float datatypes, the check that every sample is finite; one block of
+        :data:`CHECK_BLOCK_BYTES` in memory at a time).
+    max_hop_samples : int
+        Most samples measured per capture (see :meth:`RecordingSource.read`).
 
     Returns
     -------
@@ -550,8 +664,10 @@ def open_recording(path: str | os.PathLike, *, skip_checksum: bool = False) -> R
     sample_bytes = 2 * COMPONENT_DTYPES[datatype].itemsize
     n_total, starts, centers = _check_layout(meta, where, data_bytes, sample_bytes)
     verify = not skip_checksum and sigmf.SHA512_KEY in meta["global"]
-    sf = _open_with_sigmf(where, verify)
+    sf = _open_with_sigmf(where, False)  # the checksum is computed below, streamed, with progress
     data_offset = int(getattr(sf, "data_offset", 0) or 0)
+    _stream_check(where, data_path, data_offset, data_bytes, datatype,
+                  meta["global"].get(sigmf.SHA512_KEY) if verify else None, starts, progress)
     ends = starts[1:] + [n_total]
     try:
         times = _capture_times(meta, starts, n_total, rate, data_path, where)
@@ -566,4 +682,5 @@ def open_recording(path: str | os.PathLike, *, skip_checksum: bool = False) -> R
         _Capture(k, centers[k], starts[k], ends[k] - starts[k], times[k][0], times[k][1])
         for k in range(len(starts))
     )
-    return RecordingSource(where, data_path, data_offset, datatype, rate, captures, meta, verify, container)
+    return RecordingSource(where, data_path, data_offset, datatype, rate, captures, meta, verify, container,
+                           max_hop_samples=max_hop_samples)
