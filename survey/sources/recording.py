@@ -423,6 +423,7 @@ class RecordingSource:
         self.max_hop_samples = int(max_hop_samples)
         self.window_samples = int(window_samples)
         self._data_path = data_path
+        self._data_offset = int(data_offset)
         self._datatype = datatype
         self._rate = sample_rate_hz
         self._captures = captures
@@ -599,10 +600,16 @@ class RecordingSource:
             width = min(self.window_samples, self.max_hop_samples)
             count = max(1, self.max_hop_samples // width)
             offsets = np.linspace(0, n - width, count).astype(np.int64)
-            raw = np.empty(2 * width * count, dtype=self._map.dtype)
-            for k, off in enumerate(offsets):
-                a = 2 * (first + int(off))
-                raw[2 * width * k: 2 * width * (k + 1)] = self._map[a: a + 2 * width]
+            dtype = self._map.dtype
+            raw = np.empty(2 * width * count, dtype=dtype)
+            # Plain reads, not the memory map: pages of a large file stay out of this process.
+            with open(self._data_path, "rb") as fh:
+                for k, off in enumerate(offsets):
+                    fh.seek(self._data_offset + 2 * (first + int(off)) * dtype.itemsize)
+                    got = fh.readinto(memoryview(raw[2 * width * k: 2 * width * (k + 1)]).cast("B"))
+                    if got != 2 * width * dtype.itemsize:
+                        raise RecordingError(f"{self.path}: data ends early in capture {cap.index}; "
+                                             "re-copy the recording")
         return IQBlock(center_hz=cap.center_hz, sample_rate_hz=self._rate, datatype=self._datatype,
                        raw=raw, started_utc=started)
 
