@@ -7,7 +7,7 @@ import statistics
 import click
 
 from bandcensus import __version__
-from bandcensus.commands._common import db_option, echo_json, json_option
+from bandcensus.commands._common import FiniteFloat, db_option, echo_json, json_option
 from bandcensus.commands._tables import channel_rows_table, print_table
 from survey.bandplan import parse_band
 from survey.records import INPUT_KINDS, RunInfo, SweepSettings
@@ -47,10 +47,13 @@ def _open_with_progress(path: str, quiet: bool):
               help="Half-width in kHz around each capture's centre excluded for the DC spike.")
 @click.option("--fft-size", default=2048, show_default=True, type=click.IntRange(64, 1 << 18),
               help="FFT length of the averaged periodogram.")
+@click.option("--skip-ms", type=FiniteFloat(0.0, 60_000.0),
+              help="Leave out this much of the start of every capture, ms (default: detect a start-up "
+                   "transient and leave it out; 0: keep everything).")
 @click.option("--quiet", is_flag=True, help="Do not print the per-channel table.")
 @json_option
 def command(recordings, db_path, configuration, input_kind, band, channel_bw_khz, usable_fraction,
-            dc_guard_khz, fft_size, quiet, as_json):
+            dc_guard_khz, fft_size, skip_ms, quiet, as_json):
     """Replay SigMF RECORDINGS (one sweep each) into the database at --db.
 
     Any SigMF recording of the band replays: ours (one capture per hop) or a foreign one
@@ -63,7 +66,9 @@ def command(recordings, db_path, configuration, input_kind, band, channel_bw_khz
     sources = [_open_with_progress(path, quiet or as_json) for path in recordings]
     jobs = []
     warnings_out = []
+    notes_by_path: dict[str, list[str]] = {}
     for path, source in zip(recordings, sources):
+        notes_by_path[str(source.path)] = source.skip_start(None if skip_ms is None else skip_ms / 1e3)
         warnings_out.extend(source.check_fft(fft_size))
         labels = source.metadata_labels()
         cfg = configuration or labels.get("configuration")
@@ -107,7 +112,8 @@ def command(recordings, db_path, configuration, input_kind, band, channel_bw_khz
                 if session.stopped:
                     break
                 try:
-                    notes = "; ".join(w.split(": ", 1)[1] for w in warnings_out if w.startswith(f"{source.path}:"))
+                    notes = "; ".join(notes_by_path.get(str(source.path), []) + [
+                        w.split(": ", 1)[1] for w in warnings_out if w.startswith(f"{source.path}:")])
                     outcome = session.record(source, plan, settings, cfg, inp, recording=str(path), notes=notes)
                 except (SurveyError, OSError) as exc:
                     done = f"; the sweeps of the {len(summaries)} earlier recording(s) are stored" if summaries else ""
@@ -149,6 +155,8 @@ def command(recordings, db_path, configuration, input_kind, band, channel_bw_khz
             f"{len(item['channels'])} channels measured, {received} received, "
             f"{len(item['uncovered_hz'])} of band '{plan_band.name}' not covered by the recording"
         )
+        for note in filter(None, str(item["notes"]).split("; ")):
+            click.echo(f"  note: {plain_text(note)}")
         if not quiet:
             print_table(channel_rows_table(item["channels"], f"Recording {terminal_label(item['recording'])}"))
     if summary.status == "stopped":

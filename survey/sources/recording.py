@@ -434,6 +434,7 @@ class RecordingSource:
         n_components = 2 * (captures[-1].start_sample + captures[-1].n_samples)
         self._map: np.ndarray | None = np.memmap(data_path, dtype=dtype, mode="r", offset=data_offset,
                                                  shape=(n_components,))
+        self._skip: dict[int, int] = {}  # capture index -> samples left out at its start
         self._next = 0           # capture index where the next tune() starts looking
         self._current: int | None = None
         self._position = 0       # samples already read from the current capture
@@ -460,8 +461,48 @@ class RecordingSource:
         return len(self._captures)
 
     def capture_lengths(self) -> tuple[int, ...]:
-        """Number of complex samples in each capture, in capture order."""
-        return tuple(c.n_samples for c in self._captures)
+        """Number of complex samples measured in each capture (after any skipped start), in order."""
+        return tuple(c.n_samples - self._skip.get(c.index, 0) for c in self._captures)
+
+    def skip_start(self, skip_s: float | None = None, *, max_opening: int = 1 << 21) -> list[str]:
+        """Leave out each capture's start-up transient; returns one note per capture affected.
+
+        ``skip_s`` None: detect it (:func:`survey.settling.detect_startup_transient` on the
+        first quarter of each capture, at most ``max_opening`` samples); a number: skip that
+        many seconds of every capture (``--skip-ms``), 0 for none. A capture is never skipped
+        below half its length.
+        """
+        from survey.dsp import to_complex64
+        from survey.settling import detect_startup_transient
+
+        if self._map is None:
+            raise RecordingError(f"{self.path}: recording is closed; open it again")
+        notes: list[str] = []
+        self._skip = {}
+        for cap in self._captures:
+            if skip_s is not None:
+                n = int(round(float(skip_s) * self._rate))
+                if n <= 0:
+                    continue
+                if n > cap.n_samples // 2:
+                    raise RecordingError(
+                        f"{self.path}: --skip-ms {1e3 * float(skip_s):g} leaves less than half of capture "
+                        f"{cap.index} ({1e3 * cap.n_samples / self._rate:.1f} ms); skip less"
+                    )
+                self._skip[cap.index] = n
+                notes.append(f"first {1e3 * n / self._rate:.2f} ms of capture {cap.index} skipped by hand")
+                continue
+            opening = min(cap.n_samples // 4, max_opening)
+            raw = np.asarray(self._map[2 * cap.start_sample: 2 * (cap.start_sample + opening)])
+            found = detect_startup_transient(to_complex64(raw, self._datatype))
+            if found is not None:
+                self._skip[cap.index] = found.n_samples
+                notes.append(
+                    f"start-up transient left out of capture {cap.index}: first {found.n_samples} samples "
+                    f"({1e3 * found.n_samples / self._rate:.2f} ms), power off by {found.departure_db:.1f} dB "
+                    f"against a scatter of {found.scatter_db:.2f} dB"
+                )
+        return notes
 
     def check_fft(self, fft_size: int, few_averages: int = FEW_AVERAGES) -> list[str]:
         """Check that every capture can fill the FFT; return warnings for captures with few averages.
@@ -478,7 +519,7 @@ class RecordingSource:
         warnings_out = []
         fft_size = int(fft_size)
         for cap in self._captures:
-            n = min(cap.n_samples, self.max_hop_samples)
+            n = min(cap.n_samples - self._skip.get(cap.index, 0), self.max_hop_samples)
             if n < fft_size:
                 fits = 1 << (max(n, 1).bit_length() - 1)
                 if fits < 64:
@@ -555,7 +596,7 @@ class RecordingSource:
         for step in range(n):
             k = (self._next + step) % n
             if abs(self._captures[k].center_hz - float(center_hz)) <= CENTER_TOLERANCE_HZ:
-                self._current, self._position, self._next = k, 0, k + 1
+                self._current, self._position, self._next = k, self._skip.get(k, 0), k + 1
                 return
         centres = ", ".join(f"{c:.0f}" for c in sorted(set(self.fixed_centers_hz)))
         raise RecordingError(
