@@ -95,6 +95,8 @@ def record_sweep(
     recording_fields: dict | None = None,
     recording: str | None = None,
     notes: str = "",
+    dc_notch_hz: float = 0.0,
+    notch_channels_hz: tuple[int, ...] = (),
 ) -> SweepOutcome:
     """Measure ``plan`` with ``source`` and write the sweep to ``store`` in one transaction.
 
@@ -117,6 +119,8 @@ def record_sweep(
     """
     if keep_spectra is None:
         keep_spectra = True
+    if notch_channels_hz:
+        keep_spectra = True  # the notch works on the hop's spectrum
     sink = None
     if keep_iq_dir is not None:
         from survey.recorder import SweepRecorder  # sigmf is needed only when IQ is kept
@@ -157,6 +161,10 @@ def record_sweep(
         result = replace(result, recording=str(recording))
     if notes:
         result = replace(result, notes="; ".join(n for n in (result.notes, notes) if n))
+    if notch_channels_hz and result.complete:
+        from survey.dc_notch import measure_inside_guard
+
+        result = measure_inside_guard(result, float(dc_notch_hz), notch_channels_hz, settings.received_margin_db)
     result = _without_dead_hops(result, check.constant)
     sweep_id = store.write_sweep(run_id, result, keep_spectra=keep_spectra)
     return SweepOutcome(sweep_id=sweep_id, result=result, recording_path=recording_path,

@@ -19,6 +19,15 @@ from survey.sweep import plan_for_source
 from survey.text import plain_text, terminal_label
 
 
+def inside_guard(plan, source, settings) -> tuple[int, ...]:
+    """Channels left out of a single-capture plan only because they overlap the DC guard."""
+    centre = source.fixed_centers_hz[0]
+    half_usable = settings.usable_fraction * source.sample_rate_hz / 2.0
+    half_bw = settings.channel_bw_hz / 2.0
+    return tuple(int(f) for f in plan.uncovered_hz
+                 if abs(f - centre) + half_bw <= half_usable and abs(f - centre) - half_bw < settings.dc_guard_hz)
+
+
 def _open_with_progress(path: str, quiet: bool):
     """Open a recording; show the pass over its data (checksum, sample check) when it is large."""
     from rich.console import Console
@@ -90,7 +99,10 @@ def command(recordings, db_path, configuration, input_kind, band, channel_bw_khz
             ppm=int(labels.get("ppm") or 0),
         )
         plan = plan_for_source(plan_band, source, settings)
-        jobs.append((path, source, cfg, inp, settings, plan))
+        # One capture cannot be re-tuned away from its DC spike: the channels the plan leaves
+        # out for the guard are measured from a DC-notched spectrum instead of dropped.
+        notch = inside_guard(plan, source, settings) if source.n_captures == 1 and settings.dc_guard_hz > 0 else ()
+        jobs.append((path, source, cfg, inp, settings, plan, notch))
     for text in warnings_out:
         click.echo(f"Warning: {plain_text(text)}", err=True)
 
@@ -108,13 +120,14 @@ def command(recordings, db_path, configuration, input_kind, band, channel_bw_khz
     try:
         with CaptureSession(store, info) as session:
             run_id = session.run_id
-            for path, source, cfg, inp, settings, plan in jobs:
+            for path, source, cfg, inp, settings, plan, notch in jobs:
                 if session.stopped:
                     break
                 try:
                     notes = "; ".join(notes_by_path.get(str(source.path), []) + [
                         w.split(": ", 1)[1] for w in warnings_out if w.startswith(f"{source.path}:")])
-                    outcome = session.record(source, plan, settings, cfg, inp, recording=str(path), notes=notes)
+                    outcome = session.record(source, plan, settings, cfg, inp, recording=str(path), notes=notes,
+                                             dc_notch_hz=settings.dc_guard_hz, notch_channels_hz=notch)
                 except (SurveyError, OSError) as exc:
                     done = f"; the sweeps of the {len(summaries)} earlier recording(s) are stored" if summaries else ""
                     text = str(exc) if isinstance(exc, SurveyError) else (exc.strerror or str(exc))
@@ -139,7 +152,7 @@ def command(recordings, db_path, configuration, input_kind, band, channel_bw_khz
         payload.append({"recording": str(path), "sweep_id": outcome.sweep_id, "complete": outcome.result.complete,
                         "no_signal": bool(outcome.no_signal_hops), "notes": outcome.result.notes,
                         "configuration": outcome.result.configuration, "input": outcome.result.input,
-                        "channels": rows, "uncovered_hz": list(plan.uncovered_hz)})
+                        "channels": rows, "uncovered_hz": sorted(set(plan.uncovered_hz) - {r["freq_hz"] for r in rows})})
     if as_json:
         echo_json({"run_id": run_id, "status": summary.status, "stop_signal": summary.stop_signal,
                    "sweeps": payload})
