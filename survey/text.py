@@ -19,11 +19,15 @@ from __future__ import annotations
 import re
 
 _CONTROLS = re.compile("[\x00-\x1f\x7f-\x9f]")
+_CONTROLS_BUT_LAYOUT = re.compile("[\x00-\x08\x0b\x0c\x0e-\x1f\x7f-\x9f]")
 
 
-def plain_text(text: object) -> str:
-    """``text`` as a string with every C0/C1 control character replaced by ``?``."""
-    return _CONTROLS.sub("?", str(text))
+def plain_text(text: object, keep_layout: bool = False) -> str:
+    """``text`` as a string with every C0/C1 control character replaced by ``?``.
+
+    ``keep_layout`` keeps tab, line feed and carriage return (for multi-line text in HTML).
+    """
+    return (_CONTROLS_BUT_LAYOUT if keep_layout else _CONTROLS).sub("?", str(text))
 
 
 def terminal_label(text: object) -> str:
@@ -39,10 +43,11 @@ def plot_label(text: object) -> str:
 
 
 def html_label(text: object) -> str:
-    """``text`` safe inside HTML text or an attribute value: no control characters, escaped."""
+    """``text`` safe inside HTML text or an attribute value: no control characters (tab and line
+    breaks kept), ``&<>"'`` escaped."""
     import html
 
-    return html.escape(plain_text(text), quote=True)
+    return html.escape(plain_text(text, keep_layout=True), quote=True)
 
 
 __all__ = ["html_label", "plain_text", "plot_label", "terminal_label"]

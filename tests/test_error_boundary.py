@@ -280,3 +280,9 @@ def test_leftovers_of_a_cut_off_output_are_removed(tmp_path):
     os.utime(old_png, (started - 3600, started - 3600))
     _remove_leftovers(["report", "--out", str(report), "--plot", str(empty_png), f"--x={old_png}"], started)
     assert not part.exists() and not empty_png.exists() and old_png.exists()
+
+
+def test_html_label_escapes_and_drops_controls():
+    from survey.text import html_label
+
+    assert html_label('<b a="1">\x1b[31m</b>\nx') == "&lt;b a=&quot;1&quot;&gt;?[31m&lt;/b&gt;\nx"
