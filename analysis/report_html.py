@@ -12,7 +12,6 @@ every page, figures are kept whole, and nothing is hidden.
 
 from __future__ import annotations
 
-import html
 import os
 import time
 from dataclasses import dataclass
