@@ -165,3 +165,12 @@ def test_long_capture_read_in_bounded_windows(tmp_path):
     short = open_recording(meta)
     short.tune(98e6)
     assert short.read(None).raw.size == 2 * n  # below the bound: the whole capture, as before
+
+
+def test_clipping_of_float_captures_is_reported(tmp_path, capsys):
+    raw = _noise_cf32(100_000)
+    raw[::50][:3600] = 1.0  # 1.8 % of the values at the +1.0 rail, spread over the capture
+    meta = write_foreign(tmp_path, "clip", "cf32_le", [{"core:sample_start": 0, "core:frequency": 98e6}], raw)
+    assert main(["replay", str(meta), "--db", str(tmp_path / "c.db"), "--config", "x", "--quiet",
+                 "--band", "custom:97.4-97.8:100"]) == 0
+    assert "clipping up to 1.800 % of samples" in capsys.readouterr().out

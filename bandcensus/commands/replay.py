@@ -149,7 +149,9 @@ def command(recordings, db_path, configuration, input_kind, band, channel_bw_khz
              "cn_db": c.cn_db, "received": c.received, "sweeps": 1}
             for c in sorted(outcome.result.channels, key=lambda c: c.freq_hz)
         ]
+        clips = [h.clip_fraction for h in outcome.result.hops if h.clip_fraction is not None]
         payload.append({"recording": str(path), "sweep_id": outcome.sweep_id, "complete": outcome.result.complete,
+                        "max_clip_fraction": max(clips) if clips else None,
                         "no_signal": bool(outcome.no_signal_hops), "notes": outcome.result.notes,
                         "configuration": outcome.result.configuration, "input": outcome.result.input,
                         "channels": rows, "uncovered_hz": sorted(set(plan.uncovered_hz) - {r["freq_hz"] for r in rows})})
@@ -167,6 +169,8 @@ def command(recordings, db_path, configuration, input_kind, band, channel_bw_khz
             f"{item['input']}): "
             f"{len(item['channels'])} channels measured, {received} received, "
             f"{len(item['uncovered_hz'])} of band '{plan_band.name}' not covered by the recording"
+            + (f"; clipping up to {100 * item['max_clip_fraction']:.3f} % of samples (within one step of full "
+               "scale): lower the gain" if item["max_clip_fraction"] else "")
         )
         for note in filter(None, str(item["notes"]).split("; ")):
             click.echo(f"  note: {plain_text(note)}")
