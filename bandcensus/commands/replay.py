@@ -85,7 +85,8 @@ def command(recordings, db_path, configuration, input_kind, band, channel_bw_khz
             raise click.UsageError(f"{path} carries no configuration label; give --config LABEL")
         inp = input_kind or labels.get("input") or "antenna"
         if inp not in INPUT_KINDS:
-            raise click.UsageError(f"{path} has input label {inp!r}; give --input ({', '.join(INPUT_KINDS)})")
+            raise RecordingError(f"{path} has input label {inp!r}, not one of ours; give --input "
+                                 f"({', '.join(INPUT_KINDS)})")
         settings = SweepSettings(
             band=plan_band.name,
             channel_bw_hz=channel_bw_khz * 1e3,
