@@ -1,6 +1,7 @@
 """Stop and crash trials of the capture commands (a soak script, not a test; asserts nothing).
 
-Run: ``PYTHONPATH=. python tests/benchmarks/trial_stops.py [trials_per_kind]`` (default 10).
+Run: ``PYTHONPATH=. python tests/benchmarks/trial_stops.py [trials_per_kind [command ...]]``
+(default 10 trials each of simulate, replay and scan).
 For each of simulate, replay and scan, and each of SIGTERM, SIGINT and SIGKILL, a command is
 started, signalled at a random moment after its first committed sweep, and the outcome checked:
 
@@ -39,7 +40,7 @@ def _args(kind: str, db: Path, iq: Path) -> list[str]:
     if kind == "replay":
         return ["replay", *map(str, DEMO * 10), "--db", str(db), "--quiet"]
     return ["scan", "--db", str(db), "--simulate-scene", str(SCENE), "--alternate", "bare,preamp-peaked",
-            "--band", BAND, "--dwell-ms", "20", "--quiet", "--keep-iq", str(iq)]
+            "--band", BAND, "--dwell-ms", "20", "--for", "10m", "--quiet", "--keep-iq", str(iq)]
 
 
 def _sweeps(db: Path) -> int:
@@ -94,8 +95,9 @@ def trial(kind: str, signum: int, folder: Path, rng: random.Random) -> bool:
 
 def main(argv: list[str]) -> None:
     n = int(argv[0]) if argv else 10
+    kinds = tuple(argv[1:]) or ("simulate", "replay", "scan")
     rng = random.Random(20261202)
-    for kind in ("simulate", "replay", "scan"):
+    for kind in kinds:
         for signum in (signal.SIGTERM, signal.SIGINT, signal.SIGKILL):
             good = 0
             for _ in range(n):
