@@ -162,14 +162,16 @@ def test_ctrl_c_reaching_the_switch_command_too_is_a_stop_not_a_failure(tmp_path
 
     stop = StopRequest()
     script = tmp_path / "die.sh"
-    script.write_text("#!/bin/sh\nkill -INT $$\nsleep 5\n")
+    script.write_text("#!/bin/sh\nkill -INT $PPID\nkill -INT $$\nsleep 5\n")  # as a terminal's Ctrl-C does
     script.chmod(0o755)
-    timer = threading.Timer(0.05, stop.set)
-    timer.start()
-    assert run_switch_command(str(script), "bare", 30.0, stop=stop) is False
-    timer.join()
+    with stop.installed():
+        assert run_switch_command(str(script), "bare", 30.0, stop=stop) is False
+    assert stop.signal_name == "SIGINT"
+    lone = tmp_path / "lone.sh"
+    lone.write_text("#!/bin/sh\nkill -INT $$\nsleep 5\n")  # the command dies alone: a failure
+    lone.chmod(0o755)
     with pytest.raises(Exception, match="exited with status"):
-        run_switch_command(str(script), "bare", 30.0, stop=StopRequest())
+        run_switch_command(str(lone), "bare", 30.0, stop=StopRequest())
 
 
 def test_dead_writer_is_shown_interrupted_and_marked_by_the_next_writer(tmp_path):
