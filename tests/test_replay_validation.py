@@ -76,10 +76,14 @@ def test_few_averages_warn_with_the_welch_scatter(tmp_path, capsys):
                  "--band", "custom:97.8-98.2:100"])
     err = capsys.readouterr().err
     assert code == 0
-    assert "only 5 FFT averages" in err and "dB (1 sigma)" in err
-    # K = 5 segments at 50 % Hann overlap: K_eff from Welch (1967) is below 5, so sigma > 10 log10(1 + 1/sqrt 5)
+    from survey.dsp import DEFAULT_OVERLAP, welch_effective_averages
+
+    k = 1 + (2048 * 3 - 2048) // (2048 - int(round(DEFAULT_OVERLAP * 2048)))  # segments of averaged_psd
+    assert f"only {k} FFT averages" in err and "dB (1 sigma)" in err
+    # Welch (1967): each bin ~ S chi2(2K_eff)/(2K_eff); one sigma is 1/sqrt(K_eff) of S
     sigma = float(err.split("scatters by about ")[1].split(" dB")[0])
-    assert sigma >= round(10 * math.log10(1 + 1 / math.sqrt(5)), 1)
+    k_eff = welch_effective_averages(2048 * 3, 2048)
+    assert k_eff <= k and sigma == pytest.approx(10 * math.log10(1 + 1 / math.sqrt(k_eff)), abs=0.051)
     conn = sqlite3.connect(db)
     notes, recording = conn.execute("SELECT notes, recording FROM sweeps").fetchone()
     conn.close()
