@@ -1,7 +1,8 @@
 """Replay of SigMF recordings: each capture segment is one hop at a fixed centre frequency.
 
-A recording is read with the ``sigmf`` reference library (metadata, schema validation, SHA-512
-checksum), but the samples are taken as **raw bytes**, memory-mapped straight from the data
+A recording is read with the ``sigmf`` reference library (metadata, schema validation); the
+SHA-512 checksum is computed here in one streamed pass with progress
+(:func:`survey.sources.recording_checks.stream_check`); the samples are taken as **raw bytes**, memory-mapped straight from the data
 file (or from inside an uncompressed ``.sigmf`` archive), in their native datatype. sigmf's
 autoscale is not used: it scales ``cu8`` as ``(x - 128) / 128`` while the receiver library and
 :func:`survey.dsp.to_complex64` use ``(x - 127.5) / 127.5``, and live and replayed samples must
@@ -500,10 +501,10 @@ def open_recording(path: str | os.PathLike, *, skip_checksum: bool = False, prog
         The ``.sigmf-meta`` file, the ``.sigmf-data`` file, their common base name, or an
         uncompressed ``.sigmf`` archive.
     skip_checksum : bool
-        Do not verify ``core:sha512``. Verifying reads the whole data once: 0.71 s against
-        0.06 s without it for 256 MiB (559 captures) on the 2-core test machine, see
-        ``tests/benchmarks/bench_recording.py``. A recording without ``core:sha512`` is never
-        hashed (there is nothing to compare with).
+        Do not verify ``core:sha512``. Verifying reads the whole data once, in blocks of
+        :data:`CHECK_BLOCK_BYTES` (time: ``tests/benchmarks/bench_recording.py``; memory:
+        ``tests/benchmarks/bench_replay_memory.py``). A recording without ``core:sha512`` is
+        never hashed (there is nothing to compare with).
     progress : callable, optional
         ``progress(done_bytes, total_bytes)`` during the pass over the data (checksum and, for
         float datatypes, the check that every sample is finite; one block of
