@@ -13,15 +13,23 @@ from __future__ import annotations
 import importlib
 import pkgutil
 import re
+import signal
+import sqlite3
 import sys
+import threading
+import time
 import traceback
+from pathlib import Path
 from typing import Sequence
 
 import click
 
 from analysis.errors import AnalysisError
 from bandcensus import __version__
+from bandcensus.commands._common import finite_float_options
 from survey.errors import SurveyError
+from survey.store import open_error
+from survey.text import plain_text
 
 import bandcensus.commands as _commands_pkg
 
@@ -41,7 +49,7 @@ class _Group(click.Group):
         if name.startswith("_") or module_name not in {i.name for i in pkgutil.iter_modules(_commands_pkg.__path__)}:
             return None
         module = importlib.import_module(f"bandcensus.commands.{module_name}")
-        return getattr(module, "command")
+        return finite_float_options(getattr(module, "command"))
 
     def format_commands(self, ctx: click.Context, formatter: click.HelpFormatter) -> None:
         """The command list of ``--help``, from module docstrings (no command module imported)."""
@@ -85,34 +93,114 @@ def cli(ctx: click.Context, debug: bool) -> None:
     ctx.obj["debug"] = debug
 
 
+class _Terminated(KeyboardInterrupt):
+    """SIGTERM outside a capture run (which handles it itself): unwind like Ctrl-C."""
+
+
+def _raise_terminated(signum, frame) -> None:
+    raise _Terminated()
+
+
+_OUTPUT_SUFFIXES = (".html", ".htm", ".png", ".svg", ".pdf", ".csv", ".json")
+
+
+def _output_paths(args: Sequence[str]) -> list[Path]:
+    out = []
+    for token in args:
+        value = token.split("=", 1)[1] if token.startswith("--") and "=" in token else token
+        if value.lower().endswith(_OUTPUT_SUFFIXES):
+            out.append(Path(value))
+    return out
+
+
+def _remove_leftovers(args: Sequence[str], started: float) -> None:
+    """After a failed or interrupted command: remove ``FILE.part`` files and empty output files
+    it created (a figure or report cut off half-way), never a file older than the command."""
+    for path in _output_paths(args):
+        for candidate in (path.with_name(path.name + ".part"), path):
+            try:
+                st = candidate.stat()
+            except OSError:
+                continue
+            if candidate.is_file() and st.st_mtime >= started - 1.0 and (candidate != path or st.st_size == 0):
+                try:
+                    candidate.unlink()
+                except OSError:
+                    pass
+
+
+def _db_argument(args: Sequence[str]) -> str:
+    for k, token in enumerate(args):
+        if token == "--db" and k + 1 < len(args):
+            return args[k + 1]
+        if token.startswith("--db="):
+            return token[5:]
+    return "the database"
+
+
+def _one_line(text: object) -> str:
+    """A message on one line, without control characters (it may quote hostile input)."""
+    line = " ".join(plain_text(" ".join(str(text).split())).split())
+    return line if len(line) <= 400 else line[:397] + "..."
+
+
+def _describe_failure(exc: BaseException, args: Sequence[str]) -> str:
+    """The one-line text of a failure that reached the command line, with a remedy."""
+    if isinstance(exc, (SurveyError, AnalysisError)):
+        return str(exc)
+    if isinstance(exc, sqlite3.DatabaseError):
+        db = Path(_db_argument(args))
+        return str(open_error(exc, db))
+    if isinstance(exc, RecursionError):
+        return ("input nested too deeply to read (e.g. JSON nested thousands of levels); "
+                "check the file given")
+    if isinstance(exc, MemoryError):
+        return "not enough memory for this input; give a smaller recording, dwell or FFT size"
+    if isinstance(exc, OSError):
+        name = f" {exc.filename}" if getattr(exc, "filename", None) else ""
+        return f"{exc.strerror or exc}{name}"
+    return (f"unexpected {type(exc).__name__}: {exc}; this is a bandcensus bug, please report it "
+            "with the output of --debug")
+
+
 def main(argv: Sequence[str] | None = None) -> int:
-    """Run the command line; returns the exit code (0 ok, 1 failure, 2 bad usage)."""
+    """Run the command line; returns the exit code (0 ok, 1 failure, 2 bad usage).
+
+    This is the one error boundary: every failure becomes one line ``Error: ...`` (a traceback
+    only with ``--debug``), and outputs cut off half-way are removed.
+    """
     args = list(sys.argv[1:] if argv is None else argv)
     debug = "--debug" in args
+    started = time.time()
+    previous = None
+    if threading.current_thread() is threading.main_thread():
+        previous = signal.signal(signal.SIGTERM, _raise_terminated)
     try:
         cli.main(args=args, prog_name="bandcensus", standalone_mode=False)
     except click.exceptions.Exit as exc:
         return int(exc.exit_code)
-    except click.exceptions.Abort:
-        click.echo("Aborted.", err=True)
+    except click.exceptions.Abort as exc:  # click turns KeyboardInterrupt into Abort
+        _remove_leftovers(args, started)
+        how = "SIGTERM" if isinstance(exc.__cause__, _Terminated) else "Ctrl-C"
+        click.echo(f"Error: interrupted by {how}; nothing half-written was kept", err=True)
         return 1
     except click.ClickException as exc:
         exc.show()
         return int(exc.exit_code)
-    except (SurveyError, AnalysisError) as exc:
+    except KeyboardInterrupt as exc:
+        _remove_leftovers(args, started)
+        how = "SIGTERM" if isinstance(exc, _Terminated) else "Ctrl-C"
+        click.echo(f"Error: interrupted by {how}; nothing half-written was kept", err=True)
+        return 1
+    except Exception as exc:  # the boundary: one line, whatever failed
+        _remove_leftovers(args, started)
         if debug:
             traceback.print_exc()
-        click.echo(f"Error: {exc}", err=True)
+        click.echo(f"Error: {_one_line(_describe_failure(exc, args))}", err=True)
         return 1
-    except KeyboardInterrupt:
-        click.echo("Error: interrupted", err=True)
-        return 1
-    except OSError as exc:
-        if debug:
-            traceback.print_exc()
-        name = f" {exc.filename}" if getattr(exc, "filename", None) else ""
-        click.echo(f"Error: {exc.strerror or exc}{name}", err=True)
-        return 1
+    finally:
+        if previous is not None:
+            signal.signal(signal.SIGTERM, previous)
     return 0
 
 

@@ -135,14 +135,27 @@ def to_complex64(raw: np.ndarray, datatype: str) -> np.ndarray:
 
 
 def clip_fraction(raw: np.ndarray, datatype: str) -> float | None:
-    """Fraction of 8-bit I and Q values at the converter rails.
+    """Fraction of I and Q values within one converter step of full scale, for every datatype.
 
-    ``cu8`` rails are 0 and 255, ``ci8`` rails are -128 and 127. Wider types have no meaningful
-    rail (a recording may have been rescaled), so they give None.
+    ``cu8`` rails are 0 and 255 and ``ci8`` rails -128 and 127 (the extreme codes);
+    ``ci16_le`` counts values <= -32767 or >= 32766 (one step inside the rails). ``cf32_le`` has
+    no step of its own: a float recording of this receiver family holds 8-bit codes rescaled to
+    full scale 1.0, so values with magnitude >= 1 - 1/128 (one 8-bit step of full scale; values
+    beyond 1.0 included) count (common practice, no source). None only for an empty block.
     """
     arr = _native(raw, datatype)
-    if datatype not in ("cu8", "ci8") or arr.size == 0:
+    if arr.size == 0:
         return None
+    if datatype == "ci16_le":
+        lo, hi = arr.min(), arr.max()
+        if lo > -32767 and hi < 32766:
+            return 0.0
+        return float(np.count_nonzero((arr <= -32767) | (arr >= 32766)) / arr.size)
+    if datatype == "cf32_le":
+        limit = np.float32(1.0 - 1.0 / 128.0)
+        if -limit < arr.min() and arr.max() < limit:
+            return 0.0
+        return float(np.count_nonzero(np.abs(arr) >= limit) / arr.size)
     u = arr if datatype == "cu8" else arr.view(np.uint8) ^ np.uint8(0x80)  # -128..127 -> 0..255
     if u.min() > 0 and u.max() < 255:
         return 0.0  # two fast reductions settle the common unclipped block without temporaries

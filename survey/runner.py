@@ -12,19 +12,66 @@ from dataclasses import dataclass, replace
 from pathlib import Path
 from typing import Callable
 
+import numpy as np
+
 from survey.records import HopPlan, SweepResult, SweepSettings
 from survey.sources.base import IQSource
 from survey.store import SurveyStore
 from survey.sweep import HopProgress, run_sweep
 
 
+#: Note stored with a sweep (and shown) when hops delivered constant samples.
+NO_SIGNAL = "no signal (receiver not delivering samples?)"
+
+
 @dataclass(frozen=True)
 class SweepOutcome:
-    """What :func:`record_sweep` stored: the sweep id, the result and the recording (if kept)."""
+    """What :func:`record_sweep` stored: the sweep id, the result and the recording (if kept).
+
+    ``no_signal_hops`` are the hops whose samples were all the same value (all zero, all 127
+    ...): nothing was received there, whatever the spectrum's arithmetic says.
+    """
 
     sweep_id: int
     result: SweepResult
     recording_path: Path | None
+    no_signal_hops: tuple[int, ...] = ()
+
+
+class _ConstantBlockCheck:
+    """Block sink that notes hops whose I and Q samples are each constant, then passes blocks on.
+
+    A constant input has no noise at all, which no working receiver delivers (its own noise
+    always moves the lowest bits): such a hop is "no signal", never a list of received channels.
+    """
+
+    def __init__(self, inner) -> None:
+        self.inner = inner
+        self.constant: list[int] = []
+        self._k = 0
+
+    def add_block(self, block) -> None:
+        raw = block.raw
+        if raw.size >= 2:
+            iq = raw[: raw.size - raw.size % 2].reshape(-1, 2)
+            if all(float(np.nanmin(iq[:, c])) == float(np.nanmax(iq[:, c])) for c in (0, 1)):
+                self.constant.append(self._k)
+        self._k += 1
+        if self.inner is not None:
+            self.inner.add_block(block)
+
+
+def _without_dead_hops(result: SweepResult, dead: list[int]) -> SweepResult:
+    """Channels of constant-sample hops are not received; the sweep's notes say why."""
+    if not dead:
+        return result
+    dead_indices = {result.hops[k].index for k in dead if k < len(result.hops)}
+    channels = tuple(
+        replace(c, received=False, cn_db=None) if c.hop_index in dead_indices else c for c in result.channels
+    )
+    which = "every hop" if len(dead_indices) == len(result.hops) else f"hop(s) {', '.join(map(str, sorted(dead_indices)))}"
+    note = f"{NO_SIGNAL}: constant samples in {which}"
+    return replace(result, channels=channels, notes="; ".join(n for n in (result.notes, note) if n))
 
 
 def _recording_name(configuration: str, input: str, run_id: int, sequence: int) -> str:
@@ -46,6 +93,10 @@ def record_sweep(
     on_hop: Callable[[HopProgress], None] | None = None,
     should_stop: Callable[[], bool] | None = None,
     recording_fields: dict | None = None,
+    recording: str | None = None,
+    notes: str = "",
+    dc_notch_hz: float = 0.0,
+    notch_channels_hz: tuple[int, ...] = (),
 ) -> SweepOutcome:
     """Measure ``plan`` with ``source`` and write the sweep to ``store`` in one transaction.
 
@@ -61,9 +112,16 @@ def record_sweep(
         (``scan --spectra-every N``).
     recording_fields : dict, optional
         Extra fields for the recorder (device, seed, gain ...), passed as keyword arguments.
+    recording : str, optional
+        The recording the sweep was measured from (replay); stored in ``sweeps.recording``.
+    notes : str
+        Stored in ``sweeps.notes`` (e.g. a warning about few averages); a note about hops
+        without signal (constant samples) is added to it.
     """
     if keep_spectra is None:
         keep_spectra = True
+    if notch_channels_hz:
+        keep_spectra = True  # the notch works on the hop's spectrum
     sink = None
     if keep_iq_dir is not None:
         from survey.recorder import SweepRecorder  # sigmf is needed only when IQ is kept
@@ -82,10 +140,11 @@ def record_sweep(
             input=input,
             **fields,
         )
+    check = _ConstantBlockCheck(sink)
     try:
         result = run_sweep(
             source, plan, settings, configuration, input,
-            sink=sink, keep_psd=keep_spectra, on_hop=on_hop, should_stop=should_stop,
+            sink=check, keep_psd=keep_spectra, on_hop=on_hop, should_stop=should_stop,
         )
     except BaseException:
         if sink is not None:
@@ -99,5 +158,15 @@ def record_sweep(
             sink.abort()
     if recording_path is not None:
         result = replace(result, recording=str(recording_path))
+    elif recording is not None:
+        result = replace(result, recording=str(recording))
+    if notes:
+        result = replace(result, notes="; ".join(n for n in (result.notes, notes) if n))
+    if notch_channels_hz and result.complete:
+        from survey.dc_notch import measure_inside_guard
+
+        result = measure_inside_guard(result, float(dc_notch_hz), notch_channels_hz, settings.received_margin_db)
+    result = _without_dead_hops(result, check.constant)
     sweep_id = store.write_sweep(run_id, result, keep_spectra=keep_spectra)
-    return SweepOutcome(sweep_id=sweep_id, result=result, recording_path=recording_path)
+    return SweepOutcome(sweep_id=sweep_id, result=result, recording_path=recording_path,
+                        no_signal_hops=tuple(result.hops[k].index for k in check.constant if k < len(result.hops)))

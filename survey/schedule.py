@@ -32,17 +32,16 @@ import signal
 import subprocess
 import threading
 import time
-from contextlib import contextmanager
 from dataclasses import dataclass, field
 from datetime import datetime, timedelta
 from pathlib import Path
-from typing import Callable, Iterator, Sequence
+from typing import Callable, Sequence
 
 import numpy as np
 
-from survey.errors import ReceiverError, ScheduleError, StoreError
+from survey.errors import ScheduleError
 from survey.records import BandPlan, RunInfo, SweepSettings
-from survey.runner import record_sweep
+from survey.session import CaptureSession, StopRequest  # noqa: F401 (StopRequest re-exported)
 from survey.sources.base import IQSource
 from survey.store import SurveyStore
 from survey.sweep import HopProgress, plan_for_source
@@ -52,12 +51,20 @@ _DURATION = re.compile(r"(\d+(?:\.\d+)?)\s*([hms])", re.IGNORECASE)
 _SCALE = {"h": 3600.0, "m": 60.0, "s": 1.0}
 
 
+#: Longest duration or interval accepted (one year): longer ones are typing mistakes.
+MAX_DURATION_S = 366 * 86400.0
+
+
 def parse_duration_s(text: str, option: str = "--for") -> float:
     """Parse ``8h``, ``5m``, ``90s``, ``1h30m`` or ``2.5h`` into seconds (> 0)."""
     s = str(text).strip().replace(" ", "")
     if not s or _DURATION.sub("", s):
-        raise ScheduleError(f"{option} {text!r} is not a duration; write e.g. 8h, 5m, 90s or 1h30m")
+        shown = str(text) if len(str(text)) <= 40 else str(text)[:37] + "..."
+        raise ScheduleError(f"{option} {shown!r} is not a duration; write e.g. 8h, 5m, 90s or 1h30m")
     total = sum(float(v) * _SCALE[u.lower()] for v, u in _DURATION.findall(s))
+    if not total <= MAX_DURATION_S:
+        shown = s if len(s) <= 40 else s[:37] + "..."
+        raise ScheduleError(f"{option} {shown!r} is longer than a year; give at most 366 days (e.g. 720h for 30 days)")
     if total <= 0:
         raise ScheduleError(f"{option} {text!r} is zero; give a positive duration")
     return total
@@ -87,30 +94,15 @@ class SystemClock:
         return time.time()
 
 
-class StopRequest(threading.Event):
-    """A stop flag that SIGINT/SIGTERM set; nothing else happens in the handler."""
+def run_switch_command(command: str, label: str, timeout_s: float = 30.0,
+                       stop: threading.Event | None = None, poll_s: float = 0.05) -> bool:
+    """Run a configuration's switch command (no shell); raise ScheduleError unless it exits 0 in time.
 
-    def __init__(self) -> None:
-        super().__init__()
-        self.signal_name: str | None = None
-
-    def _handler(self, signum, frame) -> None:
-        self.signal_name = signal.Signals(signum).name
-        self.set()
-
-    @contextmanager
-    def installed(self, signals: Sequence[int] = (signal.SIGINT, signal.SIGTERM)) -> Iterator["StopRequest"]:
-        """Install the handlers for the duration of a ``with`` block (main thread only)."""
-        previous = {s: signal.signal(s, self._handler) for s in signals}
-        try:
-            yield self
-        finally:
-            for s, h in previous.items():
-                signal.signal(s, h)
-
-
-def run_switch_command(command: str, label: str, timeout_s: float = 30.0) -> None:
-    """Run a configuration's switch command (no shell); raise ScheduleError unless it exits 0 in time."""
+    With ``stop``: when a stop is requested while the command runs, the command is terminated
+    (SIGTERM, then SIGKILL after 1 s) and False is returned; a command that dies of the same
+    Ctrl-C as this process (SIGINT reaches the whole foreground process group) is a stop too,
+    not a failure. Returns True when the command ran to a clean end.
+    """
     try:
         argv = shlex.split(command)
     except ValueError as exc:
@@ -119,20 +111,51 @@ def run_switch_command(command: str, label: str, timeout_s: float = 30.0) -> Non
         raise ScheduleError(f"switch command for '{label}' is empty; give a program to run")
     env = dict(os.environ, BANDCENSUS_CONFIGURATION=label)
     try:
-        done = subprocess.run(argv, env=env, stdin=subprocess.DEVNULL, capture_output=True, text=True,
-                              timeout=timeout_s, check=False)
+        proc = subprocess.Popen(argv, env=env, stdin=subprocess.DEVNULL, stdout=subprocess.PIPE,
+                                stderr=subprocess.PIPE, text=True)
     except FileNotFoundError:
         raise ScheduleError(f"switch command for '{label}': program {argv[0]!r} not found; give its full path") from None
     except PermissionError:
         raise ScheduleError(f"switch command for '{label}': {argv[0]!r} is not executable; chmod +x it") from None
-    except subprocess.TimeoutExpired:
-        raise ScheduleError(f"switch command for '{label}' did not finish within {timeout_s:g} s; "
-                            "make it faster or raise the timeout") from None
-    if done.returncode != 0:
-        tail = (done.stderr or done.stdout or "").strip().splitlines()
+    deadline = time.monotonic() + float(timeout_s)
+    stopped = False
+    try:
+        while True:
+            try:
+                out, err = proc.communicate(timeout=poll_s)
+                break
+            except subprocess.TimeoutExpired:
+                pass
+            if stop is not None and stop.is_set():
+                stopped = True
+                proc.terminate()
+                try:
+                    out, err = proc.communicate(timeout=1.0)
+                except subprocess.TimeoutExpired:
+                    proc.kill()
+                    out, err = proc.communicate()
+                break
+            if time.monotonic() >= deadline:
+                proc.kill()
+                proc.communicate()
+                raise ScheduleError(f"switch command for '{label}' did not finish within {timeout_s:g} s; "
+                                    "make it faster or raise the timeout")
+    finally:
+        if proc.poll() is None:  # an exception (e.g. KeyboardInterrupt) left it running
+            proc.kill()
+            proc.wait()
+    if stopped:
+        return False
+    if proc.returncode < 0 and stop is not None and -proc.returncode in (signal.SIGINT, signal.SIGTERM):
+        stop.wait(0.5)  # the same signal is on its way to this process's handler
+        if stop.is_set():
+            return False
+    if proc.returncode != 0:
+        tail = (err or out or "").strip().splitlines()
         why = f": {tail[-1]}" if tail else ""
-        raise ScheduleError(f"switch command for '{label}' exited with status {done.returncode}{why}; "
+        raise ScheduleError(f"switch command for '{label}' exited with status {proc.returncode}{why}; "
                             "run it by hand to check it")
+    return True
 
 
 @dataclass(frozen=True)
@@ -244,35 +267,35 @@ def run_schedule(
     clock = clock or SystemClock()
     plan = plan_for_source(band, source, settings)
 
-    run_id = store.begin_run(run_info)
-    if hasattr(source, "on_event"):
-        source.on_event = lambda kind, message: store.add_event(run_id, kind, message)
-    mono0, wall0 = clock.monotonic(), clock.wall()
-    last_offset = 0.0
-    deadline = None if duration_s is None else mono0 + float(duration_s)
-    stored = incomplete = dropped = jumps = 0
-    counts: dict[str, int] = {}
-    next_start = mono0
-    last_sweep_s = floor = None
-    strongest: tuple = ()
-    prev_label = None
-    attempt = 0
+    session = CaptureSession(store, run_info, stop=stop, install_signals=False, keep_iq_dirs=[keep_iq_dir])
+    with session:
+        run_id = session.run_id
+        if hasattr(source, "on_event"):
+            source.on_event = lambda kind, message: store.add_event(run_id, kind, message)
+        mono0, wall0 = clock.monotonic(), clock.wall()
+        last_offset = 0.0
+        deadline = None if duration_s is None else mono0 + float(duration_s)
+        stored = incomplete = dropped = jumps = 0
+        counts: dict[str, int] = {}
+        next_start = mono0
+        last_sweep_s = floor = None
+        strongest: tuple = ()
+        prev_label = None
+        attempt = 0
 
-    def elapsed() -> float:
-        return clock.monotonic() - mono0
+        def elapsed() -> float:
+            return clock.monotonic() - mono0
 
-    def time_left() -> float | None:
-        return None if deadline is None else max(0.0, deadline - clock.monotonic())
+        def time_left() -> float | None:
+            return None if deadline is None else max(0.0, deadline - clock.monotonic())
 
-    def tell(event: str, **kw) -> None:
-        if progress is not None:
-            progress(ScheduleProgress(event=event, sweep_number=stored + incomplete + 1 if event == "hop" else stored,
-                                      sweeps_total=sweeps, time_left_s=time_left(), elapsed_s=elapsed(),
-                                      last_sweep_s=last_sweep_s, noise_floor_dbfs_hz=floor, strongest=strongest,
-                                      gaps=dropped, **kw))
+        def tell(event: str, **kw) -> None:
+            if progress is not None:
+                progress(ScheduleProgress(event=event, sweep_number=stored + incomplete + 1 if event == "hop" else stored,
+                                          sweeps_total=sweeps, time_left_s=time_left(), elapsed_s=elapsed(),
+                                          last_sweep_s=last_sweep_s, noise_floor_dbfs_hz=floor, strongest=strongest,
+                                          gaps=dropped, **kw))
 
-    status = "failed"
-    try:
         while not stop.is_set():
             now = clock.monotonic()
             offset = (clock.wall() - wall0) - (now - mono0)
@@ -296,7 +319,8 @@ def run_schedule(
             label = labels[attempt % len(labels)]
             if label != prev_label:
                 if label in switch_commands:
-                    run_switch_command(switch_commands[label], label, switch_timeout_s)
+                    if not run_switch_command(switch_commands[label], label, switch_timeout_s, stop=stop):
+                        break
                     store.add_event(run_id, "switch", f"ran the switch command for '{label}'")
                 if bias_tee_labels:
                     source.set_bias_tee(label in bias_tee_labels)
@@ -310,8 +334,8 @@ def run_schedule(
                 source.plan_ahead([h.center_hz for h in plan.hops],
                                   max(settings.fft_size, int(round(settings.dwell_s * source.sample_rate_hz))))
             try:
-                outcome = record_sweep(store, run_id, source, plan, settings, label, input,
-                                       keep_iq_dir=keep_iq_dir, on_hop=on_hop, should_stop=stop.is_set)
+                outcome = session.record(source, plan, settings, label, input,
+                                         keep_iq_dir=keep_iq_dir, on_hop=on_hop)
             except SweepInterrupted:
                 dropped += 1
                 tell("gap", configuration=label)
@@ -333,25 +357,7 @@ def run_schedule(
                 next_start = now
             tell("sweep", configuration=label,
                  next_sweep_in_s=max(0.0, next_start - now))
-        status = "stopped" if stop.is_set() else "finished"
-        if stop.is_set():
-            why = getattr(stop, "signal_name", None) or "stop request"
-            store.add_event(run_id, "stop", f"stopped by {why} after {stored} sweep(s)")
-        store.end_run(run_id, status)
-    except StoreError:
-        try:
-            store.end_run(run_id, "failed")
-        except StoreError:
-            pass
-        raise
-    except (ReceiverError, ScheduleError, BaseException) as exc:
-        try:
-            if isinstance(exc, ScheduleError):
-                store.add_event(run_id, "schedule-error", str(exc))
-            store.end_run(run_id, "failed")
-        except StoreError:
-            pass
-        raise
+    status = session.status
     return ScheduleSummary(run_id=run_id, status=status, sweeps_stored=stored, sweeps_incomplete=incomplete,
                            sweeps_dropped=dropped, gaps=dropped, clock_jumps=jumps, elapsed_s=elapsed(),
                            by_configuration=counts, stop_signal=getattr(stop, "signal_name", None))

@@ -2,11 +2,11 @@
 
 What each analysis reads from the ``spectra`` table, and so what each input keeps:
 
-* the passband (:mod:`analysis.passband_data`) averages noise-source spectra (``noise-hot``,
+* the passband (:mod:`analysis.passband.data`) averages noise-source spectra (``noise-hot``,
   ``noise-cold``) and, for the shape-only fallback, ``terminated`` or ``antenna`` spectra, into
   bins of 100 kHz by default: it needs the linear mean of the density over spans much wider than
   one FFT bin;
-* the fault diagnosis (:mod:`analysis.diagnose_lines`) looks for narrow lines (an oscillating
+* the fault diagnosis (:mod:`analysis.diagnose.lines`) looks for narrow lines (an oscillating
   preamp) in every input's spectra; on ``terminated`` and noise-source inputs no station hides
   a line, so those are the sweeps where one FFT bin of resolution matters;
 * a rebuild of per-channel figures from spectra integrates the density over a channel's

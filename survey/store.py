@@ -18,6 +18,7 @@ in the README ("Database schema"). Conventions:
 from __future__ import annotations
 
 import json
+import os
 import sqlite3
 import time
 from dataclasses import asdict, dataclass
@@ -164,6 +165,59 @@ def _connect(path: Path, busy_timeout_s: float) -> sqlite3.Connection:
     return conn
 
 
+#: ``PRAGMA application_id`` of a bandcensus database ("BCNS"); set on create (SQLite file
+#: format, header offset 68). Databases of schema v1 written before it existed are recognised
+#: by their tables and ``user_version`` and get it on their next opening for writing.
+APPLICATION_ID = 0x42434E53
+
+_OUR_TABLES = frozenset({"runs", "sweeps", "hops", "channels"})
+
+
+def check_ownership(conn: sqlite3.Connection, path: Path) -> None:
+    """Refuse (StoreError) an SQLite file that is not a bandcensus database, reading only.
+
+    Ours: an empty file; or ``application_id`` = :data:`APPLICATION_ID`; or (older files)
+    ``application_id`` 0 with ``user_version`` > 0 and our core tables. Anything else (another
+    program's tables, another application id, tables without a schema version) is refused
+    before a single byte is written.
+    """
+    app_id = conn.execute("PRAGMA application_id").fetchone()[0]
+    version = conn.execute("PRAGMA user_version").fetchone()[0]
+    tables = {r[0] for r in conn.execute("SELECT name FROM sqlite_master WHERE type='table'")}
+    if app_id == APPLICATION_ID or (not tables and app_id == 0 and version == 0):
+        return
+    if app_id == 0 and version > 0 and _OUR_TABLES <= tables:
+        return
+    why = (f"application id {app_id:#x}" if app_id else
+           f"tables {', '.join(sorted(tables)[:4])}{' ...' if len(tables) > 4 else ''}" if tables else
+           f"user_version {version}")
+    raise StoreError(f"{path} is an SQLite database of another program ({why}); it was left untouched: "
+                     "choose a new file name")
+
+
+def open_error(exc: sqlite3.Error, path: Path) -> StoreError:
+    """The true one-line reason an SQLite file cannot be opened or read, with the remedy."""
+    text = str(exc)
+    low = text.lower()
+    if "malformed" in low or "corrupt" in low:
+        return StoreError(f"{path} is damaged ({text}); restore it from a copy, or recover what is left "
+                          f"with: sqlite3 {path} .recover")
+    if "readonly" in low or "read-only" in low or (path.exists() and not os.access(path, os.W_OK)):
+        return StoreError(f"{path} is read-only (read-only mount or permissions); copy it to a writable "
+                          "folder to add sweeps (reading commands work as is)")
+    if _is_busy(exc):
+        return StoreError(f"{path} is locked by another program (exclusive lock); wait for it to finish "
+                          "or stop it, then try again")
+    if "unable to open" in low and not os.access(path.parent, os.W_OK):
+        return StoreError(f"{path} lies in a read-only folder (read-only mount?) and its journal cannot be "
+                          "opened there; copy the database to a writable folder")
+    if "unable to open" in low:
+        return StoreError(f"cannot open {path} ({text}); check the path and the folder's permissions")
+    if "not a database" in low or "encrypted" in low:
+        return StoreError(f"{path} is not a bandcensus database (not an SQLite file); choose a new file name")
+    return StoreError(f"cannot use {path} ({text}); check the file")
+
+
 class SurveyStore:
     """Writer (and reader) of a survey database.
 
@@ -185,15 +239,20 @@ class SurveyStore:
         self.migration_notes: list[str] = []
         if self.path.exists() and self.path.is_dir():
             raise StoreError(f"{self.path} is a folder; give a database file path such as survey.db")
+        folder = self.path.parent
+        if not folder.is_dir():
+            raise StoreError(f"folder {folder} does not exist; create it (mkdir -p {folder}) or choose another path")
+        if not self.path.exists() and not os.access(folder, os.W_OK):
+            raise StoreError(f"cannot create {self.path}: folder {folder} is not writable (read-only mount or "
+                             "permissions); choose a writable folder")
         try:
             self.conn = _connect(self.path, busy_timeout_s)
+            check_ownership(self.conn, self.path)  # reads only: nothing is written to a foreign file
             self.conn.execute("PRAGMA journal_mode = WAL")
             self.conn.execute("PRAGMA synchronous = NORMAL")
             self._migrate()
         except sqlite3.DatabaseError as exc:
-            raise StoreError(
-                f"{self.path} is not a bandcensus database ({exc}); choose a new file name"
-            ) from exc
+            raise open_error(exc, self.path) from exc
 
     @property
     def db(self):
@@ -214,12 +273,8 @@ class SurveyStore:
                 f"{self.path} has schema version {version}, newer than this bandcensus "
                 f"({SCHEMA_VERSION}); upgrade bandcensus"
             )
-        if version == 0:
-            tables = {r[0] for r in self.conn.execute("SELECT name FROM sqlite_master WHERE type='table'")}
-            if tables and "runs" not in tables:
-                raise StoreError(
-                    f"{self.path} is an SQLite database of another program; choose a new file name"
-                )
+        if self.conn.execute("PRAGMA application_id").fetchone()[0] != APPLICATION_ID:
+            self.conn.execute(f"PRAGMA application_id = {APPLICATION_ID}")  # ours (checked): mark it
         for target in sorted(MIGRATIONS):
             if target <= version:
                 continue
@@ -557,7 +612,7 @@ def open_for_reading(path: str | Path) -> sqlite3.Connection:
         version = conn.execute("PRAGMA user_version").fetchone()[0]
         tables = {r[0] for r in conn.execute("SELECT name FROM sqlite_master WHERE type='table'")}
     except sqlite3.DatabaseError as exc:
-        raise StoreError(f"{p} is not a bandcensus database ({exc})") from exc
+        raise open_error(exc, p) from exc
     if "sweeps" not in tables or version == 0:
         conn.close()
         raise StoreError(f"{p} is not a bandcensus database (no sweeps table); check the path")

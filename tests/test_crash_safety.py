@@ -17,6 +17,7 @@ import subprocess
 import sys
 import threading
 import time
+from datetime import datetime, timezone
 from pathlib import Path
 
 import numpy as np
@@ -67,6 +68,17 @@ def _check_all_complete(db: Path) -> int:
     return len(rows)
 
 
+def _committed(db: Path) -> int:
+    try:
+        conn = sqlite3.connect(f"file:{db}?mode=ro", uri=True, timeout=5)
+        try:
+            return conn.execute("SELECT COUNT(*) FROM sweeps").fetchone()[0]
+        finally:
+            conn.close()
+    except sqlite3.Error:
+        return 0
+
+
 def test_kill_9_at_random_moments(tmp_path):
     db = tmp_path / "crash.db"
     SurveyStore(db).close()
@@ -74,25 +86,35 @@ def test_kill_9_at_random_moments(tmp_path):
     ctx = mp.get_context("fork")
     killed_running = 0
     for trial in range(24):
+        before = _committed(db)
         proc = ctx.Process(target=_survey_forever, args=(str(db), trial))
         proc.start()
-        time.sleep(float(rng.uniform(0.02, 0.35)))
+        # Kill at a random moment after this writer's first commit (waiting on the database,
+        # not on the clock, so a loaded machine changes only how long the test takes).
+        hang_guard = time.monotonic() + 300
+        while _committed(db) <= before and proc.is_alive() and time.monotonic() < hang_guard:
+            time.sleep(0.005)
+        time.sleep(float(rng.uniform(0.0, 0.1)))
         alive = proc.is_alive()
         os.kill(proc.pid, signal.SIGKILL)
         proc.join(5)
         killed_running += alive and proc.exitcode == -signal.SIGKILL
         _check_all_complete(db)
-    assert killed_running >= 20  # the kills really struck running surveys
+    assert killed_running == 24  # the kills really struck running surveys
     stored = _check_all_complete(db)
-    assert stored >= 5  # and sweeps were being committed between the kills
-    # an interrupted run stays 'running' (nobody could end it); a new run still works
+    assert stored >= 24  # and every writer had committed before it was killed
+    # the killed runs stay 'running' until the next writer marks them interrupted; it still works
     store = SurveyStore(db)
     run_schedule(store, NoiseSource(), parse_band(BAND_TEXT), SETTINGS, configurations=["A"], run_info=INFO, sweeps=1)
     assert store.integrity_ok()
+    statuses = [r[0] for r in store.conn.execute("SELECT status FROM runs ORDER BY id")]
     store.close()
+    assert statuses[-1] == "finished" and set(statuses[:-1]) == {"interrupted"}
 
 
-def test_sigterm_exits_within_2_s_with_summary(tmp_path):
+def test_sigterm_stops_between_hops_with_summary(tmp_path):
+    """The stop is judged by what was stored, not by seconds: no more than the hop in flight
+    may start after the signal (hop UTC stamps against the signal's UTC time)."""
     db = tmp_path / "s.db"
     env = dict(os.environ, PYTHONPATH=str(ROOT))
     proc = subprocess.Popen(
@@ -107,19 +129,18 @@ def test_sigterm_exits_within_2_s_with_summary(tmp_path):
                 break
             assert time.monotonic() < deadline
         time.sleep(0.3)
-        t0 = time.monotonic()
+        signal_utc = datetime.now(timezone.utc).strftime("%Y-%m-%dT%H:%M:%S.%fZ")
         proc.send_signal(signal.SIGTERM)
-        out, err = proc.communicate(timeout=10)
-        took = time.monotonic() - t0
+        out, err = proc.communicate(timeout=120)
     finally:
         if proc.poll() is None:
             proc.kill()
     assert proc.returncode == 0, err
-    assert took < 2.0, took
     assert "stopped by SIGTERM" in out and "sweep(s) stored" in out and "elapsed" in out
     conn = sqlite3.connect(db)
     assert conn.execute("SELECT status FROM runs").fetchone()[0] == "stopped"
     assert conn.execute("SELECT COUNT(*) FROM events WHERE kind = 'stop'").fetchone()[0] == 1
+    assert conn.execute("SELECT COUNT(*) FROM hops WHERE started_utc > ?", (signal_utc,)).fetchone()[0] <= 1
     assert conn.execute("PRAGMA integrity_check").fetchone()[0] == "ok"
 
 
@@ -201,8 +222,8 @@ def test_reader_reads_while_a_scan_writes(tmp_path):
     proc.start()
     try:
         counts = []
-        deadline = time.monotonic() + 20
-        while (len(counts) < 30 or counts[-1] < 3) and time.monotonic() < deadline:
+        hang_guard = time.monotonic() + 300  # only against a hang: the loop ends on what it sees
+        while (len(counts) < 30 or counts[-1] < 3 or len(set(counts)) <= 2) and time.monotonic() < hang_guard:
             conn = open_for_reading(db)
             sweeps = list_sweeps(conn)
             if sweeps:

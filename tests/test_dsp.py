@@ -74,8 +74,25 @@ def test_clip_fraction_counts_rails():
     s8 = np.zeros(1000, np.int8)
     s8[:3], s8[3:8], s8[8:12] = -128, 127, 126
     assert dsp.clip_fraction(s8, "ci8") == pytest.approx(8 / 1000)
-    assert dsp.clip_fraction(np.zeros(10, "<i2"), "ci16_le") is None
-    assert dsp.clip_fraction(np.zeros(10, "<f4"), "cf32_le") is None
+    assert dsp.clip_fraction(np.zeros(10, "<i2"), "ci16_le") == 0.0
+    assert dsp.clip_fraction(np.zeros(10, "<f4"), "cf32_le") == 0.0
+    assert dsp.clip_fraction(np.zeros(0, "<f4"), "cf32_le") is None
+
+
+def test_clip_fraction_for_wide_and_float_data():
+    """Within one step of full scale: ci16 +-32767/32766 and below; cf32 |x| >= 1 - 1/128."""
+    i16 = np.zeros(1000, "<i2")
+    i16[:3] = 32767
+    i16[3:5] = -32768
+    i16[5] = 32766
+    i16[6] = 32765  # two steps inside: not counted
+    assert dsp.clip_fraction(i16, "ci16_le") == pytest.approx(6 / 1000)
+    f = np.full(1000, 0.1, "<f4")
+    f[:18] = 1.0           # rails of a receiver capture rescaled to +-1.0 (1.8 %)
+    f[18] = -1.0
+    f[19] = 127 / 128      # ci8's top code divided by 128: one step below 1.0 counts
+    f[20] = 0.98           # more than one 8-bit step below: not counted
+    assert dsp.clip_fraction(f, "cf32_le") == pytest.approx(20 / 1000)
 
 
 # --- PSD ---------------------------------------------------------------------------------------

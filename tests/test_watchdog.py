@@ -7,7 +7,6 @@ clear give-up) and the source usable again. Failure modes from the reliability n
 from __future__ import annotations
 
 import threading
-import time
 
 import pytest
 
@@ -54,18 +53,18 @@ def test_normal_operation_streams_whole_hops(tmp_path):
 def _fault_then_recover(tmp_path, factory, expect_text):
     log = Log()
     src = WatchedSource(factory, FAST, on_event=log)
-    t0 = time.monotonic()
+    first_child = None
     with pytest.raises(SweepInterrupted):
         for _ in range(5):
+            first_child = src._proc
             _hop(src)
-    elapsed = time.monotonic() - t0
+    assert first_child is not None and not first_child.is_alive()  # the faulty child was ended
     assert log.kinds() == ["receiver-error", "gap"], log.events
     assert expect_text in log.events[0][1]
     assert "reopened after 1 attempt" in log.events[1][1] and "dropped" in log.events[1][1]
     assert _hop(src).n_samples == 50_000  # usable again, in a new child
     assert src.faults == 1 and src.gaps == 1
     src.close()
-    return elapsed
 
 
 def test_unplug_mid_read_through_the_real_driver_wrapper(tmp_path):
@@ -77,13 +76,13 @@ def test_unplug_mid_read_through_the_real_driver_wrapper(tmp_path):
 
 def test_driver_read_that_never_returns_is_a_stall(tmp_path):
     factory = FakeDriverFactory(str(tmp_path), stub={"stall_read_at": 6})
-    elapsed = _fault_then_recover(tmp_path, factory, "stalled")
-    assert elapsed < 3.0
+    # A stall is recognised by the heartbeat timeout (the message names it), not by the read
+    # returning: the test checks that path was taken, not how many seconds it took.
+    _fault_then_recover(tmp_path, factory, "stalled")
 
 
 def test_stall(tmp_path):
-    elapsed = _fault_then_recover(tmp_path, FaultFactory(str(tmp_path), "stall", at_read=2), "no samples for 0.6 s")
-    assert elapsed < 3.0
+    _fault_then_recover(tmp_path, FaultFactory(str(tmp_path), "stall", at_read=2), "no samples for 0.6 s")
 
 
 def test_short_read(tmp_path):
@@ -153,11 +152,12 @@ def test_stop_request_abandons_a_stalled_child_quickly(tmp_path):
     src = WatchedSource(FaultFactory(str(tmp_path), "stall", at_read=1),
                         WatchdogSettings(stall_timeout_s=30.0, stop_grace_s=0.3), on_event=log, stop_event=stop)
     threading.Timer(0.2, stop.set).start()
-    t0 = time.monotonic()
     with pytest.raises(SweepInterrupted, match="stop requested"):
         _hop(src)
-    assert time.monotonic() - t0 < 1.5
-    assert log.events == []  # a stop is not a receiver fault
+    # Behaviour, not seconds: had the watchdog waited out its 30 s stall timeout, the hop would
+    # end as a stall (a receiver-error event and a reopening); a stop is not a receiver fault.
+    assert log.events == []
+    assert src.faults == 0
     src.close()
 
 
@@ -210,6 +210,6 @@ def test_close_with_read_ahead_in_flight_is_quick(tmp_path):
     src.plan_ahead([90e6, 94e6], 400_000)  # the read-ahead exceeds the pipe's buffer
     src.tune(90e6)
     src.read(400_000)
-    t0 = time.monotonic()
+    child = src._proc
     src.close()
-    assert time.monotonic() - t0 < 1.0
+    assert child is not None and not child.is_alive()  # ended, not left writing into a full pipe

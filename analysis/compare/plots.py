@@ -21,6 +21,7 @@ import numpy as np
 
 from analysis.compare.core import Comparison
 from analysis.errors import BadParameterError
+from survey.text import plot_label
 
 _BLUE = "#0072B2"
 _ORANGE = "#E69F00"
@@ -59,15 +60,15 @@ def plot_comparison(result: Comparison, path: str | Path, dpi: int = 120) -> Pat
     fig = Figure(figsize=(11, 9.5), layout="constrained")
     ax1, ax2, ax3 = fig.subplots(3, 1, sharex=True)
     fig.suptitle(
-        f"'{result.test}' (test) against '{result.base}' (base): SNR (C/N) per {result.unit}, "
+        f"'{plot_label(result.test)}' (test) against '{plot_label(result.base)}' (base): SNR (C/N) per {result.unit}, "
         f"{result.n_base_sweeps} + {result.n_test_sweeps} sweeps, {'paired' if result.paired else 'unpaired'}"
     )
 
     both = np.isfinite(base_cn) & np.isfinite(test_cn)
     ax1.vlines(f_mhz[both], base_cn[both], test_cn[both], colors=_GREY, linestyles=":", linewidth=1)
     ax1.plot(f_mhz, base_cn, linestyle="none", color=_BLUE, marker="o", markerfacecolor="white",
-             label=f"base: {result.base}")
-    ax1.plot(f_mhz, test_cn, linestyle="none", color=_ORANGE, marker="s", label=f"test: {result.test}")
+             label=f"base: {plot_label(result.base)}")
+    ax1.plot(f_mhz, test_cn, linestyle="none", color=_ORANGE, marker="s", label=f"test: {plot_label(result.test)}")
     listen = result.summary["listenable"]
     for level, what, style in ((listen["mono_cn_db"], "mono", ":"), (listen["stereo_cn_db"], "stereo", "--")):
         ax1.axhline(level, color=_GREY, linestyle=style, linewidth=1,

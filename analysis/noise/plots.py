@@ -15,6 +15,7 @@ from matplotlib.figure import Figure
 
 from analysis.noise.workflow import NoiseResult
 from analysis.noise.outside import ENVIRONMENTS, decile_fa_db, median_fa_db
+from survey.text import plot_label
 
 # Dark to light so that greyscale keeps them apart; each also has its own marker / dash.
 _NF_SERIES = (
@@ -64,8 +65,8 @@ def plot_noise(result: NoiseResult, path: str | Path, dpi: int = 120) -> Path:
             ax_nf.fill_between(f_mhz, y - u, y + u, color=colour, alpha=0.18, linewidth=0,
                                label="preamp NF ±1 standard uncertainty")
     ax_nf.set_ylabel("noise figure (dB)")
-    ax_nf.set_title(f"Noise figure: '{result.receiver}' and '{result.system}'" if result.system
-                    else f"Noise figure: '{result.receiver}'")
+    ax_nf.set_title(f"Noise figure: '{plot_label(result.receiver)}' and '{plot_label(result.system)}'"
+                    if result.system else f"Noise figure: '{plot_label(result.receiver)}'")
     ax_nf.grid(True, color="#dddddd")
     if plotted:
         ax_nf.legend(fontsize="small")

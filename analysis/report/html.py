@@ -12,7 +12,6 @@ every page, figures are kept whole, and nothing is hidden.
 
 from __future__ import annotations
 
-import html
 import os
 import time
 from dataclasses import dataclass
@@ -22,6 +21,7 @@ from typing import Iterable, Mapping
 from analysis.diagnose.core import summarise_findings
 from analysis.errors import BadParameterError
 from analysis.report.build import SECTIONS, Report, build_report
+from survey.text import html_label
 
 _CSS = """
 :root { --ink: #1d1d1b; --muted: #55554f; --rule: #b9b6ad; --band: #f1efe8; --warn: #7a3b00; }
@@ -82,8 +82,9 @@ _VERDICT_MARK = {"improved": "▲", "worse": "▼", "gained": "+", "lost": "−"
 
 
 def e(value: object) -> str:
-    """Escape any value for HTML text or a quoted attribute (``html.escape``, quotes too)."""
-    return html.escape(str(value), quote=True)
+    """Escape any value for HTML text or a quoted attribute (``html.escape``, quotes too), with
+    control characters other than tab and line breaks shown as ``?``."""
+    return html_label(value)
 
 
 def _num(value: float | None, fmt: str = "{:+.1f}") -> str:

@@ -7,14 +7,37 @@ import statistics
 import click
 
 from bandcensus import __version__
-from bandcensus.commands._common import db_option, echo_json, json_option
+from bandcensus.commands._common import FiniteFloat, db_option, echo_json, json_option
 from bandcensus.commands._tables import channel_rows_table, print_table
 from survey.bandplan import parse_band
 from survey.records import INPUT_KINDS, RunInfo, SweepSettings
-from survey.runner import record_sweep
+from survey.errors import RecordingError, SurveyError
+from survey.session import CaptureSession
 from survey.sources.recording import open_recording
 from survey.store import SurveyStore
 from survey.sweep import plan_for_source
+from survey.text import plain_text, terminal_label
+
+
+def inside_guard(plan, source, settings) -> tuple[int, ...]:
+    """Channels left out of a single-capture plan only because they overlap the DC guard."""
+    centre = source.fixed_centers_hz[0]
+    half_usable = settings.usable_fraction * source.sample_rate_hz / 2.0
+    half_bw = settings.channel_bw_hz / 2.0
+    return tuple(int(f) for f in plan.uncovered_hz
+                 if abs(f - centre) + half_bw <= half_usable and abs(f - centre) - half_bw < settings.dc_guard_hz)
+
+
+def _open_with_progress(path: str, quiet: bool):
+    """Open a recording; show the pass over its data (checksum, sample check) when it is large."""
+    from rich.console import Console
+    from rich.progress import BarColumn, DownloadColumn, Progress, TextColumn
+
+    console = Console(stderr=True)
+    with Progress(TextColumn("checking {task.description}"), BarColumn(), DownloadColumn(), console=console,
+                  transient=True, disable=quiet or not console.is_terminal) as bar:
+        task = bar.add_task(terminal_label(path), total=None)
+        return open_recording(path, progress=lambda done, total: bar.update(task, completed=done, total=total))
 
 
 @click.command("replay")
@@ -33,10 +56,13 @@ from survey.sweep import plan_for_source
               help="Half-width in kHz around each capture's centre excluded for the DC spike.")
 @click.option("--fft-size", default=2048, show_default=True, type=click.IntRange(64, 1 << 18),
               help="FFT length of the averaged periodogram.")
+@click.option("--skip-ms", type=FiniteFloat(0.0, 60_000.0),
+              help="Leave out this much of the start of every capture, ms (default: detect a start-up "
+                   "transient and leave it out; 0: keep everything).")
 @click.option("--quiet", is_flag=True, help="Do not print the per-channel table.")
 @json_option
 def command(recordings, db_path, configuration, input_kind, band, channel_bw_khz, usable_fraction,
-            dc_guard_khz, fft_size, quiet, as_json):
+            dc_guard_khz, fft_size, skip_ms, quiet, as_json):
     """Replay SigMF RECORDINGS (one sweep each) into the database at --db.
 
     Any SigMF recording of the band replays: ours (one capture per hop) or a foreign one
@@ -44,17 +70,23 @@ def command(recordings, db_path, configuration, input_kind, band, channel_bw_khz
     whole bandwidth a capture covers is measured; the rest are listed as not covered.
     """
     plan_band = parse_band(band)
-    # Open (and so validate) every recording before anything is written.
-    sources = [open_recording(path) for path in recordings]
+    # Open (and so validate: metadata, checksum, finite samples, FFT fill) every recording
+    # before anything is written.
+    sources = [_open_with_progress(path, quiet or as_json) for path in recordings]
     jobs = []
+    warnings_out = []
+    notes_by_path: dict[str, list[str]] = {}
     for path, source in zip(recordings, sources):
+        notes_by_path[str(source.path)] = source.skip_start(None if skip_ms is None else skip_ms / 1e3)
+        warnings_out.extend(source.check_fft(fft_size))
         labels = source.metadata_labels()
         cfg = configuration or labels.get("configuration")
         if not cfg:
             raise click.UsageError(f"{path} carries no configuration label; give --config LABEL")
         inp = input_kind or labels.get("input") or "antenna"
         if inp not in INPUT_KINDS:
-            raise click.UsageError(f"{path} has input label {inp!r}; give --input ({', '.join(INPUT_KINDS)})")
+            raise RecordingError(f"{path} has input label {inp!r}, not one of ours; give --input "
+                                 f"({', '.join(INPUT_KINDS)})")
         settings = SweepSettings(
             band=plan_band.name,
             channel_bw_hz=channel_bw_khz * 1e3,
@@ -68,33 +100,48 @@ def command(recordings, db_path, configuration, input_kind, band, channel_bw_khz
             ppm=int(labels.get("ppm") or 0),
         )
         plan = plan_for_source(plan_band, source, settings)
-        jobs.append((path, source, cfg, inp, settings, plan))
+        # One capture cannot be re-tuned away from its DC spike: the channels the plan leaves
+        # out for the guard are measured from a DC-notched spectrum instead of dropped.
+        notch = inside_guard(plan, source, settings) if source.n_captures == 1 and settings.dc_guard_hz > 0 else ()
+        jobs.append((path, source, cfg, inp, settings, plan, notch))
+    for text in warnings_out:
+        click.echo(f"Warning: {plain_text(text)}", err=True)
 
+    info = RunInfo(
+        source_kind="recording",
+        device="; ".join(str(s.describe().get("hw") or s.describe().get("path")) for s in sources),
+        tool_version=__version__,
+        settings={"band": band, "channel_bw_hz": channel_bw_khz * 1e3, "usable_fraction": usable_fraction,
+                  "dc_guard_hz": dc_guard_khz * 1e3, "fft_size": fft_size,
+                  "recordings": [str(p) for p in recordings]},
+        seed=next((s.metadata_labels().get("seed") for s in sources if s.metadata_labels().get("seed") is not None), None),
+    )
     store = SurveyStore(db_path)
     summaries = []
     try:
-        run_id = store.begin_run(RunInfo(
-            source_kind="recording",
-            device="; ".join(str(s.describe().get("hw") or s.describe().get("path")) for s in sources),
-            tool_version=__version__,
-            settings={"band": band, "channel_bw_hz": channel_bw_khz * 1e3, "usable_fraction": usable_fraction,
-                      "dc_guard_hz": dc_guard_khz * 1e3, "fft_size": fft_size,
-                      "recordings": [str(p) for p in recordings]},
-            seed=next((s.metadata_labels().get("seed") for s in sources if s.metadata_labels().get("seed") is not None), None),
-        ))
-        status = "failed"
-        try:
-            for path, source, cfg, inp, settings, plan in jobs:
-                outcome = record_sweep(store, run_id, source, plan, settings, cfg, inp)
+        with CaptureSession(store, info) as session:
+            run_id = session.run_id
+            for path, source, cfg, inp, settings, plan, notch in jobs:
+                if session.stopped:
+                    break
+                try:
+                    notes = "; ".join(notes_by_path.get(str(source.path), []) + [
+                        w.split(": ", 1)[1] for w in warnings_out if w.startswith(f"{source.path}:")])
+                    outcome = session.record(source, plan, settings, cfg, inp, recording=str(path), notes=notes,
+                                             dc_notch_hz=settings.dc_guard_hz, notch_channels_hz=notch)
+                except (SurveyError, OSError) as exc:
+                    done = f"; the sweeps of the {len(summaries)} earlier recording(s) are stored" if summaries else ""
+                    text = str(exc) if isinstance(exc, SurveyError) else (exc.strerror or str(exc))
+                    if str(path) not in text:
+                        text = f"{path}: {text}"
+                    raise (type(exc) if isinstance(exc, SurveyError) else RecordingError)(f"{text}{done}") from exc
                 summaries.append((path, outcome, plan))
                 source.close()
-            status = "finished"
-        finally:
-            store.end_run(run_id, status)
     finally:
         store.close()
         for s in sources:
             s.close()
+    summary = session.summary()
 
     payload = []
     for path, outcome, plan in summaries:
@@ -103,18 +150,32 @@ def command(recordings, db_path, configuration, input_kind, band, channel_bw_khz
              "cn_db": c.cn_db, "received": c.received, "sweeps": 1}
             for c in sorted(outcome.result.channels, key=lambda c: c.freq_hz)
         ]
-        payload.append({"recording": str(path), "sweep_id": outcome.sweep_id,
+        clips = [h.clip_fraction for h in outcome.result.hops if h.clip_fraction is not None]
+        payload.append({"recording": str(path), "sweep_id": outcome.sweep_id, "complete": outcome.result.complete,
+                        "max_clip_fraction": max(clips) if clips else None,
+                        "no_signal": bool(outcome.no_signal_hops), "notes": outcome.result.notes,
                         "configuration": outcome.result.configuration, "input": outcome.result.input,
-                        "channels": rows, "uncovered_hz": list(plan.uncovered_hz)})
+                        "channels": rows, "uncovered_hz": sorted(set(plan.uncovered_hz) - {r["freq_hz"] for r in rows})})
     if as_json:
-        echo_json({"run_id": run_id, "sweeps": payload})
+        echo_json({"run_id": run_id, "status": summary.status, "stop_signal": summary.stop_signal,
+                   "sweeps": payload})
         return
     for item in payload:
         received = sum(1 for r in item["channels"] if r["received"])
+        if item["no_signal"]:
+            click.echo(f"{plain_text(item['recording'])}: sweep {item['sweep_id']}: {plain_text(item['notes'])}")
+            continue
         click.echo(
-            f"{item['recording']}: sweep {item['sweep_id']} ({item['configuration']}, {item['input']}): "
+            f"{plain_text(item['recording'])}: sweep {item['sweep_id']} ({plain_text(item['configuration'])}, "
+            f"{item['input']}): "
             f"{len(item['channels'])} channels measured, {received} received, "
             f"{len(item['uncovered_hz'])} of band '{plan_band.name}' not covered by the recording"
+            + (f"; clipping up to {100 * item['max_clip_fraction']:.3f} % of samples (within one step of full "
+               "scale): lower the gain" if item["max_clip_fraction"] else "")
         )
+        for note in filter(None, str(item["notes"]).split("; ")):
+            click.echo(f"  note: {plain_text(note)}")
         if not quiet:
-            print_table(channel_rows_table(item["channels"], f"Recording {item['recording']}"))
+            print_table(channel_rows_table(item["channels"], f"Recording {terminal_label(item['recording'])}"))
+    if summary.status == "stopped":
+        click.echo(summary.line())

@@ -7,7 +7,9 @@ from rich.table import Table
 
 from bandcensus.commands._common import db_option, echo_json, json_option
 from bandcensus.commands._tables import print_table
+from survey.session import shown_status
 from survey.store import list_runs, open_for_reading
+from survey.text import terminal_label
 
 
 @click.command("runs")
@@ -20,19 +22,24 @@ def command(db_path, as_json):
         runs = list_runs(conn)
     finally:
         conn.close()
+    for r in runs:  # a run left 'running' by a process that is gone is shown as interrupted
+        r["stored_status"] = r["status"]
+        r["status"] = shown_status(r)
     if as_json:
         echo_json({"runs": runs})
         return
     if not runs:
         click.echo(f"{db_path}: no runs yet")
         return
-    table = Table(title=f"Runs in {db_path}", title_justify="left")
+    table = Table(title=f"Runs in {terminal_label(db_path)}", title_justify="left")
     for col in ("id", "started (UTC)", "source", "status", "sweeps", "incomplete", "gaps"):
         table.add_column(col, no_wrap=True, justify="right" if col in ("id", "sweeps", "incomplete", "gaps") else "left")
     table.add_column("configurations")
     table.add_column("inputs")
     for r in runs:
-        table.add_row(str(r["id"]), r["started_utc"][:16].replace("T", " "), r["source_kind"], r["status"],
+        table.add_row(str(r["id"]), terminal_label(str(r["started_utc"])[:16].replace("T", " ")),
+                      terminal_label(r["source_kind"]), terminal_label(r["status"]),
                       str(r["complete_sweeps"]), str(r["incomplete_sweeps"]), str(r["gaps"]),
-                      ", ".join(r["configurations"]), ", ".join(r["inputs"]))
+                      ", ".join(terminal_label(c) for c in r["configurations"]),
+                      ", ".join(terminal_label(i) for i in r["inputs"]))
     print_table(table)

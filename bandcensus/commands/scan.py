@@ -16,12 +16,13 @@ from datetime import datetime
 import click
 
 from bandcensus import __version__
-from bandcensus.commands._common import db_option
+from bandcensus.commands._common import FiniteFloat, db_option
 from survey.bandplan import parse_band
 from survey.errors import ScheduleError
 from survey.records import INPUT_KINDS, RunInfo, SweepSettings
 from survey.schedule import ScheduleProgress, StopRequest, parse_duration_s, parse_until, run_schedule
 from survey.store import SurveyStore
+from survey.text import plain_text
 from survey.watchdog import WatchdogSettings, WatchedSource
 
 
@@ -54,10 +55,11 @@ def _factory(device, sample_rate_hz, gain_db, ppm, settle_s, simulate_scene, sou
         except (ImportError, AttributeError) as exc:
             raise click.BadParameter(f"cannot import {source_factory!r}: {exc}", param_hint="--source-factory")
     if simulate_scene:
-        from survey.scene import load_scene
         from survey.sources.simulated import SimulatedSource
 
-        scene = load_scene(simulate_scene)
+        from bandcensus.commands.simulate import load_scene_file
+
+        scene = load_scene_file(simulate_scene)
         configuration = label if label in scene.configurations else "bare"
         return functools.partial(SimulatedSource, scene, configuration, input_kind, seed,
                                  sample_rate_hz=sample_rate_hz, settle_s=settle_s), "simulated"
@@ -85,14 +87,14 @@ class _Reporter:
             floor = "n/a" if p.noise_floor_dbfs_hz is None else f"{p.noise_floor_dbfs_hz:.1f} dBFS/Hz"
             nxt = f", next in {p.next_sweep_in_s:.0f} s" if p.next_sweep_in_s else ""
             self._clear()
-            self.console.print(f"sweep {p.sweep_number}{total} [{p.configuration}] took {p.last_sweep_s:.1f} s; "
+            self.console.print(f"sweep {p.sweep_number}{total} [{plain_text(p.configuration)}] took {p.last_sweep_s:.1f} s; "
                                f"floor {floor}; strongest {strongest}; elapsed {p.elapsed_s:.0f} s{left}{nxt}")
         elif p.event == "gap":
             self._clear()
-            self.console.print(f"receiver fault: sweep [{p.configuration}] dropped, receiver reopened "
+            self.console.print(f"receiver fault: sweep [{plain_text(p.configuration)}] dropped, receiver reopened "
                                f"({p.gaps} so far)")
         elif self.live and p.event == "hop":
-            self._show(f"sweep {p.sweep_number}{total} [{p.configuration}] hop {p.hop_index + 1}/{p.n_hops}, "
+            self._show(f"sweep {p.sweep_number}{total} [{plain_text(p.configuration)}] hop {p.hop_index + 1}/{p.n_hops}, "
                        f"elapsed {p.elapsed_s:.0f} s{left}")
         elif self.live and p.event == "wait":
             self._show(f"next sweep in {p.next_sweep_in_s:.0f} s{left}")
@@ -119,12 +121,12 @@ class _Reporter:
               help="What the receiver input sees.")
 @click.option("--band", default="europe", show_default=True,
               help="Band plan: europe, americas, japan[:UPPER_MHZ], oirt or custom:START-STOP:RASTER_KHZ.")
-@click.option("--gain-db", type=float, help="Manual tuner gain in dB (one of the tuner's steps; "
+@click.option("--gain-db", type=FiniteFloat(-20.0, 100.0), help="Manual tuner gain in dB (one of the tuner's steps; "
               "'bandcensus devices' lists them). Default: tuner AGC, not recommended for measurements.")
-@click.option("--ppm", default=0, show_default=True, type=int, help="Frequency correction, whole ppm.")
-@click.option("--sample-rate", "sample_rate", default=2.4, show_default=True, type=float,
+@click.option("--ppm", default=0, show_default=True, type=click.IntRange(-1000, 1000), help="Frequency correction, whole ppm.")
+@click.option("--sample-rate", "sample_rate", default=2.4, show_default=True, type=FiniteFloat(0.2, 3.2e6),
               help="Sample rate in MS/s (or in Hz when 100000 or more).")
-@click.option("--dwell-ms", default=100.0, show_default=True, type=click.FloatRange(min=0.5),
+@click.option("--dwell-ms", default=100.0, show_default=True, type=FiniteFloat(0.5, 10_000.0),
               help="Samples measured per hop, milliseconds.")
 @click.option("--settle-ms", default=20.0, show_default=True, type=click.FloatRange(min=0.0),
               help="Samples discarded after each retune, milliseconds (at least 32768 samples are).")

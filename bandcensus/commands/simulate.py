@@ -3,28 +3,60 @@
 from __future__ import annotations
 
 import re
+from pathlib import Path
 
 import click
 
 from bandcensus import __version__
-from bandcensus.commands._common import db_option, echo_json, json_option
+from bandcensus.commands._common import FiniteFloat, db_option, echo_json, json_option, seed_type
 from survey.bandplan import parse_band
 from survey.records import RunInfo, SweepSettings
-from survey.runner import record_sweep
-from survey.scene import SIM_INPUTS, load_scene
+from survey.errors import SceneError
+from survey.scene import SIM_INPUTS, Scene, load_scene
+from survey.session import CaptureSession
 from survey.sources.simulated import SimulatedSource
 from survey.store import SurveyStore
 from survey.sweep import plan_for_source
+from survey.text import plain_text, terminal_label
 
 _UNITS_S = {"": 1.0, "s": 1.0, "m": 60.0, "min": 60.0, "h": 3600.0}
 
 
+#: Longest interval accepted (one year): longer ones are typing mistakes and overflow clocks.
+MAX_INTERVAL_S = 366 * 86400.0
+
+
 def parse_interval_s(text: str) -> float:
     """``"60s"``, ``"5m"``, ``"1h"`` or ``"90"`` (seconds) to seconds; click.BadParameter otherwise."""
-    m = re.fullmatch(r"\s*([0-9]*\.?[0-9]+)\s*(s|m|min|h)?\s*", str(text))
+    m = re.fullmatch(r"\s*([0-9]*\.?[0-9]+)\s*(s|m|min|h)?\s*", str(text)[:100])
     if not m:
-        raise click.BadParameter(f"expected a duration such as 60s, 5m or 1h, got {text!r}", param_hint="--every")
-    return float(m.group(1)) * _UNITS_S[m.group(2) or ""]
+        shown = str(text) if len(str(text)) <= 40 else str(text)[:37] + "..."
+        raise click.BadParameter(f"expected a duration such as 60s, 5m or 1h, got {shown!r}", param_hint="--every")
+    seconds = float(m.group(1)) * _UNITS_S[m.group(2) or ""]
+    if not seconds <= MAX_INTERVAL_S:
+        raise click.BadParameter(f"{m.group(0).strip()[:40]} is longer than a year; give at most 366 days",
+                                 param_hint="--every")
+    return seconds
+
+
+def load_scene_file(path: str) -> "Scene":
+    """Load a scene file, refusing one that is not text (binary data) with a one-line SceneError."""
+    if not Path(path).is_file():
+        return load_scene(path)  # its own message for a missing file or a folder
+    try:
+        with open(path, "rb") as fh:
+            head = fh.read(1 << 20)
+    except OSError as exc:
+        raise SceneError(f"{path}: cannot read the scene file ({exc.strerror}); check the path") from None
+    try:
+        head.decode("utf-8")
+    except UnicodeDecodeError as exc:
+        if exc.start < len(head) - 4:  # not just a character cut at the 1 MiB boundary
+            raise SceneError(f"{path} is not a text scene file (binary data at byte {exc.start}); "
+                             "give a scene .toml file such as recordings_demo/quorrelby_hill.toml") from None
+    if b"\0" in head:
+        raise SceneError(f"{path} is not a text scene file (NUL bytes); give a scene .toml file") from None
+    return load_scene(path)
 
 
 def _progress(enabled: bool):
@@ -47,10 +79,10 @@ def _progress(enabled: bool):
 @click.option("--every", "every", default="60s", show_default=True,
               help="Simulated time from one sweep start to the next (e.g. 60s, 5m, 1h).")
 @click.option("--alternate", help="Alternate configurations sweep by sweep, e.g. bare,preamp-peaked.")
-@click.option("--seed", default=0, show_default=True, type=int, help="Random seed (recorded with the run).")
+@click.option("--seed", default=0, show_default=True, type=seed_type, help="Random seed (recorded with the run).")
 @click.option("--band", default="europe", show_default=True,
               help="Band plan: europe, americas, japan[:UPPER_MHZ], oirt or custom:START-STOP:RASTER_KHZ.")
-@click.option("--dwell-ms", default=100.0, show_default=True, type=click.FloatRange(min=0.5),
+@click.option("--dwell-ms", default=100.0, show_default=True, type=FiniteFloat(0.5, 10_000.0),
               help="Samples measured per hop, in milliseconds.")
 @click.option("--keep-iq", "keep_iq", type=click.Path(file_okay=False),
               help="Keep each sweep's IQ as a SigMF recording in this folder.")
@@ -64,7 +96,7 @@ def command(scene_path, db_path, configuration, input_kind, sweeps, every, alter
     configuration, or --alternate A,B to switch between them sweep by sweep (A/B pairs).
     """
     interval_s = parse_interval_s(every)
-    scene = load_scene(scene_path)
+    scene = load_scene_file(scene_path)
     if alternate:
         labels = [a.strip() for a in alternate.split(",") if a.strip()]
         if len(labels) < 2:
@@ -89,59 +121,62 @@ def command(scene_path, db_path, configuration, input_kind, sweeps, every, alter
               "description": f"SIMULATED sweep of scene '{scene.name}' (invented stations), seed {seed}"}
     store = SurveyStore(db_path)
     done = []
+    info = RunInfo(
+        source_kind="simulated", device=device, tool_version=__version__,
+        settings={"scene": str(scene_path), "band": band, "dwell_s": settings.dwell_s, "every_s": interval_s,
+                  "configurations": labels, "input": input_kind, "sweeps": sweeps,
+                  "sample_rate_hz": source.sample_rate_hz},
+        seed=int(seed), notes="SIMULATED",
+    )
     try:
-        run_id = store.begin_run(RunInfo(
-            source_kind="simulated", device=device, tool_version=__version__,
-            settings={"scene": str(scene_path), "band": band, "dwell_s": settings.dwell_s, "every_s": interval_s,
-                      "configurations": labels, "input": input_kind, "sweeps": sweeps,
-                      "sample_rate_hz": source.sample_rate_hz},
-            seed=int(seed), notes="SIMULATED",
-        ))
-        status = "failed"
-        try:
+        with CaptureSession(store, info, keep_iq_dirs=[keep_iq]) as session:
+            run_id = session.run_id
             with _progress(not as_json) as progress:
                 task = progress.add_task("sweep", total=sweeps)
                 for k in range(sweeps):
+                    if session.stopped:
+                        break
                     label = labels[k % len(labels)]
                     source.set_chain(label, input_kind)
-                    progress.update(task, description=f"sweep {k + 1} of {sweeps} ({label}, {input_kind})")
+                    progress.update(task, description=f"sweep {k + 1} of {sweeps} ({terminal_label(label)}, {input_kind})")
                     start_s = source.time_s
-                    outcome = record_sweep(store, run_id, source, plan, settings, label, input_kind,
-                                           keep_iq_dir=keep_iq, recording_fields=fields)
+                    outcome = session.record(source, plan, settings, label, input_kind,
+                                             keep_iq_dir=keep_iq, recording_fields=fields)
                     done.append(outcome)
                     progress.advance(task)
                     if k + 1 < sweeps:
                         source.advance(max(0.0, interval_s - (source.time_s - start_s)))
-            status = "finished"
-        except KeyboardInterrupt:
-            status = "stopped"
-            raise
-        finally:
-            store.end_run(run_id, status)
     finally:
         store.close()
         source.close()
+    summary = session.summary()
     rows = [
         {"sweep_id": o.sweep_id, "configuration": o.result.configuration, "input": o.result.input,
          "started_utc": o.result.started_utc, "channels": len(o.result.channels),
          "received": sum(1 for c in o.result.channels if c.received),
          "max_clip_fraction": max((h.clip_fraction or 0.0) for h in o.result.hops) if o.result.hops else None,
+         "complete": bool(o.result.complete),
          "recording": None if o.recording_path is None else str(o.recording_path)}
         for o in done
     ]
     if as_json:
-        echo_json({"run_id": run_id, "scene": scene.name, "seed": int(seed), "simulated": True, "sweeps": rows})
+        echo_json({"run_id": run_id, "scene": scene.name, "seed": int(seed), "simulated": True,
+                   "status": summary.status, "stop_signal": summary.stop_signal, "sweeps": rows})
         return
-    click.echo(f"SIMULATED scene '{scene.name}', seed {seed}: run {run_id}, {len(rows)} sweep(s) of "
+    click.echo(f"SIMULATED scene '{plain_text(scene.name)}', seed {seed}: run {run_id}, {len(rows)} sweep(s) of "
                f"{len(plan.hops)} hops into {db_path}")
     for r in rows:
-        line = (f"  sweep {r['sweep_id']} {r['started_utc']} {r['configuration']}/{r['input']}: "
+        line = (f"  sweep {r['sweep_id']} {r['started_utc']} {plain_text(r['configuration'])}/{r['input']}: "
                 f"{r['received']} of {r['channels']} channels received")
         if r["max_clip_fraction"]:
             line += f", clipping up to {100 * r['max_clip_fraction']:.3f} % of samples"
         if r["recording"]:
             line += f" -> {r['recording']}"
+        if not r["complete"]:
+            line += " (incomplete: stopped)"
         click.echo(line)
+    if summary.status == "stopped":
+        click.echo(summary.line())
 
 
 __all__ = ["command", "parse_interval_s"]

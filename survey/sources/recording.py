@@ -1,7 +1,8 @@
 """Replay of SigMF recordings: each capture segment is one hop at a fixed centre frequency.
 
-A recording is read with the ``sigmf`` reference library (metadata, schema validation, SHA-512
-checksum), but the samples are taken as **raw bytes**, memory-mapped straight from the data
+A recording is read with the ``sigmf`` reference library (metadata, schema validation); the
+SHA-512 checksum is computed here in one streamed pass with progress
+(:func:`survey.sources.recording_checks.stream_check`); the samples are taken as **raw bytes**, memory-mapped straight from the data
 file (or from inside an uncompressed ``.sigmf`` archive), in their native datatype. sigmf's
 autoscale is not used: it scales ``cu8`` as ``(x - 128) / 128`` while the receiver library and
 :func:`survey.dsp.to_complex64` use ``(x - 127.5) / 127.5``, and live and replayed samples must
@@ -48,33 +49,26 @@ import numpy as np
 import sigmf
 from sigmf.error import SigMFError
 
-from survey.dsp import SUPPORTED_DATATYPES
 from survey.errors import RecordingError
 from survey.records import IQBlock
 from survey.sources.sigmf_schema import validate_metadata
+from survey.sources.recording_checks import (  # noqa: F401 (COMPONENT_DTYPES re-exported)
+    CHECK_BLOCK_BYTES, COMPONENT_DTYPES, FEW_AVERAGES, check_fft_fill, check_global, check_layout, stream_check,
+)
+
+#: Default most samples measured per capture (hop): longer captures are measured over windows
+#: spread evenly across them (see :meth:`RecordingSource.read`), so memory stays bounded.
+DEFAULT_MAX_HOP_SAMPLES = 1 << 23
 
 #: Our own metadata namespace in SigMF files (declared in ``core:extensions``).
 NAMESPACE = "bandcensus"
 #: Version of the fields of our namespace (not the tool version).
 NAMESPACE_VERSION = "0.1.0"
 
-#: numpy dtype of one interleaved component (I or Q) for each supported SigMF datatype.
-COMPONENT_DTYPES: dict[str, np.dtype] = {
-    "cu8": np.dtype(np.uint8),
-    "ci8": np.dtype(np.int8),
-    "ci16_le": np.dtype("<i2"),
-    "cf32_le": np.dtype("<f4"),
-}
-
 _UTC_FORMAT = "%Y-%m-%dT%H:%M:%S.%fZ"  # the format of survey.store.utc_now()
-_NCD_KEYS = ("core:dataset", "core:trailing_bytes")
 _COMPRESSED_SUFFIXES = (".sigmf.gz", ".sigmf.xz", ".sigmf.zip")
 #: Centres within this many Hz of a capture's core:frequency select it (Hop centres are ints).
 CENTER_TOLERANCE_HZ = 1.0
-
-
-def _supported_datatypes() -> tuple[str, ...]:
-    return tuple(d for d in SUPPORTED_DATATYPES if d in COMPONENT_DTYPES)
 
 
 def normalize_utc(text: str) -> str:
@@ -100,6 +94,7 @@ def normalize_utc(text: str) -> str:
 
 
 def _utc_plus(utc: str, seconds: float) -> str:
+    """``utc`` plus ``seconds``; OverflowError past the years 1-9999 (the checks at opening catch it)."""
     dt = datetime.strptime(utc, _UTC_FORMAT).replace(tzinfo=timezone.utc)
     return (dt + timedelta(seconds=seconds)).strftime(_UTC_FORMAT)
 
@@ -114,6 +109,20 @@ class _Capture:
     n_samples: int
     started_utc: str
     time_source: str
+
+
+#: Plausible ranges of our namespace's numeric labels (a ppm beyond 1000 is not a receiver's
+#: error but a damaged file; seeds are stored as SQLite INTEGER).
+_LABEL_RANGES = {"ppm": (-1000, 1000), "seed": (0, 2**63 - 1), "gain_db": (-20.0, 100.0),
+                 "channel_bw_hz": (1.0, 1e8)}
+
+
+_KIND_NAMES = {str: "text", int: "an integer", float: "a number"}
+
+
+def _short(value: object) -> str:
+    text = repr(value)
+    return text if len(text) <= 40 else text[:37] + "..."
 
 
 def _resolve(path: Path) -> tuple[str, Path]:
@@ -139,6 +148,11 @@ def _resolve(path: Path) -> tuple[str, Path]:
 def _load_json(raw: bytes, where: Path) -> dict:
     try:
         meta = json.loads(raw.decode("utf-8"))
+    except RecursionError:
+        raise RecordingError(
+            f"{where}: metadata is nested too deeply to read (thousands of levels of JSON); "
+            "give the .sigmf-meta file of a SigMF recording"
+        ) from None
     except (UnicodeDecodeError, ValueError) as exc:
         raise RecordingError(
             f"{where}: metadata is not JSON ({exc}); give the .sigmf-meta file of a SigMF recording"
@@ -182,99 +196,6 @@ def _read_archive(path: Path) -> tuple[dict, Path, int]:
     except tarfile.TarError as exc:
         raise RecordingError(f"{path}: not a SigMF archive ({exc}); give an uncompressed .sigmf tar file") from None
     return _load_json(raw, path), path, size
-
-
-def _check_number(value, what: str, where: Path, remedy: str) -> float:
-    if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value):
-        raise RecordingError(f"{where}: {what} is {value!r}, not a number; {remedy}")
-    return float(value)
-
-
-def _check_global(meta: dict, where: Path) -> tuple[str, float]:
-    g = meta["global"]
-    supported = _supported_datatypes()
-    datatype = g.get(sigmf.DATATYPE_KEY)
-    if datatype not in supported:
-        raise RecordingError(
-            f"{where}: datatype {datatype!r} is not supported; supported: {', '.join(supported)} "
-            "(convert the recording to one of them)"
-        )
-    if g.get(sigmf.NUM_CHANNELS_KEY, 1) != 1:
-        raise RecordingError(
-            f"{where}: {g.get(sigmf.NUM_CHANNELS_KEY)} interleaved channels; only single-channel recordings "
-            "replay (split the channels into separate recordings)"
-        )
-    for key in _NCD_KEYS:
-        if g.get(key):
-            raise RecordingError(
-                f"{where}: non-conforming dataset ({key}); convert it to a conforming .sigmf-data file"
-            )
-    if sigmf.SAMPLE_RATE_KEY not in g:
-        raise RecordingError(
-            f"{where}: core:sample_rate is missing, so frequencies cannot be known; add it to the global object"
-        )
-    rate = _check_number(g[sigmf.SAMPLE_RATE_KEY], "core:sample_rate", where, "set it in samples per second")
-    if rate <= 0:
-        raise RecordingError(f"{where}: core:sample_rate is {rate!r}; set a positive rate in samples per second")
-    return datatype, rate
-
-
-def _check_layout(meta: dict, where: Path, data_bytes: int, sample_bytes: int) -> tuple[int, list[int], list[float]]:
-    """Whole samples, captures with centres and starts inside the data, annotations inside it."""
-    captures = meta.get("captures")
-    if not isinstance(captures, list) or not captures:
-        raise RecordingError(
-            f"{where}: no capture segments, so no centre frequency is known; add captures with core:frequency"
-        )
-    if data_bytes == 0:
-        raise RecordingError(f"{where}: the recording is empty (0 bytes of samples); record again")
-    n_total, remainder = divmod(data_bytes, sample_bytes)
-    if remainder:
-        raise RecordingError(
-            f"{where}: data is {data_bytes} bytes, not a whole number of {sample_bytes}-byte samples "
-            "(file cut short or wrong datatype); re-copy the recording or fix core:datatype"
-        )
-    starts, centers = [], []
-    for k, cap in enumerate(captures):
-        if not isinstance(cap, dict) or sigmf.FREQUENCY_KEY not in cap:
-            raise RecordingError(
-                f"{where}: capture {k} has no core:frequency, so its channels are unknown; add the centre "
-                "frequency to every capture"
-            )
-        if cap.get("core:header_bytes"):
-            raise RecordingError(
-                f"{where}: capture {k} has core:header_bytes (non-conforming dataset); convert it to a "
-                "conforming .sigmf-data file"
-            )
-        centers.append(_check_number(cap[sigmf.FREQUENCY_KEY], f"core:frequency of capture {k}", where,
-                                     "set it in Hz"))
-        start = cap.get(sigmf.SAMPLE_START_KEY)
-        if isinstance(start, bool) or not isinstance(start, int) or start < 0:
-            raise RecordingError(f"{where}: capture {k} has core:sample_start {start!r}; set a sample index >= 0")
-        if starts and start <= starts[-1]:
-            raise RecordingError(
-                f"{where}: capture {k} starts at sample {start}, not after capture {k - 1} ({starts[-1]}); "
-                "captures must be sorted and non-empty"
-            )
-        if start >= n_total:
-            raise RecordingError(
-                f"{where}: data ends at sample {n_total} but capture {k} starts at sample {start}: "
-                "was the copy cut short? re-copy the .sigmf-data file"
-            )
-        starts.append(start)
-    for k, ann in enumerate(meta.get("annotations") or []):
-        if not isinstance(ann, dict):
-            continue  # the schema check reports it
-        start, count = ann.get(sigmf.SAMPLE_START_KEY, 0), ann.get(sigmf.SAMPLE_COUNT_KEY, 0)
-        if not (isinstance(start, int) and isinstance(count, int)):
-            continue  # the schema check reports it
-        end = start + count
-        if end > n_total:
-            raise RecordingError(
-                f"{where}: data ends at sample {n_total} but annotation {k} reaches sample {end}: "
-                "was the copy cut short? re-copy the .sigmf-data file"
-            )
-    return n_total, starts, centers
 
 
 def _open_with_sigmf(where: Path, verify: bool):
@@ -348,9 +269,13 @@ class RecordingSource:
     kind = "recording"
 
     def __init__(self, path: Path, data_path: Path, data_offset: int, datatype: str, sample_rate_hz: float,
-                 captures: tuple[_Capture, ...], meta: dict, checksum_verified: bool, container: str):
+                 captures: tuple[_Capture, ...], meta: dict, checksum_verified: bool, container: str,
+                 max_hop_samples: int = DEFAULT_MAX_HOP_SAMPLES, window_samples: int = 1 << 17):
         self.path = path
+        self.max_hop_samples = int(max_hop_samples)
+        self.window_samples = int(window_samples)
         self._data_path = data_path
+        self._data_offset = int(data_offset)
         self._datatype = datatype
         self._rate = sample_rate_hz
         self._captures = captures
@@ -361,6 +286,7 @@ class RecordingSource:
         n_components = 2 * (captures[-1].start_sample + captures[-1].n_samples)
         self._map: np.ndarray | None = np.memmap(data_path, dtype=dtype, mode="r", offset=data_offset,
                                                  shape=(n_components,))
+        self._skip: dict[int, int] = {}  # capture index -> samples left out at its start
         self._next = 0           # capture index where the next tune() starts looking
         self._current: int | None = None
         self._position = 0       # samples already read from the current capture
@@ -387,8 +313,61 @@ class RecordingSource:
         return len(self._captures)
 
     def capture_lengths(self) -> tuple[int, ...]:
-        """Number of complex samples in each capture, in capture order."""
-        return tuple(c.n_samples for c in self._captures)
+        """Number of complex samples measured in each capture (after any skipped start), in order."""
+        return tuple(c.n_samples - self._skip.get(c.index, 0) for c in self._captures)
+
+    def skip_start(self, skip_s: float | None = None, *, max_opening: int = 1 << 21) -> list[str]:
+        """Leave out each capture's start-up transient; returns one note per capture affected.
+
+        ``skip_s`` None: detect it (:func:`survey.settling.detect_startup_transient` on the
+        first quarter of each capture, at most ``max_opening`` samples); a number: skip that
+        many seconds of every capture (``--skip-ms``), 0 for none. A capture is never skipped
+        below half its length.
+        """
+        from survey.dsp import to_complex64
+        from survey.settling import detect_startup_transient
+
+        if self._map is None:
+            raise RecordingError(f"{self.path}: recording is closed; open it again")
+        notes: list[str] = []
+        self._skip = {}
+        for cap in self._captures:
+            if skip_s is not None:
+                n = int(round(float(skip_s) * self._rate))
+                if n <= 0:
+                    continue
+                if n > cap.n_samples // 2:
+                    raise RecordingError(
+                        f"{self.path}: --skip-ms {1e3 * float(skip_s):g} leaves less than half of capture "
+                        f"{cap.index} ({1e3 * cap.n_samples / self._rate:.1f} ms); skip less"
+                    )
+                self._skip[cap.index] = n
+                notes.append(f"first {1e3 * n / self._rate:.2f} ms of capture {cap.index} skipped by hand")
+                continue
+            opening = min(cap.n_samples // 4, max_opening)
+            raw = np.asarray(self._map[2 * cap.start_sample: 2 * (cap.start_sample + opening)])
+            found = detect_startup_transient(to_complex64(raw, self._datatype))
+            if found is not None:
+                self._skip[cap.index] = found.n_samples
+                notes.append(
+                    f"start-up transient left out of capture {cap.index}: first {found.n_samples} samples "
+                    f"({1e3 * found.n_samples / self._rate:.2f} ms), power off by {found.departure_db:.1f} dB "
+                    f"against a scatter of {found.scatter_db:.2f} dB"
+                )
+        return notes
+
+    def check_fft(self, fft_size: int, few_averages: int = FEW_AVERAGES) -> list[str]:
+        """Check that every capture can fill the FFT; return warnings for captures with few averages.
+
+        Raises :class:`RecordingError` naming the capture and the largest FFT size that fits
+        ("the recording holds 2048 samples; use --fft-size 1024 or less" style). A capture
+        giving fewer than ``few_averages`` Welch segments is measured, with a warning that
+        states the scatter of each spectrum bin: a Welch average of ``K_eff`` independent
+        periodograms of Gaussian noise is ``S chi2(2 K_eff) / (2 K_eff)`` [Welch 1967], so one
+        standard deviation is ``10 log10(1 + 1/sqrt(K_eff))`` dB.
+        """
+        return check_fft_fill(self.path, [(c.index, min(c.n_samples - self._skip.get(c.index, 0), self.max_hop_samples))
+                                          for c in self._captures], fft_size, few_averages)
 
     def describe(self) -> dict:
         """File description for the ``runs`` table (JSON-serialisable)."""
@@ -426,8 +405,15 @@ class RecordingSource:
             )
             if not ok:
                 raise RecordingError(
-                    f"{self.path}: {NAMESPACE}:{key} is {value!r}, expected a {kind.__name__}; fix or remove it"
+                    f"{self.path}: {NAMESPACE}:{key} is {_short(value)}, expected {_KIND_NAMES[kind]}; fix or remove it"
                 )
+            if value is not None and key in _LABEL_RANGES:
+                low, high = _LABEL_RANGES[key]
+                if not (math.isfinite(float(value)) and low <= value <= high):
+                    raise RecordingError(
+                        f"{self.path}: {NAMESPACE}:{key} is {_short(value)}, outside {low:g} to {high:g}; "
+                        "fix or remove it"
+                    )
             out[key] = None if value is None else kind(value)
         return out
 
@@ -437,7 +423,7 @@ class RecordingSource:
         for step in range(n):
             k = (self._next + step) % n
             if abs(self._captures[k].center_hz - float(center_hz)) <= CENTER_TOLERANCE_HZ:
-                self._current, self._position, self._next = k, 0, k + 1
+                self._current, self._position, self._next = k, self._skip.get(k, 0), k + 1
                 return
         centres = ", ".join(f"{c:.0f}" for c in sorted(set(self.fixed_centers_hz)))
         raise RecordingError(
@@ -446,10 +432,17 @@ class RecordingSource:
         )
 
     def read(self, n_samples: int | None) -> IQBlock:
-        """Raw samples of the selected capture, in its native datatype (no copy).
+        """Raw samples of the selected capture, in its native datatype.
 
         ``None`` gives the rest of the capture (all of it after ``tune``); an int gives the next
         ``n_samples`` and raises :class:`RecordingError` if the capture has fewer left.
+        Memory stays bounded whatever the capture's length: a request longer than
+        ``max_hop_samples`` returns that many samples taken as equal windows of
+        ``window_samples`` spread evenly over the requested span (a copy; shorter requests
+        are memory-mapped views). Welch segments that straddle two windows are about
+        ``fft_size / window_samples`` of all (under 2 % at the defaults) and only see a phase
+        step, so the averaged PSD level is unchanged for noise and stations (common practice,
+        no source).
         """
         if self._map is None:
             raise RecordingError(f"{self.path}: recording is closed; open it again")
@@ -464,12 +457,27 @@ class RecordingSource:
             if n <= 0 or n > left:
                 raise RecordingError(
                     f"{self.path}: capture {cap.index} has {left} samples left but {n} were asked for; "
-                    "shorten the dwell or read the whole capture"
+                    "read the whole capture or a shorter part"
                 )
         first = cap.start_sample + self._position
-        raw = np.asarray(self._map[2 * first: 2 * (first + n)])
         started = cap.started_utc if self._position == 0 else _utc_plus(cap.started_utc, self._position / self._rate)
         self._position += n
+        if n <= self.max_hop_samples:
+            raw = np.asarray(self._map[2 * first: 2 * (first + n)])
+        else:
+            width = min(self.window_samples, self.max_hop_samples)
+            count = max(1, self.max_hop_samples // width)
+            offsets = np.linspace(0, n - width, count).astype(np.int64)
+            dtype = self._map.dtype
+            raw = np.empty(2 * width * count, dtype=dtype)
+            # Plain reads, not the memory map: pages of a large file stay out of this process.
+            with open(self._data_path, "rb") as fh:
+                for k, off in enumerate(offsets):
+                    fh.seek(self._data_offset + 2 * (first + int(off)) * dtype.itemsize)
+                    got = fh.readinto(memoryview(raw[2 * width * k: 2 * width * (k + 1)]).cast("B"))
+                    if got != 2 * width * dtype.itemsize:
+                        raise RecordingError(f"{self.path}: data ends early in capture {cap.index}; "
+                                             "re-copy the recording")
         return IQBlock(center_hz=cap.center_hz, sample_rate_hz=self._rate, datatype=self._datatype,
                        raw=raw, started_utc=started)
 
@@ -484,7 +492,8 @@ class RecordingSource:
         self.close()
 
 
-def open_recording(path: str | os.PathLike, *, skip_checksum: bool = False) -> RecordingSource:
+def open_recording(path: str | os.PathLike, *, skip_checksum: bool = False, progress=None,
+                   max_hop_samples: int = DEFAULT_MAX_HOP_SAMPLES) -> RecordingSource:
     """Open a SigMF recording for replay.
 
     Parameters
@@ -493,10 +502,16 @@ def open_recording(path: str | os.PathLike, *, skip_checksum: bool = False) -> R
         The ``.sigmf-meta`` file, the ``.sigmf-data`` file, their common base name, or an
         uncompressed ``.sigmf`` archive.
     skip_checksum : bool
-        Do not verify ``core:sha512``. Verifying reads the whole data once: 0.71 s against
-        0.06 s without it for 256 MiB (559 captures) on the 2-core test machine, see
-        ``tests/benchmarks/bench_recording.py``. A recording without ``core:sha512`` is never
-        hashed (there is nothing to compare with).
+        Do not verify ``core:sha512``. Verifying reads the whole data once, in blocks of
+        :data:`CHECK_BLOCK_BYTES` (time: ``tests/benchmarks/bench_recording.py``; memory:
+        ``tests/benchmarks/bench_replay_memory.py``). A recording without ``core:sha512`` is
+        never hashed (there is nothing to compare with).
+    progress : callable, optional
+        ``progress(done_bytes, total_bytes)`` during the pass over the data (checksum and, for
+        float datatypes, the check that every sample is finite; one block of
+        :data:`CHECK_BLOCK_BYTES` in memory at a time).
+    max_hop_samples : int
+        Most samples measured per capture (see :meth:`RecordingSource.read`).
 
     Returns
     -------
@@ -520,16 +535,27 @@ def open_recording(path: str | os.PathLike, *, skip_checksum: bool = False) -> R
         meta, data_path, data_bytes = _read_archive(where)
     else:
         meta, data_path, data_bytes = _read_pair(where)
-    datatype, rate = _check_global(meta, where)
+    datatype, rate = check_global(meta, where)
     sample_bytes = 2 * COMPONENT_DTYPES[datatype].itemsize
-    n_total, starts, centers = _check_layout(meta, where, data_bytes, sample_bytes)
+    n_total, starts, centers = check_layout(meta, where, data_bytes, sample_bytes)
     verify = not skip_checksum and sigmf.SHA512_KEY in meta["global"]
-    sf = _open_with_sigmf(where, verify)
+    sf = _open_with_sigmf(where, False)  # the checksum is computed below, streamed, with progress
     data_offset = int(getattr(sf, "data_offset", 0) or 0)
-    times = _capture_times(meta, starts, n_total, rate, data_path, where)
+    stream_check(where, data_path, data_offset, data_bytes, datatype,
+                  meta["global"].get(sigmf.SHA512_KEY) if verify else None, starts, progress)
     ends = starts[1:] + [n_total]
+    try:
+        times = _capture_times(meta, starts, n_total, rate, data_path, where)
+        for (utc, _), start, end in zip(times, starts, ends):
+            _utc_plus(utc, (end - start) / rate)  # every sample's time must be a date
+    except (OverflowError, ValueError) as exc:
+        raise RecordingError(
+            f"{where}: a capture's time runs outside the calendar ({exc}); fix core:datetime "
+            "(e.g. 2025-01-31T12:00:00.000Z)"
+        ) from None
     captures = tuple(
         _Capture(k, centers[k], starts[k], ends[k] - starts[k], times[k][0], times[k][1])
         for k in range(len(starts))
     )
-    return RecordingSource(where, data_path, data_offset, datatype, rate, captures, meta, verify, container)
+    return RecordingSource(where, data_path, data_offset, datatype, rate, captures, meta, verify, container,
+                           max_hop_samples=max_hop_samples)
