@@ -150,7 +150,7 @@ def test_stations_command_errors_are_one_line(tmp_path, db, capsys):
     assert main(["stations", "--db", str(tmp_path / "missing.db")]) == 1
     assert capsys.readouterr().err.startswith("Error: ")
     assert main(["stations", "--db", str(db), "--config", "nonesuch"]) == 1
-    assert "labels present" in capsys.readouterr().err
+    assert "the database holds" in capsys.readouterr().err
 
 
 # ---- schema 1 databases -------------------------------------------------------------------------
