@@ -68,8 +68,9 @@ def command(db_path, configuration, input_kind, kind, names_path, as_json, as_cs
     for label in sorted({r["configuration"] for r in rows}) or [configuration or "any configuration"]:
         block = [r for r in rows if r["configuration"] == label]
         table = Table(title=f"Stations of {label} ({input_kind}), medians over sweeps", title_justify="left")
-        for col in ("MHz", "kind", "SNR (C/N) dB", "C/I dB", "heard", "stereo", "occupied kHz", "PI", "PS",
-                    "RDS errors", "name"):
+        columns = ("MHz", "kind", "SNR (C/N) dB", "C/I dB", "heard", "stereo", "occupied kHz", "PI", "PS",
+                   "RDS errors") + (("name",) if names else ())
+        for col in columns:
             table.add_column(col, justify="left" if col in ("kind", "stereo", "PI", "PS", "name") else "right")
         for r in block:
             table.add_row(
@@ -78,6 +79,6 @@ def command(db_path, configuration, input_kind, kind, names_path, as_json, as_cs
                 "yes" if r["stereo"] else "no", _num(None if r["occupied_bw_hz"] is None else r["occupied_bw_hz"] / 1e3, ".0f"),
                 r["rds_pi"] or "-", r["rds_ps"] or "-",
                 "-" if r["rds_block_error_rate"] is None else f"{100 * r['rds_block_error_rate']:.0f} %",
-                r["name"] or "-",
+                *((r["name"] or "-",) if names else ()),
             )
         print_table(table)
