@@ -144,6 +144,11 @@ CREATE TABLE IF NOT EXISTS stations (
 CREATE INDEX IF NOT EXISTS stations_by_sweep ON stations(sweep_id, freq_hz);
 """
 
+#: RDS columns of ``stations`` with their types (as in :data:`_SCHEMA_V2`).
+_RDS_COLUMN_TYPES = (("rds_pi", "INTEGER"), ("rds_ps", "TEXT"), ("rds_pty", "INTEGER"),
+                     ("rds_blocks", "INTEGER NOT NULL DEFAULT 0"),
+                     ("rds_block_errors", "INTEGER NOT NULL DEFAULT 0"))
+
 #: Named migrations: version reached -> SQL. Each runs in its own transaction.
 MIGRATIONS: dict[int, str] = {1: _SCHEMA_V1, 2: _SCHEMA_V2}
 
@@ -240,6 +245,27 @@ class SurveyStore:
             except BaseException:
                 self.conn.execute("ROLLBACK")
                 raise
+        if version == 2:
+            self._add_rds_columns()
+
+    def _add_rds_columns(self) -> None:
+        """Add the RDS columns to a schema-2 ``stations`` table written before they existed.
+
+        Schema 2 gained them before its first release; rows written without them read as not
+        decoded (NULL, 0).
+        """
+        present = {row[1] for row in self.conn.execute("PRAGMA table_info(stations)")}
+        missing = [(name, kind) for name, kind in _RDS_COLUMN_TYPES if name not in present]
+        if not missing:
+            return
+        self.conn.execute("BEGIN IMMEDIATE")
+        try:
+            for name, kind in missing:
+                self.conn.execute(f"ALTER TABLE stations ADD COLUMN {name} {kind}")
+            self.conn.execute("COMMIT")
+        except BaseException:
+            self.conn.execute("ROLLBACK")
+            raise
 
     @property
     def schema_version(self) -> int:
@@ -921,7 +947,7 @@ class StationRow:
 
 
 #: RDS columns of ``stations``; a schema-2 table written before they existed reads them as empty.
-_RDS_COLUMNS = ("rds_pi", "rds_ps", "rds_pty", "rds_blocks", "rds_block_errors")
+_RDS_COLUMNS = tuple(name for name, _ in _RDS_COLUMN_TYPES)
 
 
 def read_station_rows(conn: sqlite3.Connection, sweep_ids: Sequence[int]) -> list[StationRow]:

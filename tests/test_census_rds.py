@@ -174,3 +174,25 @@ def test_station_census_takes_user_names(tmp_path, long_sweep):
     by = {round(s.freq_hz, -4): s for s in summaries}
     assert by[PLAIN_HZ].name == "Plain Relay" and by[PLAIN_HZ].rds_pi is None
     assert by[RDS_HZ].rds_pi == PROGRAMME.pi and by[RDS_HZ].rds_ps == TRUE_PS
+
+
+def test_a_schema_2_table_without_the_rds_columns_reads_and_gains_them(tmp_path, long_sweep):
+    import sqlite3
+
+    db = tmp_path / "early.db"
+    _database(db, [long_sweep])
+    conn = sqlite3.connect(db)
+    for name in ("rds_pi", "rds_ps", "rds_pty", "rds_blocks", "rds_block_errors"):
+        conn.execute(f"ALTER TABLE stations DROP COLUMN {name}")
+    conn.commit()
+    conn.close()
+    conn = open_for_reading(db)
+    rows = read_station_rows(conn, [1])
+    conn.close()
+    assert rows and all((r.rds_pi, r.rds_blocks) == (None, 0) for r in rows)
+    _database(db, [long_sweep])  # opening for writing adds the columns; the new sweep keeps its RDS
+    conn = open_for_reading(db)
+    rows = read_station_rows(conn, [1, 2])
+    conn.close()
+    assert {r.rds_pi for r in rows if r.sweep_id == 2} == {PROGRAMME.pi, None}
+    assert all(r.rds_pi is None for r in rows if r.sweep_id == 1)
