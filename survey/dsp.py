@@ -28,7 +28,8 @@ Pipeline of :func:`measure_hop`
 5. Per channel: ``P`` (:func:`channel_power`), ``N = integral of N0 over the band``,
    ``C/N = 10 log10((P - N) / N)`` (called SNR in the tool's output).
 6. Optionally (``emissions_out``) the emissions of the hop, each measured alone
-   (:func:`survey.emissions.find_emissions`), from the same PSD and floor.
+   (:func:`survey.emissions.find_emissions`), from the same PSD and floor, with the RDS of its
+   FM emissions read from the hop's IQ (:func:`survey.rds.columns.decode_hop_emissions`).
 
 References
 ----------
