@@ -10,13 +10,15 @@ from __future__ import annotations
 
 import sqlite3
 from dataclasses import dataclass
-from typing import Sequence
+from typing import Mapping, Sequence
 
 import numpy as np
 
 from analysis.errors import BadParameterError, NoDataError
 from analysis.terms import check_input, median_iqr
 from survey.errors import StoreError
+from survey.rds import RdsIdentity, RdsResult, merge_rds
+from survey.station_names import name_for
 from survey.store import (StationRow, SweepRow, count_complete_sweeps, list_sweeps, open_for_reading,
                           read_channel_matrix, read_station_rows,
                           upgrade_database)
@@ -49,8 +51,9 @@ class StationMatrix:
     Station identity from RDS (IEC 62106), where decoded: ``names`` holds one display name per
     station (the PS name with its PI, or a user-supplied name; None when unknown), and
     ``rds_blocks`` / ``rds_block_errors`` the ``(n_sweeps, n_stations)`` counts of RDS block
-    slots received and failed (0 where nothing was decoded). Empty when the census holds no
-    identity data.
+    slots received and failed (0 where nothing was decoded). ``identities`` holds each
+    station's RDS merged over all the sweeps of the matrix (:func:`survey.rds.merge_rds`).
+    Empty when the census holds no identity data.
     """
 
     sweep_ids: np.ndarray
@@ -67,6 +70,7 @@ class StationMatrix:
     names: tuple[str | None, ...] = ()
     rds_blocks: np.ndarray | None = None
     rds_block_errors: np.ndarray | None = None
+    identities: tuple[RdsIdentity, ...] = ()
 
     @property
     def n_stations(self) -> int:
@@ -92,6 +96,7 @@ class StationMatrix:
             names=self.names,
             rds_blocks=None if self.rds_blocks is None else self.rds_blocks[take],
             rds_block_errors=None if self.rds_block_errors is None else self.rds_block_errors[take],
+            identities=self.identities,
         )
 
 
@@ -129,7 +134,29 @@ def _cluster_one_kind(rows: list[StationRow], tolerance_hz: float) -> list[_Clus
     return out
 
 
-def census_matrix(conn: sqlite3.Connection, sweeps: Sequence[SweepRow], kinds=("fm",)) -> StationMatrix:
+def display_name(identity: RdsIdentity | None, user_name: str | None = None) -> str | None:
+    """A station's name for display: ``"PS (PI XXXX)"`` when RDS gave the whole PS name.
+
+    Without a whole PS, a user-supplied name (with the PI when one is confirmed), else
+    ``"PI XXXX"`` when only the PI is known, else None. An RDS name always wins over the user's.
+    """
+    pi = identity.pi_hex if identity is not None else None
+    ps = identity.ps if identity is not None else None
+    if ps is not None and pi is not None:
+        return f"{ps.strip() or ps} (PI {pi})"
+    if user_name:
+        return f"{user_name} (PI {pi})" if pi is not None else user_name
+    return f"PI {pi}" if pi is not None else None
+
+
+def _merged_identity(members: Sequence[StationRow]) -> RdsIdentity:
+    """One station's RDS merged over its rows: PS segments accumulate only under the confirmed PI."""
+    return merge_rds(RdsResult.from_columns(r.rds_pi, r.rds_ps, r.rds_pty, r.rds_blocks, r.rds_block_errors)
+                     for r in members)
+
+
+def census_matrix(conn: sqlite3.Connection, sweeps: Sequence[SweepRow], kinds=("fm",),
+                  names: Mapping[int, str] | None = None) -> StationMatrix:
     """Stations heard in any of ``sweeps``, one column each, one row per sweep (order kept).
 
     Emissions (the ``stations`` table) of all the given sweeps are grouped into stations: an
@@ -150,6 +177,15 @@ def census_matrix(conn: sqlite3.Connection, sweeps: Sequence[SweepRow], kinds=("
         :meth:`StationMatrix.rows`.
     kinds : sequence of str
         Emission kinds to keep (``"fm"``, ``"narrow"``).
+    names : mapping of int to str, optional
+        User-supplied names ``{freq_hz: name}`` (:func:`survey.station_names.read_station_names`),
+        matched within 50 kHz; they name stations whose RDS gives no whole PS
+        (:func:`display_name`).
+
+    Identity: each station's RDS results (one per stored emission) are merged over all the
+    given sweeps (:func:`survey.rds.merge_rds`: PI by vote among confirmed codes, PS segments
+    only from results confirming it), giving ``identities`` and ``names``; ``rds_blocks`` and
+    ``rds_block_errors`` are per sweep.
     """
     ids = [int(s.id) for s in sweeps]
     margin = {int(s.id): float(s.received_margin_db) for s in sweeps}
@@ -165,8 +201,13 @@ def census_matrix(conn: sqlite3.Connection, sweeps: Sequence[SweepRow], kinds=("
     detected = np.zeros(shape, dtype=bool)
     stereo = np.zeros(shape, dtype=bool)
     heard = np.zeros(shape, dtype=bool)
+    blocks = np.zeros(shape, dtype=np.int64)
+    block_errors = np.zeros(shape, dtype=np.int64)
     row_of = {sid: i for i, sid in enumerate(ids)}
     for j, cl in enumerate(clusters):
+        for r in cl.members:
+            blocks[row_of[r.sweep_id], j] += r.rds_blocks
+            block_errors[row_of[r.sweep_id], j] += r.rds_block_errors
         for r in sorted(cl.members, key=lambda r: -np.nan_to_num(r.cn_db, nan=-np.inf)):
             i = row_of[r.sweep_id]
             if heard[i, j]:
@@ -191,6 +232,8 @@ def census_matrix(conn: sqlite3.Connection, sweeps: Sequence[SweepRow], kinds=("
                 cn_fill = np.asarray(ratio_to_db(np.asarray(db_to_ratio(p_fill - n_fill)) - 1.0))
             cn = np.where(fill, np.where(np.isfinite(cn_fill), cn_fill, np.nan), cn)
     started = {int(s.id): s.started_utc for s in sweeps}
+    identities = tuple(_merged_identity(c.members) for c in clusters)
+    user = dict(names or {})
     return StationMatrix(
         sweep_ids=np.asarray(ids, dtype=np.int64),
         started_utc=tuple(started[i] for i in ids),
@@ -203,6 +246,11 @@ def census_matrix(conn: sqlite3.Connection, sweeps: Sequence[SweepRow], kinds=("
         ci_db=ci,
         detected=detected,
         stereo=stereo,
+        names=tuple(display_name(ident, name_for(user, c.freq_hz) if user else None)
+                    for ident, c in zip(identities, clusters)),
+        rds_blocks=blocks,
+        rds_block_errors=block_errors,
+        identities=identities,
     )
 
 
@@ -215,6 +263,11 @@ class StationSummary:
     detected it); ``ci_db``, ``occupied_bw_hz`` and the levels are medians over the sweeps that
     heard it (None if none). ``stereo`` is True when the pilot was found in at least half of the
     sweeps that detected it. ``heard_sweeps`` of ``sweeps`` detected it.
+
+    RDS over these sweeps (:func:`survey.rds.merge_rds`): ``rds_pi`` the confirmed PI,
+    ``rds_ps`` the whole PS name or what is known of it (``_`` per missing character),
+    ``rds_pty`` the programme type, ``rds_block_error_rate`` failed over received block slots
+    (None without synchronisation); ``name`` the display name (:func:`display_name`).
     """
 
     configuration: str
@@ -230,6 +283,11 @@ class StationSummary:
     stereo: bool
     heard_sweeps: int
     sweeps: int
+    rds_pi: int | None = None
+    rds_ps: str | None = None
+    rds_pty: int | None = None
+    rds_block_error_rate: float | None = None
+    name: str | None = None
 
 
 def _finite_or_none(value: float) -> float | None:
@@ -237,7 +295,7 @@ def _finite_or_none(value: float) -> float | None:
 
 
 def summarise_stations(conn: sqlite3.Connection, sweeps: Sequence[SweepRow],
-                       kinds=("fm",)) -> list[StationSummary]:
+                       kinds=("fm",), names: Mapping[int, str] | None = None) -> list[StationSummary]:
     """Per-station summary of sweeps that share one configuration and input (never pooled).
 
     Raises :class:`BadParameterError` if ``sweeps`` mixes configurations or inputs.
@@ -249,7 +307,7 @@ def summarise_stations(conn: sqlite3.Connection, sweeps: Sequence[SweepRow],
     if not sweeps:
         return []
     configuration, input_label = next(iter(labels))
-    matrix = census_matrix(conn, sweeps, kinds=kinds)
+    matrix = census_matrix(conn, sweeps, kinds=kinds, names=names)
     rows = read_station_rows(conn, [s.id for s in sweeps])
     obw: dict[int, list[float]] = {}
     for j, (f, kind) in enumerate(zip(matrix.freqs_hz.tolist(), matrix.kinds)):
@@ -260,6 +318,7 @@ def summarise_stations(conn: sqlite3.Connection, sweeps: Sequence[SweepRow],
     cn_med, _ = median_iqr(censored)
     out = []
     for j in range(matrix.n_stations):
+        ident = matrix.identities[j]
         det = matrix.detected[:, j]
         ci_vals = matrix.ci_db[det, j]
         ci_vals = ci_vals[np.isfinite(ci_vals)]
@@ -274,6 +333,11 @@ def summarise_stations(conn: sqlite3.Connection, sweeps: Sequence[SweepRow],
             stereo=bool(det.any() and matrix.stereo[det, j].mean() >= 0.5),
             heard_sweeps=int(det.sum()),
             sweeps=int(matrix.sweep_ids.size),
+            rds_pi=ident.pi,
+            rds_ps=ident.ps if ident.ps is not None else ident.ps_partial,
+            rds_pty=ident.pty,
+            rds_block_error_rate=ident.block_error_rate,
+            name=matrix.names[j],
         ))
     return out
 
@@ -299,13 +363,14 @@ def _complete_sweeps(conn: sqlite3.Connection, configuration: str | None, input:
 
 
 def station_census(path, configuration: str | None = None, input: str = "antenna",
-                   kinds=("fm",)) -> tuple[list[StationSummary], list[str]]:
+                   kinds=("fm",), names: Mapping[int, str] | None = None) -> tuple[list[StationSummary], list[str]]:
     """Census of a database file: one :class:`StationSummary` per station and configuration.
 
     Without ``configuration`` every configuration that has complete sweeps of ``input`` gets its
     own block (medians are never pooled across configurations). A schema-1 database is migrated
     first (its station rows rebuilt from kept spectra); the second value lists what the
-    migration could not rebuild and why (empty when nothing was missing).
+    migration could not rebuild and why (empty when nothing was missing). ``names``: user-supplied
+    station names, see :func:`census_matrix`.
     """
     check_input(input)
     notes: list[str] = []
@@ -323,7 +388,7 @@ def station_census(path, configuration: str | None = None, input: str = "antenna
             by_config.setdefault(r.configuration, []).append(r)
         out: list[StationSummary] = []
         for label in sorted(by_config):
-            out.extend(summarise_stations(conn, by_config[label], kinds=kinds))
+            out.extend(summarise_stations(conn, by_config[label], kinds=kinds, names=names))
         return out, notes
     finally:
         conn.close()

@@ -28,7 +28,8 @@ Pipeline of :func:`measure_hop`
 5. Per channel: ``P`` (:func:`channel_power`), ``N = integral of N0 over the band``,
    ``C/N = 10 log10((P - N) / N)`` (called SNR in the tool's output).
 6. Optionally (``emissions_out``) the emissions of the hop, each measured alone
-   (:func:`survey.emissions.find_emissions`), from the same PSD and floor.
+   (:func:`survey.emissions.find_emissions`), from the same PSD and floor, with the RDS of its
+   FM emissions read from the hop's IQ (:func:`survey.rds.columns.decode_hop_emissions`).
 
 References
 ----------
@@ -42,6 +43,7 @@ The references of the noise-floor method are in :mod:`survey.noise_floor`.
 from __future__ import annotations
 
 import threading
+from dataclasses import replace
 from datetime import datetime, timedelta, timezone
 from functools import lru_cache
 from typing import Callable, Sequence
@@ -50,9 +52,10 @@ import numpy as np
 import scipy.fft
 
 from survey.errors import PlanError, RecordingError
-from survey.records import ChannelReading, HopReading, IQBlock, SweepSettings
+from survey.records import ChannelReading, EmissionReading, HopReading, IQBlock, SweepSettings
 from survey.noise_floor import local_noise_floor, log_average_bias_db  # re-exported: public API
 from survey.emissions import find_emissions
+from survey.rds.columns import decode_hop_emissions, stored_columns
 from survey.units import ratio_to_db
 
 #: Datatypes (SigMF spelling) that :func:`to_complex64` converts.
@@ -520,6 +523,25 @@ def _check_in_usable(freqs_hz: np.ndarray, center_hz: float, settings: SweepSett
         )
 
 
+def _with_rds(emissions: list[EmissionReading], samples: np.ndarray, sample_rate_hz: float,
+              center_hz: float) -> list[EmissionReading]:
+    """The hop's emissions with the RDS fields of its FM emissions filled in (IEC 62106).
+
+    :func:`survey.rds.columns.decode_hop_emissions` decodes those at C/N >= 10 dB whose channel
+    lies wholly inside the hop (one FFT of the hop shared); the others keep empty fields.
+    """
+    fm = [k for k, e in enumerate(emissions) if e.kind == "fm"]
+    if not fm:
+        return emissions
+    results = decode_hop_emissions(samples, sample_rate_hz, center_hz, [emissions[k].freq_hz for k in fm],
+                                   [None if not np.isfinite(emissions[k].cn_db) else emissions[k].cn_db for k in fm])
+    out = list(emissions)
+    for k, r in zip(fm, results):
+        if r is not None:
+            out[k] = replace(out[k], **stored_columns(r))
+    return out
+
+
 def measure_hop(
     block: IQBlock,
     channels_hz: Sequence[int],
@@ -552,7 +574,8 @@ def measure_hop(
         Attach absolute bin frequencies (Hz, float64) and the PSD (dBFS/Hz, float32).
     emissions_out : list, optional
         When given, the hop's emissions (:func:`survey.emissions.find_emissions`, from the
-        same PSD and floor) are appended to it as :class:`~survey.records.EmissionReading`.
+        same PSD and floor) are appended to it as :class:`~survey.records.EmissionReading`,
+        with their RDS read from the hop's IQ unless ``settings.decode_rds`` is False.
     floor_out : list, optional
         When given, ``(absolute bin frequencies Hz, floor dBFS/Hz, usable mask, groups)`` is
         appended (``groups`` a :class:`survey.noise_floor.HopGroups`, for a sweep-wide floor).
@@ -584,11 +607,15 @@ def measure_hop(
     if floor_out is not None:
         floor_out.append((center + offsets, np.asarray(ratio_to_db(floor)), usable, groups[0] if groups else None))
     if emissions_out is not None:
-        emissions_out.extend(find_emissions(
+        samples = to_complex64(block.raw, block.datatype)
+        found = find_emissions(
             offsets, psd, floor, usable, center_hz=center, hop_index=int(hop_index),
             channels_hz=channels_hz, channel_bw_hz=float(settings.channel_bw_hz),
-            effective_averages=k_eff, samples=to_complex64(block.raw, block.datatype), sample_rate_hz=fs,
-        ))
+            effective_averages=k_eff, samples=samples, sample_rate_hz=fs,
+        )
+        if settings.decode_rds:
+            found = _with_rds(found, samples, fs, center)
+        emissions_out.extend(found)
 
     freqs = np.asarray(list(channels_hz), dtype=np.float64)
     readings: list[ChannelReading] = []

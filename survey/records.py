@@ -110,6 +110,12 @@ class EmissionReading:
     channel (None: no neighbour power); ``kind`` is ``"fm"`` (broadcast) or ``"narrow"``
     (carrier, spur, supply line); ``channel_freq_hz`` the raster channel it sits on;
     ``separable`` False when a neighbour is too close for its own power to be measured.
+
+    RDS (IEC 62106) read from the hop's IQ (:mod:`survey.rds`; FM emissions at C/N >= 10 dB
+    wholly inside the hop): ``rds_pi`` the confirmed programme identification code, ``rds_ps``
+    the programme service name as far as read (``_`` per missing character), ``rds_pty`` the
+    programme type; ``rds_blocks`` block slots read and ``rds_block_errors`` of them failed
+    (both 0 when not decoded or not synchronised). None where nothing was read.
     """
 
     freq_hz: float
@@ -123,6 +129,11 @@ class EmissionReading:
     stereo: bool
     channel_freq_hz: int
     separable: bool = True
+    rds_pi: int | None = None
+    rds_ps: str | None = None
+    rds_pty: int | None = None
+    rds_blocks: int = 0
+    rds_block_errors: int = 0
 
 
 @dataclass(frozen=True)
@@ -155,6 +166,8 @@ class SweepSettings:
     gain_db: float | None = None
     ppm: int = 0
     received_margin_db: float = 3.0
+    #: Decode RDS of the FM emissions of each hop (see :func:`survey.dsp.measure_hop`).
+    decode_rds: bool = True
 
 
 @dataclass(frozen=True)

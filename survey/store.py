@@ -135,10 +135,20 @@ CREATE TABLE IF NOT EXISTS stations (
     ci_db REAL,
     stereo INTEGER NOT NULL,
     channel_freq_hz INTEGER NOT NULL,
-    separable INTEGER NOT NULL
+    separable INTEGER NOT NULL,
+    rds_pi INTEGER,
+    rds_ps TEXT,
+    rds_pty INTEGER,
+    rds_blocks INTEGER NOT NULL DEFAULT 0,
+    rds_block_errors INTEGER NOT NULL DEFAULT 0
 ) STRICT;
 CREATE INDEX IF NOT EXISTS stations_by_sweep ON stations(sweep_id, freq_hz);
 """
+
+#: RDS columns of ``stations`` with their types (as in :data:`_SCHEMA_V2`).
+_RDS_COLUMN_TYPES = (("rds_pi", "INTEGER"), ("rds_ps", "TEXT"), ("rds_pty", "INTEGER"),
+                     ("rds_blocks", "INTEGER NOT NULL DEFAULT 0"),
+                     ("rds_block_errors", "INTEGER NOT NULL DEFAULT 0"))
 
 #: Named migrations: version reached -> SQL. Each runs in its own transaction.
 MIGRATIONS: dict[int, str] = {1: _SCHEMA_V1, 2: _SCHEMA_V2}
@@ -290,6 +300,27 @@ class SurveyStore:
             except BaseException:
                 self.conn.execute("ROLLBACK")
                 raise
+        if version == 2:
+            self._add_rds_columns()
+
+    def _add_rds_columns(self) -> None:
+        """Add the RDS columns to a schema-2 ``stations`` table written before they existed.
+
+        Schema 2 gained them before its first release; rows written without them read as not
+        decoded (NULL, 0).
+        """
+        present = {row[1] for row in self.conn.execute("PRAGMA table_info(stations)")}
+        missing = [(name, kind) for name, kind in _RDS_COLUMN_TYPES if name not in present]
+        if not missing:
+            return
+        self.conn.execute("BEGIN IMMEDIATE")
+        try:
+            for name, kind in missing:
+                self.conn.execute(f"ALTER TABLE stations ADD COLUMN {name} {kind}")
+            self.conn.execute("COMMIT")
+        except BaseException:
+            self.conn.execute("ROLLBACK")
+            raise
 
     @property
     def schema_version(self) -> int:
@@ -476,12 +507,15 @@ def _insert_station_rows(c: sqlite3.Connection, sweep_id: int, emissions: Iterab
     """One ``stations`` row per emission of a sweep (inside the caller's transaction)."""
     c.executemany(
         "INSERT INTO stations (sweep_id, freq_hz, hop_index, kind, occupied_bw_hz, power_dbfs, noise_dbfs,"
-        " cn_db, ci_db, stereo, channel_freq_hz, separable) VALUES (?,?,?,?,?,?,?,?,?,?,?,?)",
+        " cn_db, ci_db, stereo, channel_freq_hz, separable, rds_pi, rds_ps, rds_pty, rds_blocks,"
+        " rds_block_errors) VALUES (?,?,?,?,?,?,?,?,?,?,?,?,?,?,?,?,?)",
         [
             (
                 int(sweep_id), float(e.freq_hz), int(e.hop_index), str(e.kind), float(e.occupied_bw_hz),
                 _nullable(e.power_dbfs), _nullable(e.noise_dbfs), _nullable(e.cn_db), _nullable(e.ci_db),
                 int(bool(e.stereo)), int(e.channel_freq_hz), int(bool(e.separable)),
+                None if e.rds_pi is None else int(e.rds_pi), None if e.rds_ps is None else str(e.rds_ps),
+                None if e.rds_pty is None else int(e.rds_pty), int(e.rds_blocks), int(e.rds_block_errors),
             )
             for e in sorted(emissions, key=lambda e: e.freq_hz)
         ],
@@ -960,6 +994,15 @@ class StationRow:
     stereo: bool
     channel_freq_hz: int
     separable: bool
+    rds_pi: int | None = None
+    rds_ps: str | None = None
+    rds_pty: int | None = None
+    rds_blocks: int = 0
+    rds_block_errors: int = 0
+
+
+#: RDS columns of ``stations``; a schema-2 table written before they existed reads them as empty.
+_RDS_COLUMNS = tuple(name for name, _ in _RDS_COLUMN_TYPES)
 
 
 def read_station_rows(conn: sqlite3.Connection, sweep_ids: Sequence[int]) -> list[StationRow]:
@@ -974,6 +1017,9 @@ def read_station_rows(conn: sqlite3.Connection, sweep_ids: Sequence[int]) -> lis
         raise StoreError("the database has no stations table (schema 1); open it once with this version"
                          " of bandcensus for writing to migrate it")
     order = {sid: k for k, sid in enumerate(ids)}
+    present = {row[1] for row in conn.execute("PRAGMA table_info(stations)")}
+    rds = ", ".join(c if c in present else ("0" if c in ("rds_blocks", "rds_block_errors") else "NULL")
+                    for c in _RDS_COLUMNS)
     nan = float("nan")
     out: list[StationRow] = []
     for chunk_start in range(0, len(ids), 900):
@@ -981,7 +1027,7 @@ def read_station_rows(conn: sqlite3.Connection, sweep_ids: Sequence[int]) -> lis
         marks = ",".join("?" * len(chunk))
         for r in conn.execute(
             "SELECT sweep_id, freq_hz, hop_index, kind, occupied_bw_hz, power_dbfs, noise_dbfs, cn_db, ci_db,"
-            f" stereo, channel_freq_hz, separable FROM stations WHERE sweep_id IN ({marks})", chunk,
+            f" stereo, channel_freq_hz, separable, {rds} FROM stations WHERE sweep_id IN ({marks})", chunk,
         ):
             out.append(StationRow(
                 sweep_id=int(r[0]), freq_hz=float(r[1]), hop_index=int(r[2]), kind=str(r[3]),
@@ -989,6 +1035,9 @@ def read_station_rows(conn: sqlite3.Connection, sweep_ids: Sequence[int]) -> lis
                 noise_dbfs=nan if r[6] is None else float(r[6]), cn_db=nan if r[7] is None else float(r[7]),
                 ci_db=None if r[8] is None else float(r[8]), stereo=bool(r[9]),
                 channel_freq_hz=int(r[10]), separable=bool(r[11]),
+                rds_pi=None if r[12] is None else int(r[12]), rds_ps=None if r[13] is None else str(r[13]),
+                rds_pty=None if r[14] is None else int(r[14]), rds_blocks=int(r[15] or 0),
+                rds_block_errors=int(r[16] or 0),
             ))
     out.sort(key=lambda row: (order[row.sweep_id], row.freq_hz))
     return out

@@ -150,7 +150,7 @@ def test_stations_command_errors_are_one_line(tmp_path, db, capsys):
     assert main(["stations", "--db", str(tmp_path / "missing.db")]) == 1
     assert capsys.readouterr().err.startswith("Error: ")
     assert main(["stations", "--db", str(db), "--config", "nonesuch"]) == 1
-    assert "labels present" in capsys.readouterr().err
+    assert "the database holds" in capsys.readouterr().err
 
 
 # ---- schema 1 databases -------------------------------------------------------------------------
@@ -237,6 +237,7 @@ def test_a_schema_1_database_migrates_and_rebuilds_station_rows(tmp_path, sweeps
         assert r.freq_hz == pytest.approx(e.freq_hz, abs=2e3)
         assert r.cn_db == pytest.approx(e.cn_db, abs=0.3)
         assert r.kind == e.kind and r.stereo is False  # no samples, no pilot test
+        assert (r.rds_pi, r.rds_ps, r.rds_pty, r.rds_blocks, r.rds_block_errors) == (None, None, None, 0, 0)
 
 
 def test_stations_command_migrates_a_schema_1_database_and_says_what_it_could_not(tmp_path, sweeps, capsys):
@@ -245,7 +246,8 @@ def test_stations_command_migrates_a_schema_1_database_and_says_what_it_could_no
     assert main(["stations", "--db", str(path), "--json"]) == 0
     captured = capsys.readouterr()
     assert "could not be rebuilt" in captured.err
-    assert json.loads(captured.out)["stations"]
+    stations = json.loads(captured.out)["stations"]
+    assert stations and all(s["rds_pi"] is None and s["rds_ps"] is None for s in stations)
 
 
 # ---- the demo scene --------------------------------------------------------------------------------

@@ -53,7 +53,7 @@ def test_identification_recording_names_the_strong_stations(tmp_path):
     spec = importlib.util.spec_from_file_location("demo_identification", DEMO / "identification.py")
     tool = importlib.util.module_from_spec(spec)
     spec.loader.exec_module(tool)
-    meta = tool.generate(tmp_path, 0.5, "bare")
+    meta = tool.generate(tmp_path, 0.5, "bare", strongest=None)
     scene = load_scene(DEMO / "quorrelby_hill.toml")
     sent = {round(s.freq_hz): s for s in tool.rds_stations(scene)}
     results = {round(f): r for f, r in tool.decode_recording(meta)}

@@ -2,8 +2,6 @@
 
 from __future__ import annotations
 
-import csv
-import sys
 from dataclasses import asdict
 
 import click
@@ -11,11 +9,21 @@ from rich.table import Table
 
 from analysis.census import kinds_from_option, station_census
 from bandcensus.commands._common import db_option, echo_json
+from bandcensus.commands._csv import write_csv
 from bandcensus.commands._tables import print_table
 from survey.records import INPUT_KINDS
+from survey.station_names import read_station_names
 
 _FIELDS = ["configuration", "input", "freq_hz", "kind", "cn_db", "ci_db", "power_dbfs", "noise_dbfs",
-           "occupied_bw_hz", "stereo", "heard_sweeps", "sweeps", "channel_freq_hz"]
+           "occupied_bw_hz", "stereo", "heard_sweeps", "sweeps", "channel_freq_hz",
+           "rds_pi", "rds_ps", "rds_pty", "rds_block_error_rate", "name"]
+
+
+def _row(summary) -> dict:
+    """A station summary as output: ``rds_pi`` as four hex digits (or None)."""
+    row = {k: asdict(summary)[k] for k in _FIELDS}
+    row["rds_pi"] = None if summary.rds_pi is None else f"{summary.rds_pi:04X}"
+    return row
 
 
 def _num(value, fmt: str, missing: str = "-") -> str:
@@ -29,40 +37,48 @@ def _num(value, fmt: str, missing: str = "-") -> str:
               help="Input label of the sweeps to take the census of.")
 @click.option("--kind", type=click.Choice(["fm", "narrow", "all"]), default="fm", show_default=True,
               help="fm: broadcast stations; narrow: carriers, spurs, supply lines; all: both.")
+@click.option("--names", "names_path", type=click.Path(dir_okay=False),
+              help="CSV of freq_mhz,name rows naming stations whose RDS gives no name.")
 @click.option("--json", "as_json", is_flag=True, help="Print machine-readable JSON.")
 @click.option("--csv", "as_csv", is_flag=True, help="Print CSV.")
-def command(db_path, configuration, input_kind, kind, as_json, as_csv):
+def command(db_path, configuration, input_kind, kind, names_path, as_json, as_csv):
     """Per station (transmitter, not raster channel): C/N, C/I, how often heard, stereo, bandwidth.
 
     A station is every emission within a few kHz of the same carrier across sweeps. C/N is its
     own power over the floor in the channel bandwidth, median over sweeps (a sweep that did not
     detect it counts as below the floor); C/I is its own power over the neighbours' skirts left
-    in its channel; bandwidth is the 99 % occupied bandwidth (ITU-R SM.328).
+    in its channel; bandwidth is the 99 % occupied bandwidth (ITU-R SM.328). PI and PS come from
+    RDS (IEC 62106) merged over the sweeps (a whole PS needs about 0.45 s of dwell in one sweep,
+    or several sweeps); RDS errors is the share of RDS blocks that failed their check.
     """
     if as_json and as_csv:
         raise click.UsageError("choose one of --json and --csv")
+    names = read_station_names(names_path) if names_path else None
     stations, notes = station_census(db_path, configuration=configuration, input=input_kind,
-                                     kinds=kinds_from_option(kind))
+                                     kinds=kinds_from_option(kind), names=names)
     for note in notes:
         click.echo(f"Note: {note}", err=True)
-    rows = [{k: asdict(s)[k] for k in _FIELDS} for s in stations]
+    rows = [_row(s) for s in stations]
     if as_json:
         echo_json({"stations": rows})
         return
     if as_csv:
-        writer = csv.DictWriter(sys.stdout, fieldnames=_FIELDS, lineterminator="\n")
-        writer.writeheader()
-        writer.writerows(rows)
+        write_csv(rows, _FIELDS)
         return
     for label in sorted({r["configuration"] for r in rows}) or [configuration or "any configuration"]:
         block = [r for r in rows if r["configuration"] == label]
         table = Table(title=f"Stations of {label} ({input_kind}), medians over sweeps", title_justify="left")
-        for col in ("MHz", "kind", "SNR (C/N) dB", "C/I dB", "heard", "stereo", "occupied kHz"):
-            table.add_column(col, justify="left" if col in ("kind", "stereo") else "right")
+        columns = ("MHz", "kind", "SNR (C/N) dB", "C/I dB", "heard", "stereo", "occupied kHz", "PI", "PS",
+                   "RDS errors") + (("name",) if names else ())
+        for col in columns:
+            table.add_column(col, justify="left" if col in ("kind", "stereo", "PI", "PS", "name") else "right")
         for r in block:
             table.add_row(
                 f"{r['freq_hz'] / 1e6:.3f}", r["kind"], _num(r["cn_db"], ".1f", "below floor"),
                 _num(r["ci_db"], ".1f"), f"{r['heard_sweeps']} of {r['sweeps']}",
                 "yes" if r["stereo"] else "no", _num(None if r["occupied_bw_hz"] is None else r["occupied_bw_hz"] / 1e3, ".0f"),
+                r["rds_pi"] or "-", r["rds_ps"] or "-",
+                "-" if r["rds_block_error_rate"] is None else f"{100 * r['rds_block_error_rate']:.0f} %",
+                *((r["name"] or "-",) if names else ()),
             )
         print_table(table)

@@ -15,6 +15,10 @@ import numpy as np
 from survey.rds.identity import RdsIdentity, RdsResult, decode_stations
 
 RDS_MIN_CN_DB = 10.0
+#: Shortest hop worth decoding, s: two 26-bit blocks at 1187.5 bit/s (44 ms), the least that can
+#: confirm a PI, plus the demodulator's edge of 1.5 bits at each end (2.5 ms). Shorter hops
+#: (e.g. 5 ms dwells) are not decoded at all.
+RDS_MIN_DWELL_S = 0.047
 #: Half-width of the channel the decoder takes (125 kHz) plus a margin to the hop edge, Hz.
 EDGE_MARGIN_HZ = 150_000.0
 
@@ -30,15 +34,18 @@ STATION_COLUMNS: tuple[tuple[str, str], ...] = (
 
 def decode_hop_emissions(samples: np.ndarray, sample_rate_hz: float, center_hz: float,
                          carriers_hz: Sequence[float], cn_db: Sequence[float | None]) -> list[RdsResult | None]:
-    """RDS of each emission of a hop (None where not attempted: weak or too near the hop edge).
+    """RDS of each emission of a hop (None where not attempted: weak, too near the hop edge, or
+    the hop shorter than :data:`RDS_MIN_DWELL_S`).
 
     ``samples`` is the hop's complex IQ at full scale, ``carriers_hz`` the emissions' absolute
     carrier frequencies (Hz) and ``cn_db`` their C/N (dB, None for unknown).
     """
+    out: list[RdsResult | None] = [None] * len(carriers_hz)
+    if np.asarray(samples).size < RDS_MIN_DWELL_S * sample_rate_hz:
+        return out
     limit = sample_rate_hz / 2.0 - EDGE_MARGIN_HZ
     picks = [k for k, (f, c) in enumerate(zip(carriers_hz, cn_db))
              if c is not None and c >= RDS_MIN_CN_DB and abs(float(f) - center_hz) <= limit]
-    out: list[RdsResult | None] = [None] * len(carriers_hz)
     if picks:
         results = decode_stations(samples, sample_rate_hz, [float(carriers_hz[k]) - center_hz for k in picks])
         for k, r in zip(picks, results):

@@ -166,6 +166,8 @@ def bits_from_multiplex(mpx: np.ndarray, rate_hz: float) -> RdsBits:
     sq = u * u
     if ref is not None:
         phase = np.full(u.size, np.angle(np.sum(sq)) / 2.0)
+    elif u.size <= WINDOW_BITS:  # shorter than the smoothing window: one phase for the whole block
+        phase = np.full(u.size, np.angle(np.sum(sq)) / 2.0)
     else:
         smooth = np.convolve(sq, np.ones(WINDOW_BITS), mode="same")
         phase = np.unwrap(np.angle(smooth)) / 2.0
