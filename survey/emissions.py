@@ -73,7 +73,6 @@ from typing import Sequence
 
 import numpy as np
 import scipy.fft
-import scipy.signal
 
 from survey.noise_floor import group_variance_factor
 from survey.records import EmissionReading
@@ -195,7 +194,8 @@ def _fft_freqs(length: int, rate: float) -> np.ndarray:
 
 @lru_cache(maxsize=8)
 def _hann_real(length: int) -> np.ndarray:
-    return scipy.signal.get_window("hann", length)
+    n = np.arange(length, dtype=np.float64)
+    return 0.5 - 0.5 * np.cos(2.0 * np.pi * n / length)  # periodic Hann (Harris 1978), as scipy.signal.get_window
 
 
 def _stereo_pilot(spectrum: np.ndarray, n: int, sample_rate_hz: float, offset_hz: float,
@@ -270,6 +270,9 @@ def find_emissions(
     chans = np.asarray(sorted(int(c) for c in channels_hz), dtype=np.float64)
     if chans.size == 0:
         return []
+    floor_usable = np.asarray(floor, dtype=np.float64)[np.asarray(usable, dtype=bool)]
+    if not np.any(np.isfinite(floor_usable) & (floor_usable > 0.0)):
+        return []  # no floor to stand out from: constant or all-zero samples (no signal)
     offsets = np.asarray(offsets_hz, dtype=np.float64)
     step = float(offsets[1] - offsets[0])
     psd64 = np.asarray(psd, dtype=np.float64)
@@ -303,7 +306,9 @@ def find_emissions(
             break
         wide = _boxcar(residual, detect_w)
         narrow = _boxcar(residual, line_w)
-        score = np.fmax(wide / (local_total * np.sqrt(rel_var)), narrow / (line_total * np.sqrt(line_var)))
+        with np.errstate(divide="ignore", invalid="ignore"):  # a zero floor (no signal) scores NaN
+            score = np.fmax(wide / (local_total * np.sqrt(rel_var)), narrow / (line_total * np.sqrt(line_var)))
+        score[~np.isfinite(score)] = np.nan
         window_mean = np.fmax(wide, narrow)
         score[~known | blocked] = np.nan
         significant = score >= tuning.detect_sigma

@@ -25,7 +25,6 @@ from functools import lru_cache
 import numpy as np
 import scipy.linalg
 import scipy.ndimage
-import scipy.signal
 import scipy.special
 
 from survey.errors import PlanError
@@ -40,7 +39,9 @@ _PBSV = scipy.linalg.get_lapack_funcs("pbsv", dtype=np.float64)  # banded SPD so
 
 @lru_cache(maxsize=16)
 def _hann64(fft_size: int) -> np.ndarray:
-    return scipy.signal.get_window("hann", fft_size)
+    """Periodic Hann window (Harris 1978), float64; the same as ``scipy.signal.get_window('hann')``."""
+    n = np.arange(fft_size, dtype=np.float64)
+    return 0.5 - 0.5 * np.cos(2.0 * np.pi * n / fft_size)
 
 
 def log_average_bias_db(effective_averages: float) -> float:
