@@ -79,7 +79,7 @@ def test_few_averages_warn_with_the_welch_scatter(tmp_path, capsys):
     from survey.dsp import DEFAULT_OVERLAP, welch_effective_averages
 
     k = 1 + (2048 * 3 - 2048) // (2048 - int(round(DEFAULT_OVERLAP * 2048)))  # segments of averaged_psd
-    assert f"only {k} FFT averages" in err and "dB (1 sigma)" in err
+    assert f"capture 0 gives only {k} FFT averages" in err and "dB (1 sigma)" in err
     # Welch (1967): each bin ~ S chi2(2K_eff)/(2K_eff); one sigma is 1/sqrt(K_eff) of S
     sigma = float(err.split("scatters by about ")[1].split(" dB")[0])
     k_eff = welch_effective_averages(2048 * 3, 2048)

@@ -54,8 +54,8 @@ def _spawn(args, cwd):
                             stderr=subprocess.PIPE, text=True, env=ENV, cwd=cwd)
 
 
-def _wait_for_sweeps(db: Path, n: int, proc, limit_s: float = 120.0) -> None:
-    """Wait (generously; not a timing check) until ``n`` sweeps are committed."""
+def _wait_for_sweeps(db: Path, n: int, proc, limit_s: float = 900.0) -> None:
+    """Wait until ``n`` sweeps are committed (the limit only guards against a hang)."""
     deadline = time.monotonic() + limit_s
     while time.monotonic() < deadline:
         assert proc.poll() is None, proc.communicate()
@@ -111,7 +111,7 @@ def test_simulate_stops_on_signal_keeping_the_sweep_in_progress(tmp_path, signum
 
 def test_replay_stops_on_sigint_and_keeps_earlier_recordings(tmp_path):
     db = tmp_path / "rep.db"
-    proc = _spawn(["replay", *map(str, DEMO * 30), "--db", str(db), "--quiet"], tmp_path)
+    proc = _spawn(["replay", *map(str, DEMO * 5), "--db", str(db), "--quiet", "--fft-size", "512"], tmp_path)
     try:
         _wait_for_sweeps(db, 2, proc)
         signal_utc = _utc_now()
@@ -126,7 +126,7 @@ def test_replay_stops_on_sigint_and_keeps_earlier_recordings(tmp_path):
     n = conn.execute("SELECT COUNT(*) FROM sweeps").fetchone()[0]
     recs = {r[0] for r in conn.execute("SELECT recording FROM sweeps")}
     conn.close()
-    assert 2 <= n < len(DEMO) * 30
+    assert 2 <= n < len(DEMO) * 5
     assert recs <= {str(p) for p in DEMO}  # sweeps.recording names the file measured
 
 

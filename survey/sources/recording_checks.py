@@ -183,8 +183,8 @@ def check_fft_fill(where: Path, lengths: list[tuple[int, int]], fft_size: int,
     """Captures ``(index, samples measured)`` against the FFT: RecordingError when one cannot fill
     it (naming the largest size that fits), warnings with the Welch scatter for few averages.
     See :meth:`survey.sources.recording.RecordingSource.check_fft`."""
-    warnings_out = []
     fft_size = int(fft_size)
+    few: list[tuple[int, int, int]] = []  # (capture index, segments, samples)
     for index, n in lengths:
         if n < fft_size:
             fits = 1 << (max(n, 1).bit_length() - 1)
@@ -199,12 +199,15 @@ def check_fft_fill(where: Path, lengths: list[tuple[int, int]], fft_size: int,
         step = max(1, fft_size - int(round(DEFAULT_OVERLAP * fft_size)))  # as survey.dsp.averaged_psd
         segments = 1 + (n - fft_size) // step
         if segments < few_averages:
-            k_eff = welch_effective_averages(n, fft_size)
-            sigma_db = 10.0 * math.log10(1.0 + 1.0 / math.sqrt(k_eff))
-            smaller = max(64, fft_size // 4)
-            warnings_out.append(
-                f"{where}: capture {index} gives only {segments} FFT averages at fft size {fft_size}: "
-                f"each spectrum bin scatters by about {sigma_db:.1f} dB (1 sigma), so P and N are uncertain; "
-                f"use --fft-size {smaller} for more averages"
-            )
-    return warnings_out
+            few.append((index, segments, n))
+    if not few:
+        return []
+    worst = min(few, key=lambda item: item[1])
+    k_eff = welch_effective_averages(worst[2], fft_size)
+    sigma_db = 10.0 * math.log10(1.0 + 1.0 / math.sqrt(k_eff))
+    which = f"capture {few[0][0]}" if len(few) == 1 else f"{len(few)} of {len(lengths)} captures"
+    return [
+        f"{where}: {which} give{'s' if len(few) == 1 else ''} only {worst[1]} FFT averages at fft size "
+        f"{fft_size}: each spectrum bin scatters by about {sigma_db:.1f} dB (1 sigma), so P and N are "
+        f"uncertain (use --fft-size {max(64, fft_size // 4)} for more averages)"
+    ]

@@ -38,7 +38,7 @@ def _args(kind: str, db: Path, iq: Path) -> list[str]:
         return ["simulate", str(SCENE), "--db", str(db), "--config", "bare", "--sweeps", "500", "--band", BAND,
                 "--dwell-ms", "20", "--keep-iq", str(iq)]
     if kind == "replay":
-        return ["replay", *map(str, DEMO * 10), "--db", str(db), "--quiet"]
+        return ["replay", *map(str, DEMO * 10), "--db", str(db), "--quiet", "--fft-size", "512"]
     return ["scan", "--db", str(db), "--simulate-scene", str(SCENE), "--alternate", "bare,preamp-peaked",
             "--band", BAND, "--dwell-ms", "20", "--for", "10m", "--quiet", "--keep-iq", str(iq)]
 
