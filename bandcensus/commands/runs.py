@@ -7,7 +7,7 @@ from rich.table import Table
 
 from bandcensus.commands._common import db_option, echo_json, json_option
 from bandcensus.commands._tables import print_table
-from survey.session import shown_status
+from survey.writer import shown_status
 from survey.store import list_runs, open_for_reading
 from survey.text import terminal_label
 
