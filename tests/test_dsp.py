@@ -10,6 +10,7 @@ import scipy.signal
 
 import synth_signals as ss
 from survey import dsp
+from survey import psd as psd_steps
 from survey.errors import PlanError, RecordingError
 from survey.records import SweepSettings
 
@@ -100,7 +101,7 @@ def test_clip_fraction_for_wide_and_float_data():
 def test_window_is_scipy_periodic_hann():
     # reference: scipy.signal.get_window('hann', L) is the DFT-even (periodic) Hann window
     for n in (8, 1000, 2048):
-        np.testing.assert_array_equal(dsp._hann(n), scipy.signal.get_window("hann", n).astype(np.float32))
+        np.testing.assert_array_equal(psd_steps._hann(n), scipy.signal.get_window("hann", n).astype(np.float32))
 
 
 @pytest.mark.parametrize("datatype", ["cu8", "ci8", "ci16_le", "cf32_le"])
@@ -125,13 +126,13 @@ def test_raw_psd_agrees_with_scipy_welch_on_the_converted_samples(datatype, over
 
 def test_long_blocks_are_transformed_in_chunks_with_the_same_result():
     rng = np.random.default_rng(5)
-    n = (dsp._CHUNK_SEGMENTS * 2 + 3) * 64
+    n = (psd_steps._CHUNK_SEGMENTS * 2 + 3) * 64
     block = ss.make_block(ss.complex_noise(n, 0.02, rng).astype(np.complex64), 98e6, FS, "cu8")
     samples = dsp.to_complex64(block.raw, "cu8")
-    _, psd = dsp.raw_averaged_psd(block.raw, "cu8", FS, 64)
+    _, p_tool = dsp.raw_averaged_psd(block.raw, "cu8", FS, 64)
     _, p_ref = scipy.signal.welch(samples, FS, window="hann", nperseg=64, noverlap=0, detrend=False,
                                   return_onesided=False, scaling="density")
-    np.testing.assert_array_less(np.abs(db(psd) - db(np.fft.fftshift(p_ref))), 0.05)
+    np.testing.assert_array_less(np.abs(db(p_tool) - db(np.fft.fftshift(p_ref))), 0.05)
 
 
 @pytest.mark.parametrize("overlap", [0.0, 0.5])

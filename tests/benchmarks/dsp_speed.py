@@ -85,7 +85,7 @@ def child(variant: str, data: Path) -> dict:
     import scipy.fft
     import scipy.signal
 
-    from survey import dsp
+    from survey import dsp, psd
     from survey.records import IQBlock, SweepSettings
 
     loaded = np.load(data)
@@ -93,7 +93,7 @@ def child(variant: str, data: Path) -> dict:
     settings = SweepSettings(band="benchmark")
     blocks = [IQBlock(float(c), FS, "cu8", np.ascontiguousarray(r), "2026-03-01T00:00:00.000000Z")
               for r, c in zip(raws, centers)]
-    window = dsp._hann(FFT)
+    window = psd._hann(FFT)
 
     def minimal():
         for raw in raws:
