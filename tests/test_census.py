@@ -150,7 +150,10 @@ def test_stations_command_errors_are_one_line(tmp_path, db, capsys):
     assert main(["stations", "--db", str(tmp_path / "missing.db")]) == 1
     assert capsys.readouterr().err.startswith("Error: ")
     assert main(["stations", "--db", str(db), "--config", "nonesuch"]) == 1
-    assert "labels present" in capsys.readouterr().err
+    # one line naming the unknown label and every configuration the database holds
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 1 and err[0].startswith("Error: ") and "'nonesuch'" in err[0]
+    assert "the database holds: 'bare' antenna (2), 'flat' antenna (2)" in err[0]
 
 
 # ---- schema 1 databases -------------------------------------------------------------------------

@@ -36,8 +36,10 @@ equivalence margin ``m`` (``min_change_db``, default 0.5 dB):
   interval wholly inside ``[-m, +m]`` -> **unchanged** (equivalence at the same confidence);
   wholly above 0 -> **improved**; wholly below 0 -> **worse**; spanning zero ->
   **undetermined**;
-* raster channels that no sweep of either configuration detected are **not received** (the
-  census lists no such station).
+* raster channels that no sweep of either configuration detected are **not received**. A
+  station of the census is a transmitter whose own emission was found in at least one sweep,
+  so its measured C/N means something even when it never reached the detection margin: such a
+  station gets the verdict of its C/N interval, never "not received".
 """
 
 from __future__ import annotations
@@ -49,6 +51,7 @@ import numpy as np
 
 from analysis.compare.pairing import pair_sweeps
 from analysis.compare.intervals import MIN_PAIRS, Intervals, column_mean_sd, paired_t, welch_t
+from analysis.census import SAME_FM_STATION_HZ
 from analysis.compare.settings import settings_warnings
 from analysis.compare.summary import summarise
 from analysis.errors import BadParameterError, MismatchError
@@ -133,14 +136,45 @@ def _opt(x, digits: int = 4) -> float | None:
     return round(float(x), digits) if x is not None and np.isfinite(x) else None
 
 
-def _aligned(matrix, freqs_hz: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """C/N (dB), noise (dBFS) and detection flags of ``matrix`` on the axis ``freqs_hz`` (float32)."""
+def item_axis(base, test) -> np.ndarray:
+    """The common item axis (Hz, int64) of two per-item matrices.
+
+    Raster channels sit on integer raster frequencies and are matched exactly. Station
+    frequencies are medians of carrier estimates (not integers, and not identical between two
+    censuses read separately): a test station within :data:`analysis.census.SAME_FM_STATION_HZ`
+    of a base station is the same station and takes the base station's frequency.
+    """
+    fb = np.round(np.asarray(base.freqs_hz, np.float64)).astype(np.int64)
+    ft = np.round(np.asarray(test.freqs_hz, np.float64)).astype(np.int64)
+    if hasattr(base, "kinds") and hasattr(test, "kinds") and fb.size and ft.size:
+        ft = _snap(ft, fb)
+    return np.union1d(fb, ft)
+
+
+def _snap(freqs: np.ndarray, onto: np.ndarray) -> np.ndarray:
+    """``freqs`` with each value within SAME_FM_STATION_HZ of a value of sorted ``onto`` moved onto it."""
+    pos = np.clip(np.searchsorted(onto, freqs), 1, max(onto.size - 1, 1))
+    lo, hi = onto[pos - 1], onto[np.minimum(pos, onto.size - 1)]
+    near = np.where(np.abs(freqs - lo) <= np.abs(hi - freqs), lo, hi)
+    return np.where(np.abs(near - freqs) <= SAME_FM_STATION_HZ, near, freqs)
+
+
+def _aligned(matrix, freqs_hz: np.ndarray, onto: np.ndarray | None = None
+             ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """C/N (dB), noise (dBFS) and detection flags of ``matrix`` on the axis ``freqs_hz`` (float32).
+
+    ``onto`` (stations only): the base matrix's frequencies, onto which this matrix's stations
+    are snapped as in :func:`item_axis`.
+    """
     cn = np.asarray(matrix.cn_db, np.float32)
     noise = np.asarray(matrix.noise_dbfs, np.float32)
     det = np.asarray(matrix.detected, bool)
-    if matrix.freqs_hz.size == freqs_hz.size and np.array_equal(matrix.freqs_hz, freqs_hz):
+    own = np.round(np.asarray(matrix.freqs_hz, np.float64)).astype(np.int64)
+    if onto is not None and onto.size and own.size:
+        own = _snap(own, onto)
+    if own.size == freqs_hz.size and np.array_equal(own, freqs_hz):
         return cn, noise, det
-    cols = np.searchsorted(freqs_hz, matrix.freqs_hz)
+    cols = np.searchsorted(freqs_hz, own)
     shape = (cn.shape[0], freqs_hz.size)
     out = [np.full(shape, np.nan, np.float32), np.full(shape, np.nan, np.float32), np.zeros(shape, bool)]
     out[0][:, cols], out[1][:, cols], out[2][:, cols] = cn, noise, det
@@ -181,26 +215,32 @@ def compare_matrices(
     pairing: str = "auto",
     min_change_db: float = 0.5,
     confidence: float = 0.95,
-    unit: str = "channel",
+    unit: str | None = None,
 ) -> Comparison:
     """Compare two per-item matrices already read (see :func:`compare_configurations`).
 
     ``pairing`` is ``"auto"`` (paired when at least half of the smaller side finds a partner
-    in time), ``"paired"`` or ``"unpaired"``. Both matrices must have the common fields of
+    in time), ``"paired"`` or ``"unpaired"``. ``unit`` (``"station"`` or ``"channel"``) defaults
+    to what the matrices are (a census :class:`~analysis.census.StationMatrix` has ``kinds``). Both matrices must have the common fields of
     :class:`survey.store.ChannelMatrix` and :class:`analysis.census.StationMatrix`.
     """
+    if unit is None:
+        unit = "station" if hasattr(base, "kinds") else "channel"
     if pairing not in ("auto", "paired", "unpaired"):
         raise BadParameterError(f"pairing must be auto, paired or unpaired, not {pairing!r}")
     if not 0.5 <= confidence < 1.0:
         raise BadParameterError(f"confidence {confidence} must be at least 0.5 and below 1, e.g. 0.95")
     if min_change_db < 0:
         raise BadParameterError(f"min change {min_change_db} dB must not be negative")
-    freqs = np.union1d(base.freqs_hz, test.freqs_hz).astype(np.int64)
+    freqs = item_axis(base, test)
+    stations = hasattr(base, "kinds") and hasattr(test, "kinds")
+    base_axis = np.round(np.asarray(base.freqs_hz, np.float64)).astype(np.int64)
     cb, nb, db = _aligned(base, freqs)
-    ct, nt, dt = _aligned(test, freqs)
+    ct, nt, dt = _aligned(test, freqs, onto=base_axis if stations else None)
     rf_b = db.mean(axis=0) if db.shape[0] else np.zeros(freqs.size)
     rf_t = dt.mean(axis=0) if dt.shape[0] else np.zeros(freqs.size)
-    ever = db.any(axis=0) | dt.any(axis=0)
+    # a census station was found as an emission at least once: its C/N is a measurement
+    ever = (db.any(axis=0) | dt.any(axis=0)) if unit == "channel" else np.ones(freqs.size, bool)
 
     bi, ti, tol_s = pair_sweeps(utc_to_epoch_s(base.started_utc), utc_to_epoch_s(test.started_utc))
     smaller = min(cb.shape[0], ct.shape[0])
@@ -339,9 +379,41 @@ def compare_configurations(
         else:
             mat_b, mat_t = survey.item_matrices(rows_b, rows_t)
             unit = "station" if hasattr(mat_b, "kinds") else "channel"
+        result = compare_matrices(mat_b, mat_t, base, test, input=input, pairing=pairing,
+                                  min_change_db=min_change_db, confidence=confidence, unit=unit)
+        if unit == "station":
+            rise, empty = broadband_noise_rise(survey.channel_matrix(rows_b), survey.channel_matrix(rows_t),
+                                               result.paired)
+            result = replace(result, summary={**result.summary, "broadband_noise_rise_db": rise,
+                                              "unoccupied_channels": empty})
     finally:
         if opened:
             survey.close()
-    result = compare_matrices(mat_b, mat_t, base, test, input=input, pairing=pairing, min_change_db=min_change_db,
-                              confidence=confidence, unit=unit)
     return replace(result, warnings=tuple(notes))
+
+
+def broadband_noise_rise(base, test, paired: bool) -> tuple[float | None, int]:
+    """Median noise rise (dB) over the raster channels that no sweep of either side received,
+    and how many there are: the floor's rise where no station is, from the raster detail.
+
+    Paired: the mean of the paired noise differences per channel (the comparison's pairing);
+    unpaired: the difference of the mean noise levels. ``(None, 0)`` when every channel held
+    a station.
+    """
+    freqs = np.intersect1d(base.freqs_hz, test.freqs_hz)
+    if freqs.size == 0 or base.sweep_ids.size == 0 or test.sweep_ids.size == 0:
+        return None, 0
+    cb = np.searchsorted(base.freqs_hz, freqs)
+    ct = np.searchsorted(test.freqs_hz, freqs)
+    nb = np.asarray(base.noise_dbfs, np.float64)[:, cb]
+    nt = np.asarray(test.noise_dbfs, np.float64)[:, ct]
+    empty = ~(np.asarray(base.received)[:, cb].any(axis=0) | np.asarray(test.received)[:, ct].any(axis=0))
+    if not empty.any():
+        return None, 0
+    bi, ti, _ = pair_sweeps(utc_to_epoch_s(base.started_utc), utc_to_epoch_s(test.started_utc))
+    if paired and bi.size:
+        rise = column_mean_sd(nt[ti][:, empty] - nb[bi][:, empty])[0]
+    else:
+        rise = column_mean_sd(nt[:, empty])[0] - column_mean_sd(nb[:, empty])[0]
+    rise = rise[np.isfinite(rise)]
+    return (round(float(np.median(rise)), 4) if rise.size else None), int(empty.sum())
