@@ -230,7 +230,7 @@ def assess(source: Survey | str | Path, base: str, test: str, *, options: NoiseO
                      if c.base_detected_fraction >= 0.5 or c.test_detected_fraction >= 0.5]
             findings += passband_findings(pb, heard)
         pred = predicted_noise_rise_note(noise, result) if noise is not None else f"not available: {noise_note}"
-        split = noise_split_note(noise)
+        split = noise_split_note(noise, ceiling)
     finally:
         if opened:
             survey.close()

@@ -79,7 +79,7 @@ def demo_steps(out: Path, recordings: Sequence[Path]) -> list[DemoStep]:
         DemoStep("Replay the bundled recordings into a new database",
                  ("replay", *map(str, recordings), "--db", db, "--quiet")),
         DemoStep("What is in the database", ("runs", "--db", db)),
-        DemoStep("Per-channel table without a preamp (medians over sweeps)", ("channels", "--db", db, "--config", "bare")),
+        DemoStep("Stations heard without a preamp (medians over sweeps)", ("stations", "--db", db, "--config", "bare")),
     ]
     # the receiver alone: its noise figure and the site's outside noise (the ceiling of any preamp)
     steps.append(DemoStep(

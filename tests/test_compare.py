@@ -301,3 +301,15 @@ def test_end_to_end_on_simulated_scene(tmp_path):
     pred = full.predicted_noise_rise
     assert isinstance(pred, dict) and abs(pred["excess_db"]) < 1.0 and "agrees" in pred["note"]
     assert pred["median_predicted_db"] == pytest.approx(float(np.median(rise_truth)), abs=0.5)
+
+
+def test_noise_rise_explanation_by_case():
+    """delta C/N = G - R: the sentence follows the signs (margins 1 dB, common practice, no source)."""
+    from analysis.compare.summary import noise_rise_explanation
+
+    assert "lifts signals above it" in noise_rise_explanation(19.0, 17.4, 12)     # receiver noise dominated
+    assert "more gain will not help" in noise_rise_explanation(10.0, 9.6, 12)      # noise ahead dominates
+    assert "adds noise beyond its gain" in noise_rise_explanation(-20.0, 7.2, 12)  # floor rose, signals fell
+    attenuated = noise_rise_explanation(-14.7, -3.8, 12)  # a passband that misses the stations
+    assert "attenuates the signals" in attenuated and "adds noise" not in attenuated
+    assert noise_rise_explanation(None, 1.0, 0).startswith("not available")
