@@ -392,7 +392,8 @@ def build_report(
     Raises
     ------
     NoDataError
-        ``base`` or ``test`` has no complete sweeps at all (the message lists the labels present).
+        ``base`` or ``test`` has no complete sweeps at all (the message lists the labels present),
+        or the database predates the station census (schema 1; the message says how to migrate it).
     BadParameterError
         An invalid target band or identical labels.
     StoreError
@@ -406,6 +407,7 @@ def build_report(
     survey, opened = as_survey(source)
     try:
         survey.require([base, test])
+        survey.require_census()  # every section counts stations: refuse a schema-1 database at once
         all_rows = {lab: list(survey.find_sweeps(lab)) for lab in (base, test)}
         settings = read_settings(survey, all_rows[base] + all_rows[test])
         unavailable: dict[str, str] = {}
