@@ -105,6 +105,10 @@ def demo_steps(out: Path, recordings: Sequence[Path]) -> list[DemoStep]:
              "--plot", str(out / f"passband-{test}.png")),
         ))
     steps.append(DemoStep(
+        "Trouble in the chain: preamp-peaked against the 88-100 MHz target",
+        ("diagnose", "--db", db, "--base", "bare", "--test", "preamp-peaked", "--enr-db", "15", "--target", "88-100"),
+    ))
+    steps.append(DemoStep(
         "Trouble in the chain: preamp-bench-supply", ("diagnose", "--db", db, "--base", "bare", "--test", "preamp-bench-supply", "--enr-db", "15"),
     ))
     steps.append(DemoStep(

@@ -61,6 +61,10 @@ def test_demo_runs_every_step_and_writes_its_outputs(tmp_path, capsys):
     assert bench["lost"] + bench["hurt"] >= 8 and bench["helped"] == 0
     peaked_block = text.split("--test preamp-peaked --enr-db 15")[1].split("== 6. ")[0]
     assert "the test chain attenuates the signals" in " ".join(peaked_block.split())   # not "adds noise": the floor fell
+    # the diagnosis names the peaked preamp's fault: a passband that misses the target's stations
+    diag = text.split("diagnose --db")[1].split("== ")[0]
+    assert "--test preamp-peaked" in diag.splitlines()[0] and "No fault found" not in diag
+    assert "PROBLEM: passband" in diag and "covers 1 of 8 stations in 88-100 MHz" in diag
     bench_block = text.split("--test preamp-bench-supply --enr-db 15")[1].split("== 8. ")[0]
     assert "the floor rose more than the signals" in " ".join(bench_block.split())
     # the bench supply injects 30 000 K after the preamp (recordings_demo/quorrelby_hill.toml): the one
