@@ -16,6 +16,9 @@ from survey.records import SweepSettings
 
 ROW_KEYS = {"freq_hz", "base_cn_db", "test_cn_db", "delta_cn_db", "ci_low_db", "ci_high_db", "gain_db",
             "noise_rise_db", "verdict", "pairs"}
+#: Station rows add the RDS name and block error rates (None: not decoded, as in this fixture).
+STATION_ROW_KEYS = ROW_KEYS | {"name", "base_block_error_rate", "test_block_error_rate", "delta_block_error_rate",
+                               "bler_ci_low", "bler_ci_high"}
 COUNT_KEYS = ("helped", "hurt", "unchanged", "undetermined", "gained", "lost")
 
 
@@ -42,7 +45,7 @@ def test_json_shape(db, capsys):
     rows = doc["stations"]
     assert "channels" not in doc
     for row in rows:
-        assert set(row) == ROW_KEYS
+        assert set(row) == STATION_ROW_KEYS and row["name"] is None and row["delta_block_error_rate"] is None
         assert row["verdict"] != "not received" and row["delta_cn_db"] is not None
     assert [r["freq_hz"] for r in rows] == FREQS_HZ[np.isfinite(CN0_DB)].tolist()
     s = doc["summary"]
@@ -82,13 +85,13 @@ def test_csv_rows(db, capsys):
                  "--min-change-db", "1", "--confidence", "0.9"]) == 0
     rows = list(csv.DictReader(io.StringIO(capsys.readouterr().out)))
     # station rows: 88.1 MHz (truth +5 dB) first; no row for the empty 88.7 MHz channel
-    assert len(rows) == int(np.isfinite(CN0_DB).sum()) and set(rows[0]) == ROW_KEYS
+    assert len(rows) == int(np.isfinite(CN0_DB).sum()) and set(rows[0]) == STATION_ROW_KEYS
     assert list(rows[0])[:2] == ["freq_hz", "verdict"]
     assert int(rows[0]["freq_hz"]) == 88_100_000 and "88700000" not in [r["freq_hz"] for r in rows]
     assert float(rows[0]["delta_cn_db"]) == pytest.approx(5.0, abs=0.5)
     assert main(["compare", "--db", db, "--base", "bare", "--test", "preamp-a", "--csv", "--channels"]) == 0
     raster = list(csv.DictReader(io.StringIO(capsys.readouterr().out)))
-    assert len(raster) == FREQS_HZ.size
+    assert len(raster) == FREQS_HZ.size and set(raster[0]) == ROW_KEYS
     assert raster[3]["verdict"] == "not received" and raster[3]["delta_cn_db"] == ""
 
 

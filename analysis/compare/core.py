@@ -64,7 +64,13 @@ VERDICTS = ("improved", "worse", "unchanged", "undetermined", "gained", "lost", 
 
 @dataclass(frozen=True)
 class ItemDelta:
-    """Comparison of one item (station or raster channel). dB values; None where undefined."""
+    """Comparison of one item (station or raster channel). dB values; None where undefined.
+
+    Stations identified by RDS carry ``name`` (e.g. ``"MARSH FM (PI D2E4)"``). Where RDS block
+    counts exist for a station in both configurations, the block error rates (fractions of
+    RDS block slots failed, IEC 62106) are compared like the C/N: base and test means over the
+    same pairs, the mean paired difference and its t interval (``bler_ci_low``/``bler_ci_high``).
+    """
 
     freq_hz: int
     base_cn_db: float | None
@@ -81,6 +87,12 @@ class ItemDelta:
     test_detected_fraction: float = 0.0
     detection_change_low: float | None = None
     detection_change_high: float | None = None
+    name: str | None = None
+    base_block_error_rate: float | None = None
+    test_block_error_rate: float | None = None
+    delta_block_error_rate: float | None = None
+    bler_ci_low: float | None = None
+    bler_ci_high: float | None = None
 
     @property
     def n_used(self) -> int:
@@ -181,6 +193,32 @@ def _aligned(matrix, freqs_hz: np.ndarray, onto: np.ndarray | None = None
     return out[0], out[1], out[2]
 
 
+def _aligned_extra(matrix, freqs_hz: np.ndarray, onto: np.ndarray | None = None):
+    """Station names (list per item of ``freqs_hz``) and per-sweep RDS block error rates
+    ``(n_sweeps, n_items)`` (NaN where no block was received) of ``matrix``; None for each
+    that the matrix does not carry."""
+    own = np.round(np.asarray(matrix.freqs_hz, np.float64)).astype(np.int64)
+    if onto is not None and onto.size and own.size:
+        own = _snap(own, onto)
+    cols = np.searchsorted(freqs_hz, own)
+    names = None
+    given = tuple(getattr(matrix, "names", ()) or ())
+    if len(given) == own.size and any(given):
+        names = [None] * freqs_hz.size
+        for j, name in zip(cols.tolist(), given):
+            names[j] = name
+    rates = None
+    blocks = getattr(matrix, "rds_blocks", None)
+    errors = getattr(matrix, "rds_block_errors", None)
+    if blocks is not None and errors is not None and np.any(np.asarray(blocks) > 0):
+        b = np.asarray(blocks, np.float64)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            r = np.where(b > 0, np.asarray(errors, np.float64) / b, np.nan)
+        rates = np.full((r.shape[0], freqs_hz.size), np.nan)
+        rates[:, cols] = r
+    return names, rates
+
+
 def cn_verdict(low: float | None, high: float | None, min_change_db: float) -> str:
     """Verdict of a C/N change from its interval (see the module docstring)."""
     if low is None or high is None:
@@ -237,6 +275,9 @@ def compare_matrices(
     base_axis = np.round(np.asarray(base.freqs_hz, np.float64)).astype(np.int64)
     cb, nb, db = _aligned(base, freqs)
     ct, nt, dt = _aligned(test, freqs, onto=base_axis if stations else None)
+    names_b, bler_b = _aligned_extra(base, freqs) if stations else (None, None)
+    names_t, bler_t = _aligned_extra(test, freqs, onto=base_axis) if stations else (None, None)
+    names = [nb_ or nt_ for nb_, nt_ in zip(names_b or [None] * freqs.size, names_t or [None] * freqs.size)]
     rf_b = db.mean(axis=0) if db.shape[0] else np.zeros(freqs.size)
     rf_t = dt.mean(axis=0) if dt.shape[0] else np.zeros(freqs.size)
     # a census station was found as an emission at least once: its C/N is a measurement
@@ -263,6 +304,12 @@ def compare_matrices(
         rise_all = column_mean_sd(d_n)[0]
         rise = np.where(cn_iv.n > 0, rise_same, rise_all)
         det_iv = paired_t(dt[ti].astype(np.float32) - db[bi].astype(np.float32), confidence)
+        bler = None
+        if bler_b is not None and bler_t is not None:
+            d_bler = bler_t[ti] - bler_b[bi]
+            bler_iv = paired_t(d_bler, confidence)
+            bler_base = column_mean_sd(np.where(np.isfinite(d_bler), bler_b[bi], np.nan))[0]
+            bler = (bler_base, bler_iv)
         method = (f"paired: {bi.size} base/test sweep pairs closer than {tol_s:.1f} s; mean of the paired C/N "
                   f"differences with its Student t {pct} interval (n - 1 degrees of freedom), from "
                   f"{MIN_PAIRS} pairs up; base and test C/N are means over the same pairs")
@@ -272,11 +319,15 @@ def compare_matrices(
         test_mean = base_mean + cn_iv.mean
         rise = welch_t(nt, nb, confidence).mean
         det_iv = welch_t(dt.astype(np.float32), db.astype(np.float32), confidence)
+        bler = None
+        if bler_b is not None and bler_t is not None:
+            bler = (column_mean_sd(bler_b)[0], welch_t(bler_t, bler_b, confidence))
         method = ((("unpaired (as asked): " if pairing == "unpaired" else
                     f"unpaired: sweeps not alternating (only {bi.size} of {smaller} found a partner in time); "))
                   + f"difference of mean C/N with Welch's {pct} t interval (Welch-Satterthwaite degrees of "
                   f"freedom), from {MIN_PAIRS} sweeps per side up")
     items = _items(freqs, base_mean, test_mean, cn_iv, rise, det_iv, rf_b, rf_t, ever, min_change_db)
+    items = _with_identity(items, names, bler)
     thresholds = {
         "min_change_db": float(min_change_db),
         "confidence": float(confidence),
@@ -299,6 +350,26 @@ def compare_matrices(
         n_pairs=int(bi.size) if paired else 0, unit=unit,
     )
     return replace(result, summary=summarise(result))
+
+
+def _with_identity(items: list[ItemDelta], names: list, bler) -> list[ItemDelta]:
+    """Items with their station names and, where RDS blocks were counted in both
+    configurations, the block error rates (means over the pairs) and their change with interval."""
+    out = []
+    for j, item in enumerate(items):
+        extra: dict = {}
+        if names[j]:
+            extra["name"] = names[j]
+        if bler is not None:
+            base_rate, iv = bler
+            d = _opt(iv.mean[j], 6)
+            if d is not None and np.isfinite(base_rate[j]):
+                b = round(float(base_rate[j]), 6)
+                extra.update(base_block_error_rate=b, test_block_error_rate=round(b + d, 6),
+                             delta_block_error_rate=d, bler_ci_low=_opt(iv.low[j], 6),
+                             bler_ci_high=_opt(iv.high[j], 6))
+        out.append(replace(item, **extra) if extra else item)
+    return out
 
 
 def _items(freqs, base_mean, test_mean, cn_iv: Intervals, rise, det_iv: Intervals, rf_b, rf_t, ever,

@@ -73,6 +73,7 @@ def summarise(result) -> dict:
     return {
         **counts,
         "unit": result.unit,
+        "names": {str(c.freq_hz): c.name for c in items if getattr(c, "name", None)},
         "rows": len(items),
         "frequencies_hz": freqs,
         "listenable": {

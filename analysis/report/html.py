@@ -161,7 +161,9 @@ def _trouble(r: Report) -> str:
 def _channel_table(r: Report) -> str:
     c = r.comparison
     pct = f"{100 * c.thresholds['confidence']:g} %"
-    head = ("<tr><th class=\"num\">MHz</th><th class=\"num\">SNR base, dB</th><th class=\"num\">SNR test, dB</th>"
+    named = any(getattr(ch, "name", None) for ch in c.channels)
+    head = ("<tr><th class=\"num\">MHz</th>" + ("<th>station (RDS)</th>" if named else "")
+            + "<th class=\"num\">SNR base, dB</th><th class=\"num\">SNR test, dB</th>"
             f"<th class=\"num\">change, dB</th><th class=\"num\">{e(pct)} interval, dB</th>"
             "<th class=\"num\">gain, dB</th><th class=\"num\">noise rise, dB</th><th class=\"num\">pairs</th>"
             "<th>verdict</th></tr>")
@@ -171,7 +173,8 @@ def _channel_table(r: Report) -> str:
         v = ch.verdict
         rows.append(
             f'<tr class="v-{e(v.replace(" ", "-"))}" data-freq-hz="{int(ch.freq_hz)}">'
-            f'<td class="num">{_mhz(ch.freq_hz)}</td><td class="num">{_num(ch.base_cn_db, "{:.1f}")}</td>'
+            f'<td class="num">{_mhz(ch.freq_hz)}</td>' + (f'<td>{e(ch.name or "")}</td>' if named else "")
+            + f'<td class="num">{_num(ch.base_cn_db, "{:.1f}")}</td>'
             f'<td class="num">{_num(ch.test_cn_db, "{:.1f}")}</td><td class="num">{_num(ch.delta_cn_db, "{:+.2f}")}</td>'
             f'<td class="num">{e(interval)}</td><td class="num">{_num(ch.gain_db)}</td>'
             f'<td class="num">{_num(ch.noise_rise_db)}</td><td class="num">{ch.pairs}</td>'

@@ -17,8 +17,16 @@ from bandcensus.commands._noise_source import noise_options_from, noise_source_o
 #: Columns of the station (or channel) rows (JSON and CSV), units in the names.
 ROW_FIELDS = ["freq_hz", "verdict", "base_cn_db", "test_cn_db", "delta_cn_db", "ci_low_db", "ci_high_db",
               "gain_db", "noise_rise_db", "pairs"]
+#: Further columns of station rows: the RDS name and the RDS block error rates (None when not decoded).
+STATION_FIELDS = ["name", "base_block_error_rate", "test_block_error_rate", "delta_block_error_rate",
+                  "bler_ci_low", "bler_ci_high"]
 #: Integer counts of the JSON summary (they add up to the rows).
 COUNT_FIELDS = ["helped", "hurt", "unchanged", "undetermined", "gained", "lost"]
+
+
+def row_fields(comparison) -> list[str]:
+    """Columns of the rows: station rows add the name and the RDS block error rates."""
+    return ROW_FIELDS + (STATION_FIELDS if comparison.unit == "station" else [])
 
 
 def comparison_payload(a: Assessment) -> dict:
@@ -40,7 +48,7 @@ def comparison_payload(a: Assessment) -> dict:
         "base": r.base, "test": r.test, "input": r.input, "unit": r.unit, "method": r.method, "paired": r.paired,
         "sweeps": {"base": r.n_base_sweeps, "test": r.n_test_sweeps, "pairs": r.n_pairs},
         "thresholds": r.thresholds,
-        rows_key: [{k: getattr(c, k) for k in ROW_FIELDS} for c in r.items],
+        rows_key: [{k: getattr(c, k) for k in row_fields(r)} for c in r.items],
         "summary": summary,
         "headlines": list(a.headlines),
         "findings": [f.to_dict() for f in a.findings],
@@ -100,14 +108,24 @@ def _table(a: Assessment) -> Table:
     pct = f"{100 * r.thresholds['confidence']:g}%"
     table = Table(title=f"'{r.test}' against '{r.base}', per {r.unit} (SNR, delta, interval, gain and noise rise "
                         "in dB; base and test SNR over the same pairs as the delta)", title_justify="left")
-    for name in ("MHz", "base SNR", "test SNR", "delta", f"{pct} interval", "gain", "noise rise", "pairs", "verdict"):
-        table.add_column(name, justify="left" if name == "verdict" else "right", no_wrap=True)
+    named = any(c.name for c in r.items)
+    with_bler = any(c.delta_block_error_rate is not None for c in r.items)
+    columns = ["MHz"] + (["station"] if named else []) + ["base SNR", "test SNR", "delta", f"{pct} interval",
+                                                          "gain", "noise rise", "pairs", "verdict"]
+    columns += ["RDS block errors base -> test"] if with_bler else []
+    for name in columns:
+        table.add_column(name, justify="left" if name in ("verdict", "station") else "right", no_wrap=name != "station")
     for c in sorted(r.items, key=lambda c: c.freq_hz):
         interval = "-" if c.ci_low_db is None else f"[{c.ci_low_db:+.2f}, {c.ci_high_db:+.2f}]"
-        table.add_row(
-            f"{c.freq_hz / 1e6:.2f}", _num(c.base_cn_db, "{:.1f}"), _num(c.test_cn_db, "{:.1f}"),
-            _num(c.delta_cn_db, "{:+.2f}"), interval, _num(c.gain_db), _num(c.noise_rise_db), str(c.pairs), c.verdict,
-        )
+        cells = [f"{c.freq_hz / 1e6:.2f}"] + ([c.name or ""] if named else []) + [
+            _num(c.base_cn_db, "{:.1f}"), _num(c.test_cn_db, "{:.1f}"),
+            _num(c.delta_cn_db, "{:+.2f}"), interval, _num(c.gain_db), _num(c.noise_rise_db), str(c.pairs), c.verdict]
+        if with_bler:
+            cells.append("-" if c.delta_block_error_rate is None else
+                         f"{100 * c.base_block_error_rate:.1f} % -> {100 * c.test_block_error_rate:.1f} %"
+                         + ("" if c.bler_ci_low is None else
+                            f" [{100 * c.bler_ci_low:+.1f}, {100 * c.bler_ci_high:+.1f}]"))
+        table.add_row(*cells)
     return table
 
 
@@ -157,7 +175,8 @@ def command(db_path, base, test, as_json, as_csv, channels, plot_path, since, un
         echo_json(payload)
         return
     if as_csv:
-        writer = csv.DictWriter(sys.stdout, fieldnames=ROW_FIELDS, extrasaction="ignore", lineterminator="\n")
+        writer = csv.DictWriter(sys.stdout, fieldnames=row_fields(a.comparison), extrasaction="ignore",
+                                lineterminator="\n")
         writer.writeheader()
         for row in payload["stations" if a.comparison.unit == "station" else "channels"]:
             writer.writerow({k: ("" if v is None else v) for k, v in _clean(row).items()})
