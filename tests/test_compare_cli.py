@@ -89,6 +89,11 @@ def test_csv_rows(db, capsys):
     assert list(rows[0])[:2] == ["freq_hz", "verdict"]
     assert int(rows[0]["freq_hz"]) == 88_100_000 and "88700000" not in [r["freq_hz"] for r in rows]
     assert float(rows[0]["delta_cn_db"]) == pytest.approx(5.0, abs=0.5)
+    # dB to 0.01 dB, Hz as integers (bandcensus/commands/_csv.py); no 17-digit floats
+    for row in rows:
+        for key in ("base_cn_db", "test_cn_db", "delta_cn_db", "gain_db", "noise_rise_db"):
+            assert row[key] == "" or len(row[key].split(".")[-1]) <= 2, (key, row[key])
+        assert row["freq_hz"].isdigit()
     assert main(["compare", "--db", db, "--base", "bare", "--test", "preamp-a", "--csv", "--channels"]) == 0
     raster = list(csv.DictReader(io.StringIO(capsys.readouterr().out)))
     assert len(raster) == FREQS_HZ.size and set(raster[0]) == ROW_KEYS
@@ -97,7 +102,8 @@ def test_csv_rows(db, capsys):
 
 def test_terminal_summary_then_rows(db, capsys, tmp_path):
     png = tmp_path / "cmp.png"
-    assert main(["compare", "--db", db, "--base", "bare", "--test", "preamp-a", "--plot", str(png)]) == 0
+    assert main(["compare", "--db", db, "--base", "bare", "--test", "preamp-a", "--plot", str(png),
+                 "--explain"]) == 0
     out = capsys.readouterr().out
     assert out.count("SNR (C/N) =") == 1 and "(P - N) / N" in out
     assert out.index("Stations helped") < out.index("Listenable") < out.index("Could any preamp help") \
@@ -152,3 +158,14 @@ def test_help_names_the_definitions(capsys):
                 "--confidence", "--channels", "--enr-db", "--enr-table", "--cold-k"):
         assert opt in out
     assert "Student t" in out and "Welch" in out
+
+
+def test_method_paragraph_only_with_explain(db, capsys):
+    assert main(["compare", "--db", db, "--base", "bare", "--test", "preamp-a", "--no-diagnosis"]) == 0
+    quiet = capsys.readouterr().out
+    assert "Stations helped" in quiet and "--explain for the method" in quiet
+    assert "Method:" not in quiet and "Verdicts:" not in quiet and "(P - N) / N" not in quiet
+    assert main(["compare", "--db", db, "--base", "bare", "--test", "preamp-a", "--no-diagnosis", "--explain"]) == 0
+    full = capsys.readouterr().out
+    assert "Method: paired" in full and "Verdicts:" in full and "(P - N) / N" in full
+    assert len(full.splitlines()) > len(quiet.splitlines())

@@ -2,16 +2,14 @@
 
 from __future__ import annotations
 
-import csv
-import sys
-
 import click
 from rich.console import Console
 from rich.table import Table
 
 from analysis.selection import Survey
 from analysis.workflows import Assessment, assess
-from bandcensus.commands._common import _clean, db_option, echo_json, json_option
+from bandcensus.commands._common import db_option, echo_json, json_option
+from bandcensus.commands._csv import write_csv
 from bandcensus.commands._noise_source import noise_options_from, noise_source_options
 
 #: Columns of the station (or channel) rows (JSON and CSV), units in the names.
@@ -80,17 +78,24 @@ def _num(value, fmt: str = "{:+.1f}") -> str:
     return "-" if value is None else fmt.format(value)
 
 
-def _summary_lines(a: Assessment) -> list[str]:
+def _summary_lines(a: Assessment, explain: bool = False) -> list[str]:
+    """The headlines, what was compared, the conclusions on noise and the findings; with
+    ``explain`` also the method paragraph (statistics, definitions, verdict rules)."""
     r = a.comparison
     lines = list(a.headlines) + [
         "",
         f"Compared '{r.test}' (test) against '{r.base}' (base), input {r.input}: {r.n_base_sweeps} base and "
-        f"{r.n_test_sweeps} test sweeps, per {r.unit}.",
-        f"Method: {r.method}.",
-        "SNR (C/N) = (P - N) / N in dB: power P above the local noise power N; delta = test minus base; "
-        "gain = ratio of P - N; noise rise = ratio of N; delta = gain - noise rise.",
-        f"Verdicts: improved/worse need the {r.thresholds['improved_if'].split(' of ')[0]} wholly above/below "
-        f"0 dB; unchanged needs it within +-{r.thresholds['min_change_db']:g} dB; otherwise undetermined.",
+        f"{r.n_test_sweeps} test sweeps, per {r.unit}" + ("." if explain else " (--explain for the method)."),
+    ]
+    if explain:
+        lines += [
+            f"Method: {r.method}.",
+            "SNR (C/N) = (P - N) / N in dB: power P above the local noise power N; delta = test minus base; "
+            "gain = ratio of P - N; noise rise = ratio of N; delta = gain - noise rise.",
+            f"Verdicts: improved/worse need the {r.thresholds['improved_if'].split(' of ')[0]} wholly above/below "
+            f"0 dB; unchanged needs it within +-{r.thresholds['min_change_db']:g} dB; otherwise undetermined.",
+        ]
+    lines += [
         f"Noise: {r.summary['noise_source']}.",
     ]
     if a.noise_split:
@@ -145,10 +150,11 @@ def _table(a: Assessment) -> Table:
 @click.option("--confidence", type=click.FloatRange(0.5, 1.0, max_open=True), default=0.95, show_default=True,
               help="Confidence level of the intervals.")
 @noise_source_options
+@click.option("--explain", is_flag=True, help="Also print the method: statistics, definitions and verdict rules.")
 @click.option("--no-diagnosis", is_flag=True, help="Skip the chain diagnosis (clipping, intermodulation, "
               "oscillation, added noise) in the summary.")
 def command(db_path, base, test, as_json, as_csv, channels, plot_path, since, until, min_change_db, confidence,
-            enr_db, enr_table, cold_k, receiver_nf_db, no_diagnosis):
+            enr_db, enr_table, cold_k, receiver_nf_db, explain, no_diagnosis):
     """Which stations gained or lost SNR (C/N) with TEST compared to BASE, by how much, how sure.
 
     SNR (C/N) is (P - N)/N in dB. Sweeps that alternated between the two configurations are
@@ -175,14 +181,10 @@ def command(db_path, base, test, as_json, as_csv, channels, plot_path, since, un
         echo_json(payload)
         return
     if as_csv:
-        writer = csv.DictWriter(sys.stdout, fieldnames=row_fields(a.comparison), extrasaction="ignore",
-                                lineterminator="\n")
-        writer.writeheader()
-        for row in payload["stations" if a.comparison.unit == "station" else "channels"]:
-            writer.writerow({k: ("" if v is None else v) for k, v in _clean(row).items()})
+        write_csv(payload["stations" if a.comparison.unit == "station" else "channels"], row_fields(a.comparison))
         return
     console = Console(width=max(110, Console().width))
-    for line in _summary_lines(a):
+    for line in _summary_lines(a, explain):
         console.print(line, highlight=False, markup=False)
     for warning in a.comparison.warnings:
         console.print(f"Warning: {warning}", highlight=False, markup=False)
