@@ -137,7 +137,8 @@ def _table(a: Assessment) -> Table:
 @click.command("compare")
 @db_option
 @click.option("--base", required=True, help="Configuration label of the reference (e.g. bare).")
-@click.option("--test", required=True, help="Configuration label compared against it (e.g. preamp-a).")
+@click.option("--test", required=True, help="Configuration label compared against it (e.g. preamp-a); several "
+              "labels separated by commas (a,b,c) rank them.")
 @json_option
 @click.option("--csv", "as_csv", is_flag=True, help="Print the station rows as CSV.")
 @click.option("--channels", is_flag=True, help="Rows per raster channel instead of per station (the detail view).")
@@ -168,6 +169,9 @@ def command(db_path, base, test, as_json, as_csv, channels, plot_path, since, un
         raise click.UsageError("choose one of --json and --csv")
     if base == test:
         raise click.UsageError("--base and --test name the same configuration; give two different labels")
+    if "," in test:
+        _ranking(db_path, base, test, as_json, as_csv, since, until, min_change_db, confidence)
+        return
     options = noise_options_from(enr_db, enr_table, cold_k, receiver_nf_db)
     with Survey(db_path) as survey:
         a = assess(survey, base, test, options=options, with_diagnosis=not no_diagnosis, since=since, until=until,
@@ -191,3 +195,49 @@ def command(db_path, base, test, as_json, as_csv, channels, plot_path, since, un
     console.print(_table(a))
     if plot_path:
         console.print(f"Figure written to {plot_path}", highlight=False, markup=False)
+
+
+#: Columns of the ranking (JSON and CSV).
+RANKING_FIELDS = ["rank", "configuration", "helped", "helped_low", "helped_high", "hurt", "lost",
+                  "median_delta_cn_db", "median_ci_low_db", "median_ci_high_db", "stations_heard_by_all",
+                  "listenable_mono", "listenable_low", "listenable_high", "listenable_mono_base"]
+
+
+def _ranking(db_path, base, tests_text, as_json, as_csv, since, until, min_change_db, confidence) -> None:
+    """``--test a,b,c``: rank the configurations against the base on the same stations."""
+    from analysis.compare.ranking import RANKING_NOTE, rank_configurations
+    from analysis.headline import verdict_line
+
+    tests = [t.strip() for t in tests_text.split(",") if t.strip()]
+    if base in tests or len(set(tests)) != len(tests) or len(tests) < 2:
+        raise click.UsageError("--test a,b,c needs two or more different labels, none equal to --base")
+    ranked = rank_configurations(db_path, base, tests, since=since, until=until, min_change_db=min_change_db,
+                                 confidence=confidence)
+    rows = [r.to_dict() for r in ranked]
+    if as_json:
+        echo_json({"base": base, "ranking": rows, "method": RANKING_NOTE,
+                   "headlines": {r.configuration: verdict_line(r.comparison.summary) for r in ranked}})
+        return
+    if as_csv:
+        write_csv(rows, RANKING_FIELDS)
+        return
+    console = Console(width=max(110, Console().width))
+    pct = f"{100 * confidence:g}%"
+    table = Table(title=f"Configurations against '{base}', best first", title_justify="left")
+    for name in ("rank", "configuration", "helped", "hurt / lost", f"median C/N change ({pct})",
+                 "listenable mono (base)"):
+        table.add_column(name, justify="left" if name == "configuration" else "right", no_wrap=True)
+    for r in ranked:
+        helped = f"{r.helped}" + (f" (up to {r.helped_high})" if r.helped_high > r.helped else "")
+        median = "-" if r.median_delta_cn_db is None else f"{r.median_delta_cn_db:+.2f} dB" + (
+            "" if r.median_ci_low_db is None else f" [{r.median_ci_low_db:+.2f}, {r.median_ci_high_db:+.2f}]")
+        listen = f"{r.listenable_mono} ({r.listenable_mono_base})" + (
+            "" if r.listenable_low == r.listenable_high else f", {r.listenable_low}-{r.listenable_high} by sweep")
+        table.add_row(str(r.rank), r.configuration, helped, f"{r.hurt} / {r.lost}", median, listen)
+    console.print(table)
+    heard = ranked[0].stations_heard_by_all
+    console.print(f"Median over the {heard} station{'' if heard == 1 else 's'} heard by all"
+                  + ("; fewer than 6 give no interval at 95 %." if heard < 6 else "."), highlight=False, markup=False)
+    for r in ranked:
+        console.print(f"{r.configuration}: {verdict_line(r.comparison.summary)}", highlight=False, markup=False)
+    console.print(f"Method: {RANKING_NOTE}.", highlight=False, markup=False)
