@@ -18,7 +18,7 @@ COUNT_KEYS = {"improved": "helped", "worse": "hurt", "unchanged": "unchanged", "
               "gained": "gained", "lost": "lost", "not received": "not_received"}
 
 
-def noise_rise_explanation(gain_db: float | None, rise_db: float | None, n_items: int) -> str:
+def noise_rise_explanation(gain_db: float | None, rise_db: float | None, n_items: int, unit: str = "item") -> str:
     """What the noise rise says, from the median gain and the median noise rise over the SAME items.
 
     With ``delta C/N = G - R``: a floor that rises as much as the signals (``R ~ G``) means
@@ -31,7 +31,7 @@ def noise_rise_explanation(gain_db: float | None, rise_db: float | None, n_items
     """
     if gain_db is None or rise_db is None:
         return "not available: no item with both a gain and a noise rise"
-    head = (f"at the {n_items} items with both measured, median gain {gain_db:+.1f} dB and median noise rise "
+    head = (f"at the {n_items} {unit}{'' if n_items == 1 else 's'} with both measured, median gain {gain_db:+.1f} dB and median noise rise "
             f"{rise_db:+.1f} dB: ")
     if gain_db < -1.0 and rise_db <= 1.0:
         return head + (f"the test chain attenuates the signals ({gain_db:+.1f} dB) and the floor falls less "
@@ -89,5 +89,5 @@ def summarise(result) -> dict:
         "broadband_noise_rise_db": _median(empty),
         "unoccupied_channels": len(empty),
         "noise_source": noise_rise_explanation(_median([c.gain_db for c in both]),
-                                               _median([c.noise_rise_db for c in both]), len(both)),
+                                               _median([c.noise_rise_db for c in both]), len(both), result.unit),
     }
