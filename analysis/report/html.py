@@ -195,7 +195,7 @@ def _channels(r: Report, figures: Mapping[str, str]) -> str:
     return (
         f"<p>{e(c.method)}.</p>"
         + _figure(figures, "comparison", "SNR of both configurations, the change with its interval, and gain and "
-                  "noise rise against channel frequency",
+                  f"noise rise against {c.unit} frequency",
                   f"Top: SNR (C/N) per {c.unit}, base and test. Middle: change in SNR with its interval. "
                   "Bottom: gain (ratio of P - N) and noise rise (ratio of N), dB.")
         + f"<p>Verdict marks: {e(marks)}. {e(c.thresholds['improved_if'])} for improved; "
