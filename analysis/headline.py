@@ -11,8 +11,15 @@ from analysis.diagnose.core import summarise_findings
 from analysis.findings import Finding
 
 
-def _mhz_list(freqs_hz, limit: int = 8) -> str:
-    shown = ", ".join(f"{f / 1e6:.1f}" for f in sorted(freqs_hz)[:limit])
+def _mhz_list(freqs_hz, limit: int = 8, names: dict | None = None) -> str:
+    """``"94.0, 96.2 MHz"``; stations with a name are written ``"98.7 MHz MARSH FM (PI D2E4)"``."""
+    names = names or {}
+    ordered = sorted(freqs_hz)
+    if not any(str(f) in names for f in ordered[:limit]):
+        shown = ", ".join(f"{f / 1e6:.1f}" for f in ordered[:limit]) + " MHz"
+    else:
+        shown = ", ".join(f"{f / 1e6:.1f} MHz" + (f" {names[str(f)]}" if str(f) in names else "")
+                          for f in ordered[:limit])
     more = len(freqs_hz) - limit
     return shown + (f" and {more} more" if more > 0 else "")
 
@@ -29,7 +36,7 @@ def verdict_line(summary: dict) -> str:
     parts = []
     for key in ("helped", "hurt", "lost", "gained"):
         n = summary[key]
-        parts.append(f"{key} {n}" + (f" ({_mhz_list(freqs[key])} MHz)" if n else ""))
+        parts.append(f"{key} {n}" + (f" ({_mhz_list(freqs[key], names=summary.get('names'))})" if n else ""))
     tail = f"; {summary['undetermined']} undetermined, {summary['unchanged']} unchanged"
     if summary.get("not_received"):
         tail += f", {summary['not_received']} not received"

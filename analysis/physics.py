@@ -117,21 +117,29 @@ def predicted_noise_rise_note(noise: NoiseResult, result) -> dict | str:
             "items": int(ok.sum()), "note": note}
 
 
-def noise_split_note(noise: NoiseResult | None) -> str:
-    """Which noise dominates at this site, from the measured temperatures (empty without them)."""
+def noise_split_note(noise: NoiseResult | None, ceiling: dict | None = None) -> str:
+    """Which noise dominates at this site, from the measured temperatures (empty without them).
+
+    With ``ceiling`` (from :func:`ceiling_checks`) the receiver temperature is its median at the
+    items compared, so that this note and the ceiling headline state the same numbers.
+    """
     if noise is None:
         return ""
     s = noise.summary
     ta, tr = s.get("antenna_temp_k"), None
     tr_col = noise.column("receiver_temp_k")
-    if np.isfinite(tr_col).any():
+    if ceiling and ceiling.get("available") and np.isfinite(ceiling.get("receiver_temp_k", np.nan)):
+        ta, tr = ceiling["antenna_temp_k"], float(ceiling["receiver_temp_k"])
+    elif np.isfinite(tr_col).any():
         tr = float(np.nanmedian(tr_col))
     if ta is None or tr is None:
         return ""
     share = ta / (ta + tr)
+    cap = float(ratio_to_db((ta + tr) / ta))
+    if ceiling and ceiling.get("available") and ceiling.get("any_preamp_max_db") is not None:
+        cap = float(ceiling["any_preamp_max_db"])  # the same figure as the ceiling headline
     if share >= 0.5:
         return (f"outside noise {ta:.0f} K against the receiver's {tr:.0f} K: outside noise is "
-                f"{100 * share:.0f} % of the total, so a preamp can add at most "
-                f"{float(ratio_to_db((ta + tr) / ta)):.1f} dB of C/N here")
+                f"{100 * share:.0f} % of the total, so a preamp can add at most {cap:.1f} dB of C/N here")
     return (f"outside noise {ta:.0f} K against the receiver's {tr:.0f} K: the receiver's own noise dominates "
-            f"({100 * (1 - share):.0f} %), so a good preamp can add up to {float(ratio_to_db((ta + tr) / ta)):.1f} dB")
+            f"({100 * (1 - share):.0f} %), so a good preamp can add up to {cap:.1f} dB")

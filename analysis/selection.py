@@ -25,6 +25,7 @@ import numpy as np
 from analysis.census import StationMatrix, census_matrix
 from analysis.terms import check_input, normalise_utc
 from analysis.errors import NoDataError
+from survey.errors import StoreError
 from survey.store import (
     ChannelMatrix,
     EventRow,
@@ -41,6 +42,7 @@ from survey.store import (
     read_hop_spectra,
     read_hops,
     read_runs,
+    read_station_rows,
     read_sweep_matrix,
     spectra_span_hz,
     sweeps_with_spectra,
@@ -58,6 +60,7 @@ def _matrix_for(survey: "Survey", sweeps: Sequence[SweepRow], kinds: tuple[str, 
     share the fields the analyses read (``sweep_ids``, ``started_utc``, ``freqs_hz``,
     ``power_dbfs``, ``noise_dbfs``, ``cn_db``, ``detected`` and ``rows(...)``).
     """
+    survey.require_census()
     return census_matrix(survey.connection, sweeps, kinds=kinds)
 
 
@@ -146,6 +149,23 @@ class Survey:
                 f"no complete sweeps of configuration {what}{of} in {self.db_path}; it holds: {self.present()}; "
                 "check the spelling"
             )
+
+    def require_census(self) -> None:
+        """Raise one :class:`NoDataError` when the database predates the station census.
+
+        A schema-1 database has no ``stations`` table; this survey is read-only and never
+        migrates it. The message names the command that does (once, keeping every row).
+        """
+        def check() -> bool:
+            try:
+                read_station_rows(self._conn, [])
+            except StoreError:
+                raise NoDataError(
+                    f"{self.db_path} predates the station census (schema 1): run `bandcensus stations --db "
+                    f"{self.db_path}` once to migrate it (`compare --channels` reads the raster channels without it)"
+                ) from None
+            return True
+        self.memo(("census_present",), check)
 
     # -- sweeps and matrices ---------------------------------------------------------------
     def sweeps(self, configuration: str | None, input: str = "antenna", since: str | None = None,

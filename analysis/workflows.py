@@ -10,7 +10,7 @@ computed carries the reason, and the rest goes on.
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 
 import numpy as np
@@ -110,9 +110,11 @@ def diagnosis_for(survey: Survey, base: str, test: str, options: NoiseOptions, *
 def diagnose_chain(source: Survey | str | Path, base: str, test: str, *, enr_db: float | None = None,
                    enr_table: EnrTable | None = None, cold_k: float = 290.0, receiver_nf_db: float | None = None,
                    attenuated: str | None = None, attenuation_db: float | None = None,
-                   clip_threshold: float | None = None, seed: int = 0) -> Diagnosis:
+                   clip_threshold: float | None = None, seed: int = 0,
+                   target_hz: tuple[float, float] | None = None) -> Diagnosis:
     """:func:`analysis.diagnose.core.diagnose` with its inputs (gain curve, receiver noise) measured
-    from the survey: the whole ``diagnose`` command as one call."""
+    from the survey, plus the passband coverage check (:func:`passband_coverage`): the whole
+    ``diagnose`` command as one call. ``target_hz`` defaults to the band plan's edges."""
     if base == test:
         raise BadParameterError(
             f"--base and --test are both {base!r}; give the label without and the label with the preamp")
@@ -120,11 +122,49 @@ def diagnose_chain(source: Survey | str | Path, base: str, test: str, *, enr_db:
     try:
         survey.require([base, test, attenuated])
         options = NoiseOptions(enr_db, enr_table, cold_k, receiver_nf_db)
-        return diagnosis_for(survey, base, test, options, attenuated=attenuated, attenuation_db=attenuation_db,
+        diag = diagnosis_for(survey, base, test, options, attenuated=attenuated, attenuation_db=attenuation_db,
                              clip_threshold=clip_threshold, seed=seed)
+        found, line = passband_coverage(survey, base, test, target_hz, seed=seed)
+        return replace(diag, findings=tuple(diag.findings) + tuple(found), checked=tuple(diag.checked) + (line,))
     finally:
         if opened:
             survey.close()
+
+
+def passband_coverage(survey: Survey, base: str, test: str, target_hz: tuple[float, float] | None = None, *,
+                      seed: int = 0) -> tuple[list[Finding], str]:
+    """Whether the test configuration's passband covers the stations heard in the target band.
+
+    Stations are the census stations of the antenna sweeps of both configurations detected in at
+    least half of either's sweeps; the passband is the trusted fit of :func:`passband_for`.
+    Returns the findings (:func:`passband_findings`) and one "Checked" line saying what was
+    found or why the check could not be made.
+    """
+    if target_hz is None:
+        sweeps = list(survey.find_sweeps(base)) + list(survey.find_sweeps(test))
+        target_hz, _ = default_target_hz(sweeps, None)
+    if target_hz is None:
+        return [], "passband coverage: not checked (no target band: give --target START-STOP)"
+    lo, hi = target_hz
+    try:
+        rows_b, rows_t = survey.sweeps(base, "antenna"), survey.sweeps(test, "antenna")
+        mat_b, mat_t = survey.item_matrices(rows_b, rows_t)
+    except AnalysisError as exc:
+        return [], f"passband coverage: not checked ({exc})"
+    heard_mask = (mat_b.detected.mean(axis=0) >= 0.5) | (mat_t.detected.mean(axis=0) >= 0.5)
+    heard = [float(f) for f in np.asarray(mat_b.freqs_hz)[heard_mask]]
+    try:
+        pb, why = passband_for(survey, base, test, target_hz, seed=seed)
+    except AnalysisError as exc:
+        pb, why = None, str(exc)
+    if pb is None:
+        return [], f"passband coverage: not checked ({why})"
+    cov = coverage(pb.fit, pb.coverage.target_hz, heard)
+    e_lo, e_hi = pb.fit.edges_3db_hz
+    return passband_findings(pb, heard), (
+        f"passband coverage: -3 dB edges {e_lo / 1e6:.2f}-{e_hi / 1e6:.2f} MHz (fitted to the {pb.curve.source} gain curve) "
+        f"cover {len(cov.covered_stations_hz)} of {len(cov.stations_in_target_hz)} stations heard in "
+        f"{lo / 1e6:g}-{hi / 1e6:g} MHz")
 
 
 def comparison_for(survey: Survey, base: str, test: str, **kwargs) -> Comparison:
@@ -230,7 +270,7 @@ def assess(source: Survey | str | Path, base: str, test: str, *, options: NoiseO
                      if c.base_detected_fraction >= 0.5 or c.test_detected_fraction >= 0.5]
             findings += passband_findings(pb, heard)
         pred = predicted_noise_rise_note(noise, result) if noise is not None else f"not available: {noise_note}"
-        split = noise_split_note(noise)
+        split = noise_split_note(noise, ceiling)
     finally:
         if opened:
             survey.close()

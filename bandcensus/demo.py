@@ -79,7 +79,7 @@ def demo_steps(out: Path, recordings: Sequence[Path]) -> list[DemoStep]:
         DemoStep("Replay the bundled recordings into a new database",
                  ("replay", *map(str, recordings), "--db", db, "--quiet")),
         DemoStep("What is in the database", ("runs", "--db", db)),
-        DemoStep("Per-channel table without a preamp (medians over sweeps)", ("channels", "--db", db, "--config", "bare")),
+        DemoStep("Stations heard without a preamp (medians over sweeps)", ("stations", "--db", db, "--config", "bare")),
     ]
     # the receiver alone: its noise figure and the site's outside noise (the ceiling of any preamp)
     steps.append(DemoStep(
@@ -104,6 +104,10 @@ def demo_steps(out: Path, recordings: Sequence[Path]) -> list[DemoStep]:
             ("passband", "--db", db, "--base", "bare", "--test", test, "--target", "88-100",
              "--plot", str(out / f"passband-{test}.png")),
         ))
+    steps.append(DemoStep(
+        "Trouble in the chain: preamp-peaked against the 88-100 MHz target",
+        ("diagnose", "--db", db, "--base", "bare", "--test", "preamp-peaked", "--enr-db", "15", "--target", "88-100"),
+    ))
     steps.append(DemoStep(
         "Trouble in the chain: preamp-bench-supply", ("diagnose", "--db", db, "--base", "bare", "--test", "preamp-bench-supply", "--enr-db", "15"),
     ))

@@ -13,6 +13,12 @@ Model per channel ``j`` (all levels in dBFS, ratios in dB):
 
 ``received`` is set when ``P - N`` (dB) exceeds the 3 dB detection margin, as the sweep
 engine does. Everything is seeded (``np.random.default_rng(seed)``).
+
+The database written by :func:`write_db` also holds the station rows (the ``stations`` table)
+the census reads: each station is a transmitter on its channel's raster frequency (its carrier,
+by construction), recorded as an emission in every sweep where its measured C/N is at least
+:data:`EMISSION_FLOOR_CN_DB` (the emission detector keeps stations down to about 0 dB C/N),
+with the same measured power and floor as its channel row.
 """
 
 from __future__ import annotations
@@ -22,7 +28,7 @@ from datetime import datetime, timedelta, timezone
 
 import numpy as np
 
-from survey.records import ChannelReading, HopReading, RunInfo, SweepResult, SweepSettings
+from survey.records import ChannelReading, EmissionReading, HopReading, RunInfo, SweepResult, SweepSettings
 from survey.store import ChannelMatrix, SurveyStore
 from survey.units import db_to_ratio, ratio_to_db
 
@@ -35,6 +41,8 @@ GAIN_DB = np.array([14, 14, 14, 14, 14, 14, 13, 13, 13, 12, 12, 12,
                     11, 11, 11, 10, 10, 9.6, 9, 9, 8.6, 2.0, 2, 2], float)
 #: Noise rise per channel (dB): preamp noise amplified, roughly flat.
 RISE_DB = np.full(FREQS_HZ.size, 9.0)
+#: Lowest measured C/N (dB) at which the fixture records a station's emission in a sweep.
+EMISSION_FLOOR_CN_DB = 0.0
 START = datetime(2026, 5, 1, 18, 0, 0, tzinfo=timezone.utc)
 
 
@@ -121,15 +129,20 @@ def matrices(truth: Truth, margin_db: float = 3.0) -> tuple[ChannelMatrix, Chann
 def _sweep(config: str, power: np.ndarray, noise: np.ndarray, t_s: float, settings: SweepSettings,
            input: str = "antenna") -> SweepResult:
     bw = settings.channel_bw_hz
-    chans = []
+    chans, emissions = [], []
     for j, f in enumerate(FREQS_HZ.tolist()):
         p, nz = float(power[j]), float(noise[j])
         received = p - nz >= settings.received_margin_db
         cn = float(ratio_to_db(db_to_ratio(p) / db_to_ratio(nz) - 1.0)) if received else None
         chans.append(ChannelReading(int(f), 0, p, nz, nz - float(ratio_to_db(bw)), cn, received))
+        excess = float(db_to_ratio(p) / db_to_ratio(nz) - 1.0)
+        own_cn = float(ratio_to_db(excess)) if excess > 0 else float("nan")
+        if np.isfinite(CN0_DB[j]) and own_cn >= EMISSION_FLOOR_CN_DB:
+            emissions.append(EmissionReading(float(f), 0, "fm", 150_000.0, p, nz, own_cn, None, False, int(f)))
     hop = HopReading(0, 90_000_000.0, settings.sample_rate_hz, 2048, 0.0, float(np.median(noise)) - 53.0,
                      _stamp(t_s))
-    return SweepResult(config, input, _stamp(t_s), _stamp(t_s + 2.0), settings, (hop,), tuple(chans))
+    return SweepResult(config, input, _stamp(t_s), _stamp(t_s + 2.0), settings, (hop,), tuple(chans),
+                       emissions=tuple(emissions))
 
 
 def write_db(path, truth: Truth, base: str = "bare", test: str = "preamp-a",

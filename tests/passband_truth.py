@@ -21,7 +21,7 @@ from typing import Callable, Sequence
 import numpy as np
 
 from analysis.passband.fit import TunedStage, cascade_response_db
-from survey.records import ChannelReading, HopReading, RunInfo, SweepResult, SweepSettings
+from survey.records import ChannelReading, EmissionReading, HopReading, RunInfo, SweepResult, SweepSettings
 from survey.store import SurveyStore
 from survey.units import db_to_ratio, ratio_to_db
 
@@ -81,7 +81,7 @@ def build_db(
         for inp in inputs:
             t_in = {"noise-hot": T_HOT, "noise-cold": T_COLD, "terminated": T_COLD, "antenna": 600.0}[inp]
             for _s in range(sweeps_per_input):
-                hops, channels = [], []
+                hops, channels, emissions = [], [], []
                 for h, fc in enumerate(CENTERS_HZ):
                     freqs, psd = _hop_psd(fc, t_in, gain_fn, with_pre, rng, n_avg, -60.0 + 20.0 * rng.random())
                     hops.append(HopReading(
@@ -110,10 +110,16 @@ def build_db(
                         noise_density_dbfs_hz=float(ratio_to_db(noise_lin / channel_bw)), cn_db=cn,
                         received=bool(received),
                     ))
+                    if sig > noise_lin:  # the station row the emission detector writes (C/N >= 0 dB)
+                        emissions.append(EmissionReading(
+                            freq_hz=float(round(ch)), hop_index=h, kind="fm", occupied_bw_hz=150_000.0,
+                            power_dbfs=float(ratio_to_db(power)), noise_dbfs=float(ratio_to_db(noise_lin)),
+                            cn_db=float(ratio_to_db(sig / noise_lin)), ci_db=None, stereo=False,
+                            channel_freq_hz=int(round(ch))))
                 result = SweepResult(
                     configuration=cfg, input=inp, started_utc="2026-01-01T00:00:00Z",
                     ended_utc="2026-01-01T00:00:01Z", settings=settings, hops=tuple(hops),
-                    channels=tuple(channels),
+                    channels=tuple(channels), emissions=tuple(emissions),
                 )
                 store.write_sweep(run, result, keep_spectra=keep_spectra)
     store.end_run(run)

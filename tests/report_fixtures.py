@@ -8,6 +8,7 @@ noise-cold sweeps of both (ENR 15 dB in the scene). ``hostile_db`` writes known-
 
 from __future__ import annotations
 
+import tomllib
 from pathlib import Path
 
 from bandcensus.cli import main
@@ -17,11 +18,40 @@ from survey.store import SurveyStore
 
 SCENE = Path(__file__).resolve().parent.parent / "recordings_demo" / "quorrelby_hill.toml"
 BAND = "custom:92-97:100"
+BAND_HZ = (92.0e6, 97.0e6)
 ENR_DB = 15.0
 #: Channels of BAND: 92.0 to 97.0 MHz on a 100 kHz raster.
 N_CHANNELS = 51
+#: A census station within this distance (Hz) of a scene carrier is that transmitter (the
+#: census's own grouping distance for FM, analysis.census.SAME_FM_STATION_HZ).
+MATCH_HZ = 25_000.0
 #: The scene's strongest station inside BAND (-92 dBm at 93.2 MHz, quorrelby_hill.toml).
 STRONGEST_HZ = 93_200_000
+
+
+
+def scene_carriers_hz(lo_hz: float = 0.0, hi_hz: float = float("inf")) -> list[float]:
+    """Carrier frequencies (Hz) of the scene's invented stations between ``lo_hz`` and ``hi_hz``."""
+    with open(SCENE, "rb") as fh:
+        scene = tomllib.load(fh)
+    freqs = [float(st["freq_mhz"]) * 1e6 if "freq_mhz" in st else float(st["freq_hz"]) for st in scene["station"]]
+    return sorted(f for f in freqs if lo_hz <= f <= hi_hz)
+
+
+def match_to_scene(census_hz, carriers_hz) -> dict[float, float]:
+    """``{scene carrier: census station}`` for every census station within MATCH_HZ of a carrier.
+
+    Raises AssertionError when a census station matches no carrier or two census stations
+    match the same carrier (a sideband or a phantom counted as a station).
+    """
+    out: dict[float, float] = {}
+    for f in census_hz:
+        near = [c for c in carriers_hz if abs(c - f) <= MATCH_HZ]
+        assert len(near) == 1, f"census station at {f:.0f} Hz is no scene transmitter"
+        assert near[0] not in out, f"two census stations for the transmitter at {near[0]:.0f} Hz"
+        out[near[0]] = float(f)
+    return out
+
 
 HOSTILE_BASE = "<script>alert(1)</script>"
 HOSTILE_TEST = "pre&amp<b>\"amp'</b> $x^2$"  # '$' would start matplotlib mathtext

@@ -150,7 +150,10 @@ def test_stations_command_errors_are_one_line(tmp_path, db, capsys):
     assert main(["stations", "--db", str(tmp_path / "missing.db")]) == 1
     assert capsys.readouterr().err.startswith("Error: ")
     assert main(["stations", "--db", str(db), "--config", "nonesuch"]) == 1
-    assert "the database holds" in capsys.readouterr().err
+    # one line naming the unknown label and every configuration the database holds
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 1 and err[0].startswith("Error: ") and "'nonesuch'" in err[0]
+    assert "the database holds: 'bare' antenna (2), 'flat' antenna (2)" in err[0]
 
 
 # ---- schema 1 databases -------------------------------------------------------------------------
@@ -269,3 +272,32 @@ def test_demo_stations_found_once_and_carriers_never_stations():
         detected = {i for i, e in zip(idx, result.emissions) if e.cn_db >= settings.received_margin_db}
         # every station but the weak one at 94.5 MHz (below the margin without a preamp)
         assert detected >= set(range(truth.size)) - {int(np.argmin(np.abs(truth - 94.5e6)))}
+
+
+def test_analyses_on_a_schema_1_database_say_once_how_to_migrate(tmp_path, sweeps, capsys):
+    """The analyses open a database read-only: a schema-1 database (no stations table) is never
+    migrated behind the user's back; every command built on the census says so in one line and
+    the database is left as it was. Raster channels (--channels) need no census."""
+    path = tmp_path / "v1.db"
+    _v1_database(path, sweeps)
+    before = path.read_bytes()
+    for argv in (["compare", "--base", "bare", "--test", "flat"],
+                 ["compare", "--base", "bare", "--test", "flat", "--json"],
+                 ["report", "--base", "bare", "--test", "flat", "--out", str(tmp_path / "r.html")]):
+        code = main([argv[0], "--db", str(path), *argv[1:]])
+        captured = capsys.readouterr()
+        err = captured.err.strip().splitlines()
+        assert code == 1 and len(err) == 1, (argv, captured.err)
+        assert err[0] == (f"Error: {path} predates the station census (schema 1): run `bandcensus stations --db "
+                          f"{path}` once to migrate it (`compare --channels` reads the raster channels without it)")
+    assert path.read_bytes() == before and not (tmp_path / "r.html").exists()
+    # the chain diagnosis reads raster channels and spectra only: it runs on a schema-1 database
+    assert main(["diagnose", "--db", str(path), "--base", "bare", "--test", "flat"]) == 0
+    capsys.readouterr()
+    assert main(["compare", "--db", str(path), "--base", "bare", "--test", "flat", "--channels", "--json"]) == 0
+    assert json.loads(capsys.readouterr().out)["unit"] == "channel"
+    # the command named in the message migrates it; then the analyses run on stations
+    assert main(["stations", "--db", str(path), "--json"]) == 0
+    capsys.readouterr()
+    assert main(["compare", "--db", str(path), "--base", "bare", "--test", "flat", "--json"]) == 0
+    assert json.loads(capsys.readouterr().out)["unit"] == "station"

@@ -51,9 +51,15 @@ def test_delta_within_half_db_of_truth(result):
 
 def test_identity_gain_minus_noise_rise(result):
     checked = 0
-    for c, g, r, strong in zip(result.channels, GAIN_DB, RISE_DB, STRONG):
+    # the items are the census stations: one per simulated transmitter, on its carrier
+    assert result.unit == "station"
+    assert sorted(c.freq_hz for c in result.items) == FREQS_HZ[np.isfinite(CN0_DB)].tolist()
+    column = {f: j for j, f in enumerate(FREQS_HZ.tolist())}
+    for c in result.items:
+        j = column[c.freq_hz]
+        g, r, strong = GAIN_DB[j], RISE_DB[j], STRONG[j]
         assert c.noise_rise_db is not None
-        assert c.noise_rise_db == pytest.approx(r, abs=0.2)  # every channel, occupied or not
+        assert c.noise_rise_db == pytest.approx(r, abs=0.2)  # every station, strong or weak
         if c.delta_cn_db is None:
             assert c.gain_db is None
             continue
@@ -161,6 +167,7 @@ def test_one_sweep_per_side_gives_difference_without_interval():
 
 def test_noise_rise_explained_at_the_same_frequencies(result):
     s = result.summary
+    # measured on the raster detail: the channels no sweep received (the unoccupied ones)
     assert s["broadband_noise_rise_db"] == pytest.approx(9.0, abs=0.2)
     assert s["unoccupied_channels"] == int(np.sum(~np.isfinite(CN0_DB)))
     assert s["median_noise_rise_db"] == pytest.approx(9.0, abs=0.2)  # at the stations themselves
@@ -170,7 +177,8 @@ def test_noise_rise_explained_at_the_same_frequencies(result):
 def test_to_dict_is_json_without_nan(result):
     text = json.dumps(result.to_dict(), allow_nan=False)
     doc = json.loads(text)
-    assert doc["base"] == "bare" and len(doc["items"]) == FREQS_HZ.size
+    # one row per census station (the 17 simulated transmitters), not per raster channel
+    assert doc["base"] == "bare" and doc["unit"] == "station" and len(doc["items"]) == int(np.isfinite(CN0_DB).sum())
     for row in doc["items"]:
         for key in ("freq_hz", "base_cn_db", "test_cn_db", "delta_cn_db", "ci_low_db", "ci_high_db",
                     "gain_db", "noise_rise_db", "verdict", "pairs"):
@@ -293,3 +301,15 @@ def test_end_to_end_on_simulated_scene(tmp_path):
     pred = full.predicted_noise_rise
     assert isinstance(pred, dict) and abs(pred["excess_db"]) < 1.0 and "agrees" in pred["note"]
     assert pred["median_predicted_db"] == pytest.approx(float(np.median(rise_truth)), abs=0.5)
+
+
+def test_noise_rise_explanation_by_case():
+    """delta C/N = G - R: the sentence follows the signs (margins 1 dB, common practice, no source)."""
+    from analysis.compare.summary import noise_rise_explanation
+
+    assert "lifts signals above it" in noise_rise_explanation(19.0, 17.4, 12)     # receiver noise dominated
+    assert "more gain will not help" in noise_rise_explanation(10.0, 9.6, 12)      # noise ahead dominates
+    assert "adds noise beyond its gain" in noise_rise_explanation(-20.0, 7.2, 12)  # floor rose, signals fell
+    attenuated = noise_rise_explanation(-14.7, -3.8, 12)  # a passband that misses the stations
+    assert "attenuates the signals" in attenuated and "adds noise" not in attenuated
+    assert noise_rise_explanation(None, 1.0, 0).startswith("not available")

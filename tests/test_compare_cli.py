@@ -9,11 +9,16 @@ import json
 import pytest
 
 from bandcensus.cli import main
-from compare_truth import FREQS_HZ, make_truth, write_db
+import numpy as np
+
+from compare_truth import CN0_DB, FREQS_HZ, make_truth, write_db
 from survey.records import SweepSettings
 
 ROW_KEYS = {"freq_hz", "base_cn_db", "test_cn_db", "delta_cn_db", "ci_low_db", "ci_high_db", "gain_db",
             "noise_rise_db", "verdict", "pairs"}
+#: Station rows add the RDS name and block error rates (None: not decoded, as in this fixture).
+STATION_ROW_KEYS = ROW_KEYS | {"name", "base_block_error_rate", "test_block_error_rate", "delta_block_error_rate",
+                               "bler_ci_low", "bler_ci_high"}
 COUNT_KEYS = ("helped", "hurt", "unchanged", "undetermined", "gained", "lost")
 
 
@@ -33,22 +38,38 @@ def test_json_shape(db, capsys):
     doc = json.loads(capsys.readouterr().out, parse_constant=_reject_nan)
     assert {"base", "test", "method", "thresholds", "summary", "headlines", "warnings"} <= set(doc)
     assert doc["base"] == "bare" and doc["test"] == "preamp-a" and doc["warnings"] == []
-    assert doc["method"].startswith("paired") and doc["unit"] == "channel"
+    assert doc["method"].startswith("paired") and doc["unit"] == "station"
     assert doc["thresholds"]["min_change_db"] == 0.5
-    # this database has raster channels only (no census): the rows say so
-    rows = doc["channels"]
-    assert len(rows) == FREQS_HZ.size
+    # one row per census station: the fixture's 17 transmitters, each on its carrier; the
+    # unoccupied raster channels are no station and have no row
+    rows = doc["stations"]
+    assert "channels" not in doc
     for row in rows:
-        assert set(row) == ROW_KEYS
-        if row["verdict"] == "not received":
-            assert row["delta_cn_db"] is None and row["base_cn_db"] is None
-    assert [r["freq_hz"] for r in rows] == FREQS_HZ.tolist()
+        assert set(row) == STATION_ROW_KEYS and row["name"] is None and row["delta_block_error_rate"] is None
+        assert row["verdict"] != "not received" and row["delta_cn_db"] is not None
+    assert [r["freq_hz"] for r in rows] == FREQS_HZ[np.isfinite(CN0_DB)].tolist()
     s = doc["summary"]
-    assert all(isinstance(s[k], int) for k in COUNT_KEYS)
-    assert sum(s[k] for k in COUNT_KEYS) + s["not_received"] == len(rows) and s["helped"] >= 8
+    assert all(isinstance(s[k], int) for k in COUNT_KEYS) and "not_received" not in s
+    assert sum(s[k] for k in COUNT_KEYS) == len(rows) and s["helped"] >= 8
     for k, verdict in zip(COUNT_KEYS, ("improved", "worse", "unchanged", "undetermined", "gained", "lost")):
         assert s[k] == sum(r["verdict"] == verdict for r in rows)
-    assert len(doc["headlines"]) == 4 and doc["headlines"][0].startswith("Channels helped")
+    assert len(doc["headlines"]) == 4 and doc["headlines"][0].startswith("Stations helped")
+    assert doc["headlines"][0].endswith(f"(of {len(rows)} stations).")
+
+
+def test_json_channels_option_gives_raster_rows(db, capsys):
+    assert main(["compare", "--db", db, "--base", "bare", "--test", "preamp-a", "--json", "--channels"]) == 0
+    doc = json.loads(capsys.readouterr().out, parse_constant=_reject_nan)
+    assert doc["unit"] == "channel" and "stations" not in doc
+    rows = doc["channels"]
+    assert [r["freq_hz"] for r in rows] == FREQS_HZ.tolist()
+    for row in rows:
+        if row["verdict"] == "not received":
+            assert row["delta_cn_db"] is None and row["base_cn_db"] is None
+    s = doc["summary"]
+    assert sum(s[k] for k in COUNT_KEYS) + s["not_received"] == len(rows) == FREQS_HZ.size
+    assert s["not_received"] == int(np.sum(~np.isfinite(CN0_DB)))
+    assert doc["headlines"][0].startswith("Channels helped")
 
 
 def test_time_range_options(db, capsys):
@@ -63,17 +84,29 @@ def test_csv_rows(db, capsys):
     assert main(["compare", "--db", db, "--base", "bare", "--test", "preamp-a", "--csv",
                  "--min-change-db", "1", "--confidence", "0.9"]) == 0
     rows = list(csv.DictReader(io.StringIO(capsys.readouterr().out)))
-    assert len(rows) == FREQS_HZ.size and set(rows[0]) == ROW_KEYS and list(rows[0])[:2] == ["freq_hz", "verdict"]
-    assert rows[3]["verdict"] == "not received" and rows[3]["delta_cn_db"] == ""
+    # station rows: 88.1 MHz (truth +5 dB) first; no row for the empty 88.7 MHz channel
+    assert len(rows) == int(np.isfinite(CN0_DB).sum()) and set(rows[0]) == STATION_ROW_KEYS
+    assert list(rows[0])[:2] == ["freq_hz", "verdict"]
+    assert int(rows[0]["freq_hz"]) == 88_100_000 and "88700000" not in [r["freq_hz"] for r in rows]
     assert float(rows[0]["delta_cn_db"]) == pytest.approx(5.0, abs=0.5)
+    # dB to 0.01 dB, Hz as integers (bandcensus/commands/_csv.py); no 17-digit floats
+    for row in rows:
+        for key in ("base_cn_db", "test_cn_db", "delta_cn_db", "gain_db", "noise_rise_db"):
+            assert row[key] == "" or len(row[key].split(".")[-1]) <= 2, (key, row[key])
+        assert row["freq_hz"].isdigit()
+    assert main(["compare", "--db", db, "--base", "bare", "--test", "preamp-a", "--csv", "--channels"]) == 0
+    raster = list(csv.DictReader(io.StringIO(capsys.readouterr().out)))
+    assert len(raster) == FREQS_HZ.size and set(raster[0]) == ROW_KEYS
+    assert raster[3]["verdict"] == "not received" and raster[3]["delta_cn_db"] == ""
 
 
 def test_terminal_summary_then_rows(db, capsys, tmp_path):
     png = tmp_path / "cmp.png"
-    assert main(["compare", "--db", db, "--base", "bare", "--test", "preamp-a", "--plot", str(png)]) == 0
+    assert main(["compare", "--db", db, "--base", "bare", "--test", "preamp-a", "--plot", str(png),
+                 "--explain"]) == 0
     out = capsys.readouterr().out
     assert out.count("SNR (C/N) =") == 1 and "(P - N) / N" in out
-    assert out.index("Channels helped") < out.index("Listenable") < out.index("Could any preamp help") \
+    assert out.index("Stations helped") < out.index("Listenable") < out.index("Could any preamp help") \
         < out.index("Trouble") < out.index("│ 88.10") < out.index("│ 88.30") < out.index("│ 92.70")
     assert "common practice, no source" in out and "Verdicts:" in out
     assert png.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n" and png.stat().st_size > 20_000
@@ -125,3 +158,14 @@ def test_help_names_the_definitions(capsys):
                 "--confidence", "--channels", "--enr-db", "--enr-table", "--cold-k"):
         assert opt in out
     assert "Student t" in out and "Welch" in out
+
+
+def test_method_paragraph_only_with_explain(db, capsys):
+    assert main(["compare", "--db", db, "--base", "bare", "--test", "preamp-a", "--no-diagnosis"]) == 0
+    quiet = capsys.readouterr().out
+    assert "Stations helped" in quiet and "--explain for the method" in quiet
+    assert "Method:" not in quiet and "Verdicts:" not in quiet and "(P - N) / N" not in quiet
+    assert main(["compare", "--db", db, "--base", "bare", "--test", "preamp-a", "--no-diagnosis", "--explain"]) == 0
+    full = capsys.readouterr().out
+    assert "Method: paired" in full and "Verdicts:" in full and "(P - N) / N" in full
+    assert len(full.splitlines()) > len(quiet.splitlines())

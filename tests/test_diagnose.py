@@ -72,7 +72,8 @@ def test_clean_preamp_has_no_finding(clean_db, test):
     d = diagnose(clean_db, "bare", test, receiver_nf_db=RX_NF_DB)
     assert d.findings == ()
     kinds = [c.split(":")[0] for c in d.checked]
-    assert kinds == ["clipping", "intermodulation", "oscillation", "added-noise"]
+    # the four chain checks, then whether the passband covers the stations heard in the band plan
+    assert kinds == ["clipping", "intermodulation", "oscillation", "added-noise", "passband coverage"]
     assert "0 of" in d.checked[0]
 
 

@@ -22,8 +22,8 @@ from analysis.report.html import render_html, write_report
 from analysis.report.plots import mpl_text, png_data_uri
 from bandcensus.cli import main
 from report_fixtures import (
-    ENR_DB, HOSTILE_BASE, HOSTILE_DEVICE, HOSTILE_NOTES, HOSTILE_TEST, N_CHANNELS, STRONGEST_HZ,
-    hostile_db, simulated_db,
+    BAND_HZ, ENR_DB, HOSTILE_BASE, HOSTILE_DEVICE, HOSTILE_NOTES, HOSTILE_TEST, MATCH_HZ, STRONGEST_HZ,
+    hostile_db, match_to_scene, scene_carriers_hz, simulated_db,
 )
 
 DEMO_SIGMF = Path(__file__).resolve().parent.parent / "recordings_demo" / "sigmf"
@@ -80,9 +80,15 @@ def test_model_reuses_the_analyses(sim):
     direct = compare_configurations(db, "bare", "preamp-peaked")
     assert r.comparison.to_dict() == direct.to_dict()
     assert r.noise.to_dict() == analyse_noise(db, "bare", "preamp-peaked", enr_db=ENR_DB).to_dict()
-    assert len(r.comparison.channels) == N_CHANNELS
+    # one row per station: every census station is a scene transmitter (within 25 kHz of its
+    # carrier), each once; 93.2 and 95.9 MHz (C/N about 15 and 7 dB bare) are found; the
+    # 94.5 MHz station (-104.5 dBm, about 2 dB C/N bare in a 4 ms dwell) may stay below the
+    # emission detector, so it is not required
+    assert r.comparison.unit == "station"
+    found = match_to_scene([c.freq_hz for c in r.comparison.items], scene_carriers_hz(*BAND_HZ))
+    assert {93.2e6, 95.9e6} <= set(found)
     # strongest received station of the invented scene inside the band (quorrelby_hill.toml)
-    assert r.series.strongest_hz == STRONGEST_HZ
+    assert abs(r.series.strongest_hz - STRONGEST_HZ) <= MATCH_HZ
     assert r.series.weakest_hz != r.series.strongest_hz
     # preamp NF of the scene is 1.0 dB (quorrelby_hill.toml): the report carries the workflow's figure
     assert r.noise.summary["preamp_nf_db"] == pytest.approx(1.0, abs=0.6)
@@ -133,7 +139,7 @@ def test_page_is_self_contained(sim):
     assert csp and "default-src 'none'" in csp[0]["content"]
     ids = [a.get("id") for t, a in p.tags if t == "section"]
     assert ids == [k for k, _ in SECTIONS]
-    assert p.rows == N_CHANNELS
+    assert p.rows == len(written.report.comparison.items)  # one table row per census station
     assert "@media print" in page and "break-inside: avoid" in page and "table-header-group" in page
 
 
@@ -268,7 +274,10 @@ def test_report_from_replayed_demo_recordings(tmp_path, capsys):
                  "--target", "88-100"]) == 0
     page = out.read_text(encoding="utf-8")
     p = _parse(page)
-    assert p.rows == 206  # europe band plan: 87.5-108 MHz on 100 kHz (GE84)
+    # one table row per census station; each a scene transmitter (quorrelby_hill.toml), each once
+    r = build_report(db, "bare", "preamp-peaked")
+    found = match_to_scene([c.freq_hz for c in r.comparison.items], scene_carriers_hz())
+    assert p.rows == len(r.comparison.items) == len(found) >= 10
     assert 'id="simulated-banner"' in page and "replays recordings marked simulated" in page
     assert 'class="unavailable"' in page  # antenna recordings only: no noise-source runs
     capsys.readouterr()

@@ -18,7 +18,8 @@ import pytest
 
 from analysis.report.build import SECTIONS
 from analysis.report.html import write_report
-from report_fixtures import ENR_DB, HOSTILE_BASE, HOSTILE_DEVICE, HOSTILE_TEST, N_CHANNELS, hostile_db, simulated_db
+from report_fixtures import (ENR_DB, HOSTILE_BASE, HOSTILE_DEVICE, HOSTILE_TEST, hostile_db, match_to_scene,
+                             scene_carriers_hz, simulated_db)
 
 pytestmark = pytest.mark.browser
 
@@ -104,11 +105,13 @@ def test_report_renders_offline_without_errors(browser, pages):
     assert page_url in urls
     strays = [u for u in urls if not (u == page_url or u.startswith("data:"))]
     assert not strays, strays
-    # one table row per channel of the comparison
+    # one table row per census station of the comparison, each a scene transmitter; the first
+    # is the scene's 93.2 MHz station (the lowest in the 92-97 MHz band the census finds)
+    items = sim.report.comparison.items
     rows = browser.find_elements(By.CSS_SELECTOR, "#channel-table tbody tr")
-    assert len(rows) == len(sim.report.comparison.channels) == N_CHANNELS
+    assert len(rows) == len(items) == len(match_to_scene([c.freq_hz for c in items], scene_carriers_hz(92e6, 97e6)))
     first = rows[0].find_elements(By.TAG_NAME, "td")
-    assert first[0].text == "92.00" and len(first) == 9
+    assert first[0].text == "93.20" and len(first) == 9
     ids = [s.get_attribute("id") for s in browser.find_elements(By.TAG_NAME, "section")]
     assert ids == [k for k, _ in SECTIONS]
     heads = [h.text for h in browser.find_elements(By.CSS_SELECTOR, "section > h2")]

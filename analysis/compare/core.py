@@ -36,8 +36,10 @@ equivalence margin ``m`` (``min_change_db``, default 0.5 dB):
   interval wholly inside ``[-m, +m]`` -> **unchanged** (equivalence at the same confidence);
   wholly above 0 -> **improved**; wholly below 0 -> **worse**; spanning zero ->
   **undetermined**;
-* raster channels that no sweep of either configuration detected are **not received** (the
-  census lists no such station).
+* raster channels that no sweep of either configuration detected are **not received**. A
+  station of the census is a transmitter whose own emission was found in at least one sweep,
+  so its measured C/N means something even when it never reached the detection margin: such a
+  station gets the verdict of its C/N interval, never "not received".
 """
 
 from __future__ import annotations
@@ -49,6 +51,7 @@ import numpy as np
 
 from analysis.compare.pairing import pair_sweeps
 from analysis.compare.intervals import MIN_PAIRS, Intervals, column_mean_sd, paired_t, welch_t
+from analysis.census import SAME_FM_STATION_HZ
 from analysis.compare.settings import settings_warnings
 from analysis.compare.summary import summarise
 from analysis.errors import BadParameterError, MismatchError
@@ -61,7 +64,13 @@ VERDICTS = ("improved", "worse", "unchanged", "undetermined", "gained", "lost", 
 
 @dataclass(frozen=True)
 class ItemDelta:
-    """Comparison of one item (station or raster channel). dB values; None where undefined."""
+    """Comparison of one item (station or raster channel). dB values; None where undefined.
+
+    Stations identified by RDS carry ``name`` (e.g. ``"MARSH FM (PI D2E4)"``). Where RDS block
+    counts exist for a station in both configurations, the block error rates (fractions of
+    RDS block slots failed, IEC 62106) are compared like the C/N: base and test means over the
+    same pairs, the mean paired difference and its t interval (``bler_ci_low``/``bler_ci_high``).
+    """
 
     freq_hz: int
     base_cn_db: float | None
@@ -78,6 +87,12 @@ class ItemDelta:
     test_detected_fraction: float = 0.0
     detection_change_low: float | None = None
     detection_change_high: float | None = None
+    name: str | None = None
+    base_block_error_rate: float | None = None
+    test_block_error_rate: float | None = None
+    delta_block_error_rate: float | None = None
+    bler_ci_low: float | None = None
+    bler_ci_high: float | None = None
 
     @property
     def n_used(self) -> int:
@@ -133,18 +148,75 @@ def _opt(x, digits: int = 4) -> float | None:
     return round(float(x), digits) if x is not None and np.isfinite(x) else None
 
 
-def _aligned(matrix, freqs_hz: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """C/N (dB), noise (dBFS) and detection flags of ``matrix`` on the axis ``freqs_hz`` (float32)."""
+def item_axis(base, test) -> np.ndarray:
+    """The common item axis (Hz, int64) of two per-item matrices.
+
+    Raster channels sit on integer raster frequencies and are matched exactly. Station
+    frequencies are medians of carrier estimates (not integers, and not identical between two
+    censuses read separately): a test station within :data:`analysis.census.SAME_FM_STATION_HZ`
+    of a base station is the same station and takes the base station's frequency.
+    """
+    fb = np.round(np.asarray(base.freqs_hz, np.float64)).astype(np.int64)
+    ft = np.round(np.asarray(test.freqs_hz, np.float64)).astype(np.int64)
+    if hasattr(base, "kinds") and hasattr(test, "kinds") and fb.size and ft.size:
+        ft = _snap(ft, fb)
+    return np.union1d(fb, ft)
+
+
+def _snap(freqs: np.ndarray, onto: np.ndarray) -> np.ndarray:
+    """``freqs`` with each value within SAME_FM_STATION_HZ of a value of sorted ``onto`` moved onto it."""
+    pos = np.clip(np.searchsorted(onto, freqs), 1, max(onto.size - 1, 1))
+    lo, hi = onto[pos - 1], onto[np.minimum(pos, onto.size - 1)]
+    near = np.where(np.abs(freqs - lo) <= np.abs(hi - freqs), lo, hi)
+    return np.where(np.abs(near - freqs) <= SAME_FM_STATION_HZ, near, freqs)
+
+
+def _aligned(matrix, freqs_hz: np.ndarray, onto: np.ndarray | None = None
+             ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """C/N (dB), noise (dBFS) and detection flags of ``matrix`` on the axis ``freqs_hz`` (float32).
+
+    ``onto`` (stations only): the base matrix's frequencies, onto which this matrix's stations
+    are snapped as in :func:`item_axis`.
+    """
     cn = np.asarray(matrix.cn_db, np.float32)
     noise = np.asarray(matrix.noise_dbfs, np.float32)
     det = np.asarray(matrix.detected, bool)
-    if matrix.freqs_hz.size == freqs_hz.size and np.array_equal(matrix.freqs_hz, freqs_hz):
+    own = np.round(np.asarray(matrix.freqs_hz, np.float64)).astype(np.int64)
+    if onto is not None and onto.size and own.size:
+        own = _snap(own, onto)
+    if own.size == freqs_hz.size and np.array_equal(own, freqs_hz):
         return cn, noise, det
-    cols = np.searchsorted(freqs_hz, matrix.freqs_hz)
+    cols = np.searchsorted(freqs_hz, own)
     shape = (cn.shape[0], freqs_hz.size)
     out = [np.full(shape, np.nan, np.float32), np.full(shape, np.nan, np.float32), np.zeros(shape, bool)]
     out[0][:, cols], out[1][:, cols], out[2][:, cols] = cn, noise, det
     return out[0], out[1], out[2]
+
+
+def _aligned_extra(matrix, freqs_hz: np.ndarray, onto: np.ndarray | None = None):
+    """Station names (list per item of ``freqs_hz``) and per-sweep RDS block error rates
+    ``(n_sweeps, n_items)`` (NaN where no block was received) of ``matrix``; None for each
+    that the matrix does not carry."""
+    own = np.round(np.asarray(matrix.freqs_hz, np.float64)).astype(np.int64)
+    if onto is not None and onto.size and own.size:
+        own = _snap(own, onto)
+    cols = np.searchsorted(freqs_hz, own)
+    names = None
+    given = tuple(getattr(matrix, "names", ()) or ())
+    if len(given) == own.size and any(given):
+        names = [None] * freqs_hz.size
+        for j, name in zip(cols.tolist(), given):
+            names[j] = name
+    rates = None
+    blocks = getattr(matrix, "rds_blocks", None)
+    errors = getattr(matrix, "rds_block_errors", None)
+    if blocks is not None and errors is not None and np.any(np.asarray(blocks) > 0):
+        b = np.asarray(blocks, np.float64)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            r = np.where(b > 0, np.asarray(errors, np.float64) / b, np.nan)
+        rates = np.full((r.shape[0], freqs_hz.size), np.nan)
+        rates[:, cols] = r
+    return names, rates
 
 
 def cn_verdict(low: float | None, high: float | None, min_change_db: float) -> str:
@@ -181,26 +253,35 @@ def compare_matrices(
     pairing: str = "auto",
     min_change_db: float = 0.5,
     confidence: float = 0.95,
-    unit: str = "channel",
+    unit: str | None = None,
 ) -> Comparison:
     """Compare two per-item matrices already read (see :func:`compare_configurations`).
 
     ``pairing`` is ``"auto"`` (paired when at least half of the smaller side finds a partner
-    in time), ``"paired"`` or ``"unpaired"``. Both matrices must have the common fields of
+    in time), ``"paired"`` or ``"unpaired"``. ``unit`` (``"station"`` or ``"channel"``) defaults
+    to what the matrices are (a census :class:`~analysis.census.StationMatrix` has ``kinds``). Both matrices must have the common fields of
     :class:`survey.store.ChannelMatrix` and :class:`analysis.census.StationMatrix`.
     """
+    if unit is None:
+        unit = "station" if hasattr(base, "kinds") else "channel"
     if pairing not in ("auto", "paired", "unpaired"):
         raise BadParameterError(f"pairing must be auto, paired or unpaired, not {pairing!r}")
     if not 0.5 <= confidence < 1.0:
         raise BadParameterError(f"confidence {confidence} must be at least 0.5 and below 1, e.g. 0.95")
     if min_change_db < 0:
         raise BadParameterError(f"min change {min_change_db} dB must not be negative")
-    freqs = np.union1d(base.freqs_hz, test.freqs_hz).astype(np.int64)
+    freqs = item_axis(base, test)
+    stations = hasattr(base, "kinds") and hasattr(test, "kinds")
+    base_axis = np.round(np.asarray(base.freqs_hz, np.float64)).astype(np.int64)
     cb, nb, db = _aligned(base, freqs)
-    ct, nt, dt = _aligned(test, freqs)
+    ct, nt, dt = _aligned(test, freqs, onto=base_axis if stations else None)
+    names_b, bler_b = _aligned_extra(base, freqs) if stations else (None, None)
+    names_t, bler_t = _aligned_extra(test, freqs, onto=base_axis) if stations else (None, None)
+    names = [nb_ or nt_ for nb_, nt_ in zip(names_b or [None] * freqs.size, names_t or [None] * freqs.size)]
     rf_b = db.mean(axis=0) if db.shape[0] else np.zeros(freqs.size)
     rf_t = dt.mean(axis=0) if dt.shape[0] else np.zeros(freqs.size)
-    ever = db.any(axis=0) | dt.any(axis=0)
+    # a census station was found as an emission at least once: its C/N is a measurement
+    ever = (db.any(axis=0) | dt.any(axis=0)) if unit == "channel" else np.ones(freqs.size, bool)
 
     bi, ti, tol_s = pair_sweeps(utc_to_epoch_s(base.started_utc), utc_to_epoch_s(test.started_utc))
     smaller = min(cb.shape[0], ct.shape[0])
@@ -223,6 +304,12 @@ def compare_matrices(
         rise_all = column_mean_sd(d_n)[0]
         rise = np.where(cn_iv.n > 0, rise_same, rise_all)
         det_iv = paired_t(dt[ti].astype(np.float32) - db[bi].astype(np.float32), confidence)
+        bler = None
+        if bler_b is not None and bler_t is not None:
+            d_bler = bler_t[ti] - bler_b[bi]
+            bler_iv = paired_t(d_bler, confidence)
+            bler_base = column_mean_sd(np.where(np.isfinite(d_bler), bler_b[bi], np.nan))[0]
+            bler = (bler_base, bler_iv)
         method = (f"paired: {bi.size} base/test sweep pairs closer than {tol_s:.1f} s; mean of the paired C/N "
                   f"differences with its Student t {pct} interval (n - 1 degrees of freedom), from "
                   f"{MIN_PAIRS} pairs up; base and test C/N are means over the same pairs")
@@ -232,11 +319,15 @@ def compare_matrices(
         test_mean = base_mean + cn_iv.mean
         rise = welch_t(nt, nb, confidence).mean
         det_iv = welch_t(dt.astype(np.float32), db.astype(np.float32), confidence)
+        bler = None
+        if bler_b is not None and bler_t is not None:
+            bler = (column_mean_sd(bler_b)[0], welch_t(bler_t, bler_b, confidence))
         method = ((("unpaired (as asked): " if pairing == "unpaired" else
                     f"unpaired: sweeps not alternating (only {bi.size} of {smaller} found a partner in time); "))
                   + f"difference of mean C/N with Welch's {pct} t interval (Welch-Satterthwaite degrees of "
                   f"freedom), from {MIN_PAIRS} sweeps per side up")
     items = _items(freqs, base_mean, test_mean, cn_iv, rise, det_iv, rf_b, rf_t, ever, min_change_db)
+    items = _with_identity(items, names, bler)
     thresholds = {
         "min_change_db": float(min_change_db),
         "confidence": float(confidence),
@@ -259,6 +350,26 @@ def compare_matrices(
         n_pairs=int(bi.size) if paired else 0, unit=unit,
     )
     return replace(result, summary=summarise(result))
+
+
+def _with_identity(items: list[ItemDelta], names: list, bler) -> list[ItemDelta]:
+    """Items with their station names and, where RDS blocks were counted in both
+    configurations, the block error rates (means over the pairs) and their change with interval."""
+    out = []
+    for j, item in enumerate(items):
+        extra: dict = {}
+        if names[j]:
+            extra["name"] = names[j]
+        if bler is not None:
+            base_rate, iv = bler
+            d = _opt(iv.mean[j], 6)
+            if d is not None and np.isfinite(base_rate[j]):
+                b = round(float(base_rate[j]), 6)
+                extra.update(base_block_error_rate=b, test_block_error_rate=round(b + d, 6),
+                             delta_block_error_rate=d, bler_ci_low=_opt(iv.low[j], 6),
+                             bler_ci_high=_opt(iv.high[j], 6))
+        out.append(replace(item, **extra) if extra else item)
+    return out
 
 
 def _items(freqs, base_mean, test_mean, cn_iv: Intervals, rise, det_iv: Intervals, rf_b, rf_t, ever,
@@ -339,9 +450,41 @@ def compare_configurations(
         else:
             mat_b, mat_t = survey.item_matrices(rows_b, rows_t)
             unit = "station" if hasattr(mat_b, "kinds") else "channel"
+        result = compare_matrices(mat_b, mat_t, base, test, input=input, pairing=pairing,
+                                  min_change_db=min_change_db, confidence=confidence, unit=unit)
+        if unit == "station":
+            rise, empty = broadband_noise_rise(survey.channel_matrix(rows_b), survey.channel_matrix(rows_t),
+                                               result.paired)
+            result = replace(result, summary={**result.summary, "broadband_noise_rise_db": rise,
+                                              "unoccupied_channels": empty})
     finally:
         if opened:
             survey.close()
-    result = compare_matrices(mat_b, mat_t, base, test, input=input, pairing=pairing, min_change_db=min_change_db,
-                              confidence=confidence, unit=unit)
     return replace(result, warnings=tuple(notes))
+
+
+def broadband_noise_rise(base, test, paired: bool) -> tuple[float | None, int]:
+    """Median noise rise (dB) over the raster channels that no sweep of either side received,
+    and how many there are: the floor's rise where no station is, from the raster detail.
+
+    Paired: the mean of the paired noise differences per channel (the comparison's pairing);
+    unpaired: the difference of the mean noise levels. ``(None, 0)`` when every channel held
+    a station.
+    """
+    freqs = np.intersect1d(base.freqs_hz, test.freqs_hz)
+    if freqs.size == 0 or base.sweep_ids.size == 0 or test.sweep_ids.size == 0:
+        return None, 0
+    cb = np.searchsorted(base.freqs_hz, freqs)
+    ct = np.searchsorted(test.freqs_hz, freqs)
+    nb = np.asarray(base.noise_dbfs, np.float64)[:, cb]
+    nt = np.asarray(test.noise_dbfs, np.float64)[:, ct]
+    empty = ~(np.asarray(base.received)[:, cb].any(axis=0) | np.asarray(test.received)[:, ct].any(axis=0))
+    if not empty.any():
+        return None, 0
+    bi, ti, _ = pair_sweeps(utc_to_epoch_s(base.started_utc), utc_to_epoch_s(test.started_utc))
+    if paired and bi.size:
+        rise = column_mean_sd(nt[ti][:, empty] - nb[bi][:, empty])[0]
+    else:
+        rise = column_mean_sd(nt[:, empty])[0] - column_mean_sd(nb[:, empty])[0]
+    rise = rise[np.isfinite(rise)]
+    return (round(float(np.median(rise)), 4) if rise.size else None), int(empty.sum())

@@ -124,3 +124,29 @@ def welch_t(test: np.ndarray, base: np.ndarray, confidence: float = 0.95, min_pe
         p_all = np.where(se > 0, p_all, np.where(mean != 0, 0.0, 1.0))
         p = np.where(have, p_all, np.nan)
     return Intervals(np.where(n > 0, mean, np.nan), mean - half, mean + half, p, n.astype(np.int64))
+
+
+def median_interval(values, confidence: float = 0.95) -> tuple[float | None, float | None, float | None]:
+    """Median of ``values`` (NaN ignored) and its distribution-free confidence interval.
+
+    The interval is between order statistics ``x_(k)`` and ``x_(n-k+1)`` with the largest
+    ``k`` for which ``P(B <= k - 1) <= (1 - confidence) / 2``, ``B ~ Binomial(n, 1/2)``: its
+    coverage is at least ``confidence`` for any continuous distribution (the sign-test interval
+    for a median; e.g. Conover, Practical Nonparametric Statistics, 3rd ed., section 3.2, from
+    memory). ``(median, None, None)`` when ``n`` is too small for that confidence (n < 6 at
+    95 %); all None without values.
+    """
+    import scipy.stats
+
+    x = np.sort(np.asarray(values, np.float64)[np.isfinite(np.asarray(values, np.float64))])
+    n = x.size
+    if n == 0:
+        return None, None, None
+    med = float(np.median(x))
+    alpha = (1.0 - confidence) / 2.0
+    ks = np.arange(1, n // 2 + 1)
+    ok = ks[scipy.stats.binom.cdf(ks - 1, n, 0.5) <= alpha]
+    if ok.size == 0:
+        return med, None, None
+    k = int(ok.max())
+    return med, float(x[k - 1]), float(x[n - k])

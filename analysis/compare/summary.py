@@ -18,19 +18,25 @@ COUNT_KEYS = {"improved": "helped", "worse": "hurt", "unchanged": "unchanged", "
               "gained": "gained", "lost": "lost", "not received": "not_received"}
 
 
-def noise_rise_explanation(gain_db: float | None, rise_db: float | None, n_items: int) -> str:
+def noise_rise_explanation(gain_db: float | None, rise_db: float | None, n_items: int, unit: str = "item") -> str:
     """What the noise rise says, from the median gain and the median noise rise over the SAME items.
 
     With ``delta C/N = G - R``: a floor that rises as much as the signals (``R ~ G``) means
     noise from ahead of the receiver (outside noise or the preamp's own noise) dominates and
     more gain cannot help; ``R`` well below ``G`` means the receiver's own noise dominated and
-    the test configuration lifts the signals above it; ``R > G`` means the test chain adds noise
-    beyond its gain. The 1 dB margins are common practice, no source.
+    the test configuration lifts the signals above it; ``R > G`` with a floor that rose means the
+    test chain adds noise beyond its gain; ``G`` below 0 with a floor that did not rise means the
+    test chain attenuates the signals (a passband that misses them) while the receiver's own
+    noise stays, so C/N falls. The 1 dB margins are common practice, no source.
     """
     if gain_db is None or rise_db is None:
         return "not available: no item with both a gain and a noise rise"
-    head = (f"at the {n_items} items with both measured, median gain {gain_db:+.1f} dB and median noise rise "
+    head = (f"at the {n_items} {unit}{'' if n_items == 1 else 's'} with both measured, median gain {gain_db:+.1f} dB and median noise rise "
             f"{rise_db:+.1f} dB: ")
+    if gain_db < -1.0 and rise_db <= 1.0:
+        return head + (f"the test chain attenuates the signals ({gain_db:+.1f} dB) and the floor falls less "
+                       "because the receiver's own noise stays: C/N drops; check that its passband covers "
+                       "these stations")
     if rise_db > gain_db + 1.0:
         return head + ("the floor rose more than the signals; the test chain adds noise beyond its gain "
                        "(oscillation, supply noise or overload): check it")
@@ -67,6 +73,7 @@ def summarise(result) -> dict:
     return {
         **counts,
         "unit": result.unit,
+        "names": {str(c.freq_hz): c.name for c in items if getattr(c, "name", None)},
         "rows": len(items),
         "frequencies_hz": freqs,
         "listenable": {
@@ -82,5 +89,5 @@ def summarise(result) -> dict:
         "broadband_noise_rise_db": _median(empty),
         "unoccupied_channels": len(empty),
         "noise_source": noise_rise_explanation(_median([c.gain_db for c in both]),
-                                               _median([c.noise_rise_db for c in both]), len(both)),
+                                               _median([c.noise_rise_db for c in both]), len(both), result.unit),
     }

@@ -318,12 +318,38 @@ def station_peaks(freqs_hz: np.ndarray, level: np.ndarray, channel_bw_hz: float)
     return keep
 
 
+def _census_station_signals(survey: Survey, test_rows, base_rows):
+    """``(freqs_hz, signal power P - N (linear, NaN where not detected), detected)`` of the census
+    stations over ``test_rows`` then ``base_rows``; None when the database has no census."""
+    try:
+        survey.require_census()
+    except NoDataError:
+        return None
+    m_t, m_b = survey.item_matrices(test_rows, base_rows)
+    power = np.concatenate([m_t.power_dbfs, m_b.power_dbfs]).astype(np.float64)
+    noise = np.concatenate([m_t.noise_dbfs, m_b.noise_dbfs]).astype(np.float64)
+    detected = np.concatenate([m_t.detected, m_b.detected])
+    sig = np.where(detected, np.power(10.0, power / 10.0) - np.power(10.0, noise / 10.0), np.nan)
+    return np.asarray(m_t.freqs_hz, np.float64), sig, detected
+
+
 def _stations_curve(survey: Survey, base, test):
+    """Gain at the stations heard with both configurations: per station the ratio of the mean
+    signal power ``P - N`` of the test sweeps to that of the base sweeps (sweeps that detected
+    it). Stations are those of the census (one per transmitter, at its carrier); a database
+    without the census falls back to the strongest raster channel within one channel bandwidth
+    (:func:`station_peaks`)."""
     b, t = _by_input(base), _by_input(test)
     if "antenna" not in b or "antenna" not in t:
         return None
     _settings_check(b["antenna"] + t["antenna"])
     nt, nb = len(t["antenna"]), len(b["antenna"])
+    census = _census_station_signals(survey, t["antenna"], b["antenna"])
+    if census is not None:
+        freqs, sig, det = census
+        rec_t = det[:nt].sum(axis=0) * 2 >= max(nt, 1)
+        rec_b = det[nt:].sum(axis=0) * 2 >= max(nb, 1)
+        return _gain_points(freqs, sig, nt, rec_t, rec_b, {"test antenna": nt, "base antenna": nb})
     m = survey.channel_matrix(t["antenna"] + b["antenna"])
     p = np.power(np.float32(10.0), np.asarray(m.power_dbfs, np.float32) / np.float32(10.0))
     n = np.power(np.float32(10.0), np.asarray(m.noise_dbfs, np.float32) / np.float32(10.0))
@@ -335,9 +361,14 @@ def _stations_curve(survey: Survey, base, test):
     strength = np.where((rec_t | rec_b) & np.isfinite(strength) & (strength > 0), strength, np.nan)
     peaks = station_peaks(m.freqs_hz, strength, min(sw.channel_bw_hz for sw in b["antenna"] + t["antenna"]))
     rec_t, rec_b = rec_t & peaks, rec_b & peaks
+    return _gain_points(m.freqs_hz.astype(np.float64), sig, nt, rec_t, rec_b,
+                        {"test antenna": nt, "base antenna": nb})
+
+
+def _gain_points(freqs_hz: np.ndarray, sig: np.ndarray, nt: int, rec_t: np.ndarray, rec_b: np.ndarray, used: dict):
+    """Gain points (dB) with standard errors at the stations heard by both (see :func:`_stations_curve`)."""
     both = rec_t & rec_b
-    stations = tuple(int(f) for f in m.freqs_hz[rec_t | rec_b])
-    used = {"test antenna": nt, "base antenna": nb}
+    stations = tuple(int(round(f)) for f in freqs_hz[rec_t | rec_b])
     if both.sum() < MIN_POINTS:
         return None, stations, used
     gains, sigmas = [], []
@@ -355,7 +386,7 @@ def _stations_curve(survey: Survey, base, test):
     ok = np.isfinite(g) & np.isfinite(s)
     if ok.sum() < MIN_POINTS:
         return None, stations, used
-    f = m.freqs_hz[both][ok].astype(np.float64)
+    f = freqs_hz[both][ok].astype(np.float64)
     return (f, g[ok], s[ok]), stations, used
 
 

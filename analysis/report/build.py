@@ -25,7 +25,7 @@ from pathlib import Path
 
 import numpy as np
 
-from analysis.channel_stats import cn_db_from, masked_cn_db, utc_to_epoch_s
+from analysis.channel_stats import utc_to_epoch_s
 from analysis.compare.core import Comparison
 from analysis.diagnose.core import Diagnosis
 from analysis.errors import AnalysisError, BadParameterError, NoDataError
@@ -80,10 +80,12 @@ DEFINITIONS = (
 class OvernightSeries:
     """What the store holds over time for the two configurations (antenna input).
 
-    ``base`` / ``test`` are the channel matrices of each configuration's sweeps in time order;
-    ``hops`` the hop rows of all those sweeps, each with its configuration label;
-    ``strongest_hz`` / ``weakest_hz`` the received stations with the highest and lowest median
-    C/N (None when no station was received).
+    ``base`` / ``test`` are the raster channel matrices of each configuration's sweeps in time
+    order (the time-by-frequency detail); ``stations_base`` / ``stations_test`` the census
+    station matrices of the same sweeps (same stations in both); ``hops`` the hop rows of all
+    those sweeps, each with its configuration label; ``strongest_hz`` / ``weakest_hz`` the
+    census stations detected in at least half of the sweeps with the highest and lowest median
+    C/N (None when no station was); a sideband is never a station, so never named here.
     """
 
     base: ChannelMatrix
@@ -91,19 +93,21 @@ class OvernightSeries:
     hops: tuple[tuple[HopRow, str], ...] = field(repr=False)
     strongest_hz: int | None
     weakest_hz: int | None
+    stations_base: object = field(default=None, repr=False)
+    stations_test: object = field(default=None, repr=False)
 
     def cn_series(self, which: str, freq_hz: int) -> tuple[np.ndarray, np.ndarray]:
-        """``(epoch_s, cn_db)`` of one channel over the sweeps of ``which`` (``base``/``test``).
+        """``(epoch_s, cn_db)`` of one station over the sweeps of ``which`` (``base``/``test``).
 
-        C/N in dB, NaN where the sweep did not receive the channel.
+        C/N in dB, NaN where the sweep did not detect the station.
         """
-        m = self.base if which == "base" else self.test
+        m = self.stations_base if which == "base" else self.stations_test
         t = utc_to_epoch_s(m.started_utc)
-        cols = np.nonzero(m.freqs_hz == int(freq_hz))[0]
+        cols = np.nonzero(np.round(m.freqs_hz).astype(np.int64) == int(freq_hz))[0]
         if cols.size == 0:
             return t, np.full(t.size, np.nan)
         j = cols[0]
-        return t, np.asarray(cn_db_from(m.power_dbfs[:, j], m.noise_dbfs[:, j], m.received[:, j]), np.float64)
+        return t, np.where(m.detected[:, j], m.cn_db[:, j], np.nan).astype(np.float64)
 
 
 @dataclass(frozen=True)
@@ -246,16 +250,16 @@ def read_overnight(survey: Survey, base_rows: list[SweepRow], test_rows: list[Sw
     label = {r.id: r.configuration for r in base_rows + test_rows}
     hops = [(h, label[h.sweep_id]) for h in survey.hops(list(label))]
     strongest = weakest = None
-    common = np.intersect1d(mat_b.freqs_hz, mat_t.freqs_hz)
-    cn = np.concatenate([masked_cn_db(mat_b)[:, np.searchsorted(mat_b.freqs_hz, common)],
-                         masked_cn_db(mat_t)[:, np.searchsorted(mat_t.freqs_hz, common)]], axis=0)
+    st_b, st_t = survey.item_matrices(base_rows, test_rows)
+    cn = np.concatenate([np.where(st_b.detected, st_b.cn_db, np.nan), np.where(st_t.detected, st_t.cn_db, np.nan)])
+    common = np.round(np.asarray(st_b.freqs_hz, np.float64)).astype(np.int64)
     ok = np.mean(np.isfinite(cn), axis=0) >= 0.5 if cn.size else np.zeros(0, bool)
     if np.any(ok):
         med = np.full(common.size, np.nan)
         med[ok] = np.nanmedian(cn[:, ok], axis=0)
         strongest = int(common[int(np.nanargmax(med))])
         weakest = int(common[int(np.nanargmin(med))])
-    return OvernightSeries(mat_b, mat_t, tuple(hops), strongest, weakest)
+    return OvernightSeries(mat_b, mat_t, tuple(hops), strongest, weakest, st_b, st_t)
 
 
 # -- target band --------------------------------------------------------------------------
@@ -388,7 +392,8 @@ def build_report(
     Raises
     ------
     NoDataError
-        ``base`` or ``test`` has no complete sweeps at all (the message lists the labels present).
+        ``base`` or ``test`` has no complete sweeps at all (the message lists the labels present),
+        or the database predates the station census (schema 1; the message says how to migrate it).
     BadParameterError
         An invalid target band or identical labels.
     StoreError
@@ -402,6 +407,7 @@ def build_report(
     survey, opened = as_survey(source)
     try:
         survey.require([base, test])
+        survey.require_census()  # every section counts stations: refuse a schema-1 database at once
         all_rows = {lab: list(survey.find_sweeps(lab)) for lab in (base, test)}
         settings = read_settings(survey, all_rows[base] + all_rows[test])
         unavailable: dict[str, str] = {}

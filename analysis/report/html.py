@@ -162,7 +162,9 @@ def _trouble(r: Report) -> str:
 def _channel_table(r: Report) -> str:
     c = r.comparison
     pct = f"{100 * c.thresholds['confidence']:g} %"
-    head = ("<tr><th class=\"num\">MHz</th><th class=\"num\">SNR base, dB</th><th class=\"num\">SNR test, dB</th>"
+    named = any(getattr(ch, "name", None) for ch in c.channels)
+    head = ("<tr><th class=\"num\">MHz</th>" + ("<th>station (RDS)</th>" if named else "")
+            + "<th class=\"num\">SNR base, dB</th><th class=\"num\">SNR test, dB</th>"
             f"<th class=\"num\">change, dB</th><th class=\"num\">{e(pct)} interval, dB</th>"
             "<th class=\"num\">gain, dB</th><th class=\"num\">noise rise, dB</th><th class=\"num\">pairs</th>"
             "<th>verdict</th></tr>")
@@ -172,7 +174,8 @@ def _channel_table(r: Report) -> str:
         v = ch.verdict
         rows.append(
             f'<tr class="v-{e(v.replace(" ", "-"))}" data-freq-hz="{int(ch.freq_hz)}">'
-            f'<td class="num">{_mhz(ch.freq_hz)}</td><td class="num">{_num(ch.base_cn_db, "{:.1f}")}</td>'
+            f'<td class="num">{_mhz(ch.freq_hz)}</td>' + (f'<td>{e(ch.name or "")}</td>' if named else "")
+            + f'<td class="num">{_num(ch.base_cn_db, "{:.1f}")}</td>'
             f'<td class="num">{_num(ch.test_cn_db, "{:.1f}")}</td><td class="num">{_num(ch.delta_cn_db, "{:+.2f}")}</td>'
             f'<td class="num">{e(interval)}</td><td class="num">{_num(ch.gain_db)}</td>'
             f'<td class="num">{_num(ch.noise_rise_db)}</td><td class="num">{ch.pairs}</td>'
@@ -193,7 +196,7 @@ def _channels(r: Report, figures: Mapping[str, str]) -> str:
     return (
         f"<p>{e(c.method)}.</p>"
         + _figure(figures, "comparison", "SNR of both configurations, the change with its interval, and gain and "
-                  "noise rise against channel frequency",
+                  f"noise rise against {c.unit} frequency",
                   f"Top: SNR (C/N) per {c.unit}, base and test. Middle: change in SNR with its interval. "
                   "Bottom: gain (ratio of P - N) and noise rise (ratio of N), dB.")
         + f"<p>Verdict marks: {e(marks)}. {e(c.thresholds['improved_if'])} for improved; "

@@ -2,23 +2,29 @@
 
 from __future__ import annotations
 
-import csv
-import sys
-
 import click
 from rich.console import Console
 from rich.table import Table
 
 from analysis.selection import Survey
 from analysis.workflows import Assessment, assess
-from bandcensus.commands._common import _clean, db_option, echo_json, json_option
+from bandcensus.commands._common import db_option, echo_json, json_option
+from bandcensus.commands._csv import write_csv
 from bandcensus.commands._noise_source import noise_options_from, noise_source_options
 
 #: Columns of the station (or channel) rows (JSON and CSV), units in the names.
 ROW_FIELDS = ["freq_hz", "verdict", "base_cn_db", "test_cn_db", "delta_cn_db", "ci_low_db", "ci_high_db",
               "gain_db", "noise_rise_db", "pairs"]
+#: Further columns of station rows: the RDS name and the RDS block error rates (None when not decoded).
+STATION_FIELDS = ["name", "base_block_error_rate", "test_block_error_rate", "delta_block_error_rate",
+                  "bler_ci_low", "bler_ci_high"]
 #: Integer counts of the JSON summary (they add up to the rows).
 COUNT_FIELDS = ["helped", "hurt", "unchanged", "undetermined", "gained", "lost"]
+
+
+def row_fields(comparison) -> list[str]:
+    """Columns of the rows: station rows add the name and the RDS block error rates."""
+    return ROW_FIELDS + (STATION_FIELDS if comparison.unit == "station" else [])
 
 
 def comparison_payload(a: Assessment) -> dict:
@@ -40,7 +46,7 @@ def comparison_payload(a: Assessment) -> dict:
         "base": r.base, "test": r.test, "input": r.input, "unit": r.unit, "method": r.method, "paired": r.paired,
         "sweeps": {"base": r.n_base_sweeps, "test": r.n_test_sweeps, "pairs": r.n_pairs},
         "thresholds": r.thresholds,
-        rows_key: [{k: getattr(c, k) for k in ROW_FIELDS} for c in r.items],
+        rows_key: [{k: getattr(c, k) for k in row_fields(r)} for c in r.items],
         "summary": summary,
         "headlines": list(a.headlines),
         "findings": [f.to_dict() for f in a.findings],
@@ -72,17 +78,24 @@ def _num(value, fmt: str = "{:+.1f}") -> str:
     return "-" if value is None else fmt.format(value)
 
 
-def _summary_lines(a: Assessment) -> list[str]:
+def _summary_lines(a: Assessment, explain: bool = False) -> list[str]:
+    """The headlines, what was compared, the conclusions on noise and the findings; with
+    ``explain`` also the method paragraph (statistics, definitions, verdict rules)."""
     r = a.comparison
     lines = list(a.headlines) + [
         "",
         f"Compared '{r.test}' (test) against '{r.base}' (base), input {r.input}: {r.n_base_sweeps} base and "
-        f"{r.n_test_sweeps} test sweeps, per {r.unit}.",
-        f"Method: {r.method}.",
-        "SNR (C/N) = (P - N) / N in dB: power P above the local noise power N; delta = test minus base; "
-        "gain = ratio of P - N; noise rise = ratio of N; delta = gain - noise rise.",
-        f"Verdicts: improved/worse need the {r.thresholds['improved_if'].split(' of ')[0]} wholly above/below "
-        f"0 dB; unchanged needs it within +-{r.thresholds['min_change_db']:g} dB; otherwise undetermined.",
+        f"{r.n_test_sweeps} test sweeps, per {r.unit}" + ("." if explain else " (--explain for the method)."),
+    ]
+    if explain:
+        lines += [
+            f"Method: {r.method}.",
+            "SNR (C/N) = (P - N) / N in dB: power P above the local noise power N; delta = test minus base; "
+            "gain = ratio of P - N; noise rise = ratio of N; delta = gain - noise rise.",
+            f"Verdicts: improved/worse need the {r.thresholds['improved_if'].split(' of ')[0]} wholly above/below "
+            f"0 dB; unchanged needs it within +-{r.thresholds['min_change_db']:g} dB; otherwise undetermined.",
+        ]
+    lines += [
         f"Noise: {r.summary['noise_source']}.",
     ]
     if a.noise_split:
@@ -100,21 +113,32 @@ def _table(a: Assessment) -> Table:
     pct = f"{100 * r.thresholds['confidence']:g}%"
     table = Table(title=f"'{r.test}' against '{r.base}', per {r.unit} (SNR, delta, interval, gain and noise rise "
                         "in dB; base and test SNR over the same pairs as the delta)", title_justify="left")
-    for name in ("MHz", "base SNR", "test SNR", "delta", f"{pct} interval", "gain", "noise rise", "pairs", "verdict"):
-        table.add_column(name, justify="left" if name == "verdict" else "right", no_wrap=True)
+    named = any(c.name for c in r.items)
+    with_bler = any(c.delta_block_error_rate is not None for c in r.items)
+    columns = ["MHz"] + (["station"] if named else []) + ["base SNR", "test SNR", "delta", f"{pct} interval",
+                                                          "gain", "noise rise", "pairs", "verdict"]
+    columns += ["RDS block errors base -> test"] if with_bler else []
+    for name in columns:
+        table.add_column(name, justify="left" if name in ("verdict", "station") else "right", no_wrap=name != "station")
     for c in sorted(r.items, key=lambda c: c.freq_hz):
         interval = "-" if c.ci_low_db is None else f"[{c.ci_low_db:+.2f}, {c.ci_high_db:+.2f}]"
-        table.add_row(
-            f"{c.freq_hz / 1e6:.2f}", _num(c.base_cn_db, "{:.1f}"), _num(c.test_cn_db, "{:.1f}"),
-            _num(c.delta_cn_db, "{:+.2f}"), interval, _num(c.gain_db), _num(c.noise_rise_db), str(c.pairs), c.verdict,
-        )
+        cells = [f"{c.freq_hz / 1e6:.2f}"] + ([c.name or ""] if named else []) + [
+            _num(c.base_cn_db, "{:.1f}"), _num(c.test_cn_db, "{:.1f}"),
+            _num(c.delta_cn_db, "{:+.2f}"), interval, _num(c.gain_db), _num(c.noise_rise_db), str(c.pairs), c.verdict]
+        if with_bler:
+            cells.append("-" if c.delta_block_error_rate is None else
+                         f"{100 * c.base_block_error_rate:.1f} % -> {100 * c.test_block_error_rate:.1f} %"
+                         + ("" if c.bler_ci_low is None else
+                            f" [{100 * c.bler_ci_low:+.1f}, {100 * c.bler_ci_high:+.1f}]"))
+        table.add_row(*cells)
     return table
 
 
 @click.command("compare")
 @db_option
 @click.option("--base", required=True, help="Configuration label of the reference (e.g. bare).")
-@click.option("--test", required=True, help="Configuration label compared against it (e.g. preamp-a).")
+@click.option("--test", required=True, help="Configuration label compared against it (e.g. preamp-a); several "
+              "labels separated by commas (a,b,c) rank them.")
 @json_option
 @click.option("--csv", "as_csv", is_flag=True, help="Print the station rows as CSV.")
 @click.option("--channels", is_flag=True, help="Rows per raster channel instead of per station (the detail view).")
@@ -127,10 +151,11 @@ def _table(a: Assessment) -> Table:
 @click.option("--confidence", type=click.FloatRange(0.5, 1.0, max_open=True), default=0.95, show_default=True,
               help="Confidence level of the intervals.")
 @noise_source_options
+@click.option("--explain", is_flag=True, help="Also print the method: statistics, definitions and verdict rules.")
 @click.option("--no-diagnosis", is_flag=True, help="Skip the chain diagnosis (clipping, intermodulation, "
               "oscillation, added noise) in the summary.")
 def command(db_path, base, test, as_json, as_csv, channels, plot_path, since, until, min_change_db, confidence,
-            enr_db, enr_table, cold_k, receiver_nf_db, no_diagnosis):
+            enr_db, enr_table, cold_k, receiver_nf_db, explain, no_diagnosis):
     """Which stations gained or lost SNR (C/N) with TEST compared to BASE, by how much, how sure.
 
     SNR (C/N) is (P - N)/N in dB. Sweeps that alternated between the two configurations are
@@ -144,6 +169,9 @@ def command(db_path, base, test, as_json, as_csv, channels, plot_path, since, un
         raise click.UsageError("choose one of --json and --csv")
     if base == test:
         raise click.UsageError("--base and --test name the same configuration; give two different labels")
+    if "," in test:
+        _ranking(db_path, base, test, as_json, as_csv, since, until, min_change_db, confidence)
+        return
     options = noise_options_from(enr_db, enr_table, cold_k, receiver_nf_db)
     with Survey(db_path) as survey:
         a = assess(survey, base, test, options=options, with_diagnosis=not no_diagnosis, since=since, until=until,
@@ -157,16 +185,59 @@ def command(db_path, base, test, as_json, as_csv, channels, plot_path, since, un
         echo_json(payload)
         return
     if as_csv:
-        writer = csv.DictWriter(sys.stdout, fieldnames=ROW_FIELDS, extrasaction="ignore", lineterminator="\n")
-        writer.writeheader()
-        for row in payload["stations" if a.comparison.unit == "station" else "channels"]:
-            writer.writerow({k: ("" if v is None else v) for k, v in _clean(row).items()})
+        write_csv(payload["stations" if a.comparison.unit == "station" else "channels"], row_fields(a.comparison))
         return
     console = Console(width=max(110, Console().width))
-    for line in _summary_lines(a):
+    for line in _summary_lines(a, explain):
         console.print(line, highlight=False, markup=False)
     for warning in a.comparison.warnings:
         console.print(f"Warning: {warning}", highlight=False, markup=False)
     console.print(_table(a))
     if plot_path:
         console.print(f"Figure written to {plot_path}", highlight=False, markup=False)
+
+
+#: Columns of the ranking (JSON and CSV).
+RANKING_FIELDS = ["rank", "configuration", "helped", "helped_low", "helped_high", "hurt", "lost",
+                  "median_delta_cn_db", "median_ci_low_db", "median_ci_high_db", "stations_heard_by_all",
+                  "listenable_mono", "listenable_low", "listenable_high", "listenable_mono_base"]
+
+
+def _ranking(db_path, base, tests_text, as_json, as_csv, since, until, min_change_db, confidence) -> None:
+    """``--test a,b,c``: rank the configurations against the base on the same stations."""
+    from analysis.compare.ranking import RANKING_NOTE, rank_configurations
+    from analysis.headline import verdict_line
+
+    tests = [t.strip() for t in tests_text.split(",") if t.strip()]
+    if base in tests or len(set(tests)) != len(tests) or len(tests) < 2:
+        raise click.UsageError("--test a,b,c needs two or more different labels, none equal to --base")
+    ranked = rank_configurations(db_path, base, tests, since=since, until=until, min_change_db=min_change_db,
+                                 confidence=confidence)
+    rows = [r.to_dict() for r in ranked]
+    if as_json:
+        echo_json({"base": base, "ranking": rows, "method": RANKING_NOTE,
+                   "headlines": {r.configuration: verdict_line(r.comparison.summary) for r in ranked}})
+        return
+    if as_csv:
+        write_csv(rows, RANKING_FIELDS)
+        return
+    console = Console(width=max(110, Console().width))
+    pct = f"{100 * confidence:g}%"
+    table = Table(title=f"Configurations against '{base}', best first", title_justify="left")
+    for name in ("rank", "configuration", "helped", "hurt / lost", f"median C/N change ({pct})",
+                 "listenable mono (base)"):
+        table.add_column(name, justify="left" if name == "configuration" else "right", no_wrap=True)
+    for r in ranked:
+        helped = f"{r.helped}" + (f" (up to {r.helped_high})" if r.helped_high > r.helped else "")
+        median = "-" if r.median_delta_cn_db is None else f"{r.median_delta_cn_db:+.2f} dB" + (
+            "" if r.median_ci_low_db is None else f" [{r.median_ci_low_db:+.2f}, {r.median_ci_high_db:+.2f}]")
+        listen = f"{r.listenable_mono} ({r.listenable_mono_base})" + (
+            "" if r.listenable_low == r.listenable_high else f", {r.listenable_low}-{r.listenable_high} by sweep")
+        table.add_row(str(r.rank), r.configuration, helped, f"{r.hurt} / {r.lost}", median, listen)
+    console.print(table)
+    heard = ranked[0].stations_heard_by_all
+    console.print(f"Median over the {heard} station{'' if heard == 1 else 's'} heard by all"
+                  + ("; fewer than 6 give no interval at 95 %." if heard < 6 else "."), highlight=False, markup=False)
+    for r in ranked:
+        console.print(f"{r.configuration}: {verdict_line(r.comparison.summary)}", highlight=False, markup=False)
+    console.print(f"Method: {RANKING_NOTE}.", highlight=False, markup=False)

@@ -20,6 +20,19 @@ def _fmt(key: str, value) -> str:
     return str(value)
 
 
+def _target_hz(text: str | None) -> tuple[float, float] | None:
+    """``START-STOP`` in MHz as Hz, or None; a malformed range is a usage error."""
+    if text is None:
+        return None
+    try:
+        lo, hi = (float(x) * 1e6 for x in text.split("-"))
+    except ValueError:
+        raise click.BadParameter(f"{text!r} is not START-STOP in MHz, e.g. 88-100", param_hint="--target") from None
+    if not hi > lo:
+        raise click.BadParameter(f"{text!r}: STOP must be above START", param_hint="--target")
+    return lo, hi
+
+
 @click.command("diagnose")
 @db_option
 @click.option("--base", required=True, help="Configuration label without the preamp (e.g. bare).")
@@ -29,14 +42,17 @@ def _fmt(key: str, value) -> str:
 @click.option("--attenuation-db", type=float, default=None, help="Loss of that attenuator, dB.")
 @click.option("--clip-threshold", type=float, default=DEFAULT_CLIP_THRESHOLD, show_default=True,
               help="Fraction of 8-bit samples at the rails per hop counted as clipping.")
+@click.option("--target", default=None,
+              help="Band the preamp should cover, START-STOP in MHz, for the passband check (default: the band plan).")
 @noise_source_options
 @json_option
-def command(db_path, base, test, attenuated, attenuation_db, clip_threshold, enr_db, enr_table, cold_k,
+def command(db_path, base, test, attenuated, attenuation_db, clip_threshold, target, enr_db, enr_table, cold_k,
             receiver_nf_db, as_json):
     """Check the --test configuration against --base for the four ways a preamp makes things worse.
 
     Clipping of the receiver's 8-bit converter, intermodulation products of strong stations,
-    an oscillating preamp and noise added after the preamp's tuned circuits (a noisy supply).
+    an oscillating preamp and noise added after the preamp's tuned circuits (a noisy supply);
+    then whether its passband covers the stations heard in the target band.
     A run through a known attenuator (--attenuated LABEL --attenuation-db X) separates real
     stations (they drop by X) from third-order products (they drop by 3X).
     """
@@ -46,7 +62,7 @@ def command(db_path, base, test, attenuated, attenuation_db, clip_threshold, enr
     result = diagnose_chain(
         db_path, base, test, attenuated=attenuated, attenuation_db=attenuation_db, clip_threshold=clip_threshold,
         enr_db=options.enr_db, enr_table=options.enr_table, cold_k=options.cold_k,
-        receiver_nf_db=options.receiver_nf_db,
+        receiver_nf_db=options.receiver_nf_db, target_hz=_target_hz(target),
     )
     if as_json:
         echo_json(result.to_dict())
