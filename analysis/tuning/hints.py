@@ -59,7 +59,10 @@ def hint_for(measures: CurveMeasures, fit: PassbandFit | None = None,
     width = measures.width_hz
     frac = measures.target_within_3db_fraction
     if np.isfinite(width) and width < NARROW_FRACTION * target_w:
-        text = (f"{width / 1e6:.1f} MHz wide at -3 dB, target {target_w / 1e6:.3g} MHz: stagger the circuits")
+        single = fit is not None and fit.n_circuits == 1
+        action = ("load the circuit to a lower Q, or add circuits and stagger them" if single
+                  else "stagger the circuits")
+        text = f"{width / 1e6:.1f} MHz wide at -3 dB, target {target_w / 1e6:.3g} MHz: {action}"
         if fit is not None and plan is not None:
             text += f" ({_plan_words(plan, fit.n_circuits)})"
         return TuningHint("narrow", text + ", see `passband` advice", plan)
