@@ -1,0 +1,93 @@
+"""What the capture commands print: the answer first, a closing line, progress only on a terminal."""
+
+from __future__ import annotations
+
+import functools
+import io
+import re
+import sqlite3
+from pathlib import Path
+
+from rich.console import Console
+
+from bandcensus.cli import main
+from bandcensus.commands import _progress, replay
+
+ROOT = Path(__file__).resolve().parents[1]
+DEMO = sorted((ROOT / "recordings_demo" / "sigmf").glob("*.sigmf-meta"))
+_ESCAPES = re.compile(r"\x1b\[[0-9;?]*[A-Za-z]")
+_CLOSING = re.compile(r"^stored (\d+) sweeps? \((.+)\) in (\S+): (\d+) stations? heard$")
+
+
+def _sweeps_per_configuration(db: Path) -> dict[str, int]:
+    with sqlite3.connect(db) as conn:
+        return dict(conn.execute("SELECT configuration, COUNT(*) FROM sweeps WHERE complete = 1 "
+                                 "GROUP BY configuration").fetchall())
+
+
+def test_replaying_the_demo_prints_a_few_lines_and_no_paths(tmp_path, capsys, monkeypatch):
+    monkeypatch.chdir(tmp_path)
+    assert len(DEMO) == 48
+    assert main(["replay", *map(str, DEMO), "--db", "survey.db"]) == 0
+    captured = capsys.readouterr()
+    out = captured.out.splitlines()
+    assert len(out) <= 5
+    assert not any(".sigmf" in line or "site-packages" in line for line in out)
+    closing = _CLOSING.match(out[-1])
+    assert closing, out[-1]
+    assert closing.group(1) == "48" and closing.group(2) == "4 configurations" and closing.group(3) == "survey.db"
+    heard = int(closing.group(4))
+    # one line per configuration, with the sweep counts the database holds
+    per_config = _sweeps_per_configuration(tmp_path / "survey.db")
+    for label, n in per_config.items():
+        line = next(line for line in out if line.startswith(f"{label}: "))
+        detected = int(re.search(r"(\d+) stations? detected", line).group(1))
+        assert line.startswith(f"{label}: {n} sweep{'s' if n != 1 else ''}, ")
+        assert detected <= heard
+    # heard: detected in at least one sweep of any configuration, so at least the best configuration's count
+    assert heard >= max(int(re.search(r"(\d+) stations? detected", line).group(1)) for line in out[:-1]) > 0
+    # the few-averages warning is one line for all 48 recordings; no progress line off a terminal
+    err = captured.err.splitlines()
+    assert err == [err[0]] and err[0].startswith("Warning: 48 recordings: 18 of 18 captures give only 5 FFT "
+                                                 "averages at fft size 2048")
+    assert "elapsed" not in captured.err and "sweep 1 of" not in captured.err
+
+
+def test_replay_quiet_prints_only_the_closing_line(tmp_path, capsys, monkeypatch):
+    monkeypatch.chdir(tmp_path)
+    assert main(["replay", *map(str, DEMO[:3]), "--db", "q.db", "--quiet"]) == 0
+    captured = capsys.readouterr()
+    assert captured.err == ""
+    assert captured.out.splitlines() == [captured.out.strip()]
+    closing = _CLOSING.match(captured.out.strip())
+    assert closing and closing.group(1) == "3" and closing.group(2) == "2 configurations"
+    # the warning stays in each sweep's notes
+    with sqlite3.connect(tmp_path / "q.db") as conn:
+        notes = [n for (n,) in conn.execute("SELECT notes FROM sweeps")]
+    assert len(notes) == 3 and all("FFT averages" in n for n in notes)
+
+
+def test_one_sweep_is_singular(tmp_path, capsys, monkeypatch):
+    monkeypatch.chdir(tmp_path)
+    assert main(["replay", str(DEMO[0]), "--db", "one.db", "--config", "bare"]) == 0
+    out = capsys.readouterr().out.splitlines()
+    assert out[-2].startswith("bare: 1 sweep, ")
+    assert _CLOSING.match(out[-1]).group(2) == "bare" and out[-1].startswith("stored 1 sweep (bare) in one.db: ")
+
+
+def test_replay_progress_on_a_fake_terminal(tmp_path, capsys, monkeypatch):
+    monkeypatch.chdir(tmp_path)
+    buffer = io.StringIO()
+    terminal = Console(file=buffer, force_terminal=True, width=120, color_system=None)
+    monkeypatch.setattr(replay, "sweep_progress",
+                        functools.partial(_progress.sweep_progress, console=terminal, auto_refresh=False))
+    assert main(["replay", *map(str, DEMO[:2]), "--db", "p.db"]) == 0
+    shown = _ESCAPES.sub("", buffer.getvalue())
+    assert "sweep 1 of 2 [bare]" in shown and "sweep 2 of 2 [preamp-peaked]" in shown
+    assert re.search(r"hop \d+ of \d+", shown) and "elapsed" in shown
+    # the same run with --quiet draws nothing, even on a terminal
+    buffer.truncate(0)
+    buffer.seek(0)
+    capsys.readouterr()
+    assert main(["replay", *map(str, DEMO[:2]), "--db", "p2.db", "--quiet"]) == 0
+    assert buffer.getvalue() == ""
