@@ -91,3 +91,55 @@ def test_replay_progress_on_a_fake_terminal(tmp_path, capsys, monkeypatch):
     capsys.readouterr()
     assert main(["replay", *map(str, DEMO[:2]), "--db", "p2.db", "--quiet"]) == 0
     assert buffer.getvalue() == ""
+
+
+SCENE = ROOT / "recordings_demo" / "quorrelby_hill.toml"
+SMALL = ["--band", "custom:88-92:100", "--dwell-ms", "5"]
+
+
+def _fake_terminal(monkeypatch, module) -> io.StringIO:
+    buffer = io.StringIO()
+    terminal = Console(file=buffer, force_terminal=True, width=120, color_system=None)
+    monkeypatch.setattr(module, "sweep_progress",
+                        functools.partial(_progress.sweep_progress, console=terminal, auto_refresh=False))
+    return buffer
+
+
+def test_simulate_prints_the_answer_and_progress_only_on_a_terminal(tmp_path, capsys, monkeypatch):
+    from bandcensus.commands import simulate
+
+    monkeypatch.chdir(tmp_path)
+    assert main(["simulate", str(SCENE), "--db", "s.db", "--alternate", "bare,preamp-peaked", "--sweeps", "3",
+                 *SMALL]) == 0
+    captured = capsys.readouterr()
+    out = captured.out.splitlines()
+    assert out[0].startswith("SIMULATED scene ") and re.search(r": run 1, 3 sweeps of \d+ hops$", out[0])
+    assert out[1].startswith("bare: 2 sweeps, ") and out[2].startswith("preamp-peaked: 1 sweep, ")
+    assert _CLOSING.match(out[3]).group(1, 2, 3) == ("3", "2 configurations", "s.db") and len(out) == 4
+    assert captured.err == ""  # not a terminal: no progress
+    buffer = _fake_terminal(monkeypatch, simulate)
+    assert main(["simulate", str(SCENE), "--db", "t.db", "--config", "bare", "--sweeps", "2", *SMALL]) == 0
+    shown = _ESCAPES.sub("", buffer.getvalue())
+    assert re.search(r"sweep 1 of 2 \[bare, antenna\] hop 1 of \d", shown)
+    assert re.search(r"sweep 2 of 2 \[bare, antenna\] hop (\d) of \1", shown)
+    assert "elapsed" in shown and " left" in shown
+    capsys.readouterr()
+    assert main(["simulate", str(SCENE), "--db", "u.db", "--config", "bare", "--quiet", *SMALL]) == 0
+    captured = capsys.readouterr()
+    assert captured.out.startswith("stored 1 sweep (bare) in u.db: ") and captured.out.count("\n") == 1
+
+
+def test_scan_progress_line_on_a_fake_terminal(tmp_path, capsys, monkeypatch):
+    from bandcensus.commands import scan
+
+    monkeypatch.chdir(tmp_path)
+    buffer = _fake_terminal(monkeypatch, scan)
+    assert main(["scan", "--db", "s.db", "--simulate-scene", str(SCENE), "--config", "bare", "--sweeps", "2",
+                 "--settle-ms", "0", *SMALL]) == 0
+    shown = _ESCAPES.sub("", buffer.getvalue())
+    assert re.search(r"sweep 1 of 2 \[bare\] hop 1 of \d", shown)
+    assert re.search(r"sweep 2 of 2 \[bare\] hop (\d) of \1", shown)
+    assert "elapsed" in shown
+    captured = capsys.readouterr()
+    assert "took" not in captured.err  # on a terminal the progress line replaces the per-sweep log
+    assert captured.out.splitlines()[-1].startswith("stored 2 sweeps (bare) in s.db: ")

@@ -11,7 +11,7 @@ import pytest
 from analysis.errors import NoDataError
 from analysis.history import station_history, summarise_series
 from bandcensus.cli import main
-from survey.records import ChannelReading, HopReading, RunInfo, SweepResult, SweepSettings
+from survey.records import ChannelReading, EmissionReading, HopReading, RunInfo, SweepResult, SweepSettings
 from survey.store import SurveyStore
 
 FREQS = (97_100_000, 97_200_000, 97_300_000)
@@ -33,8 +33,12 @@ def _result(label: str, cn_db, minute: int, gain_db=29.7) -> SweepResult:
         channels.append(ChannelReading(f, 0, power, NOISE_DBFS, NOISE_DBFS - 53.0, cn if ok else None, ok))
     t = f"2026-01-01T{minute // 60:02d}:{minute % 60:02d}:00.000000Z"
     hop = HopReading(0, 97.6e6, 2.4e6, 240_000, 0.0, -113.0, t)
+    # the station as an emission (kept below the detection margin too); none where P equals N
+    emissions = () if cn_db is None else (EmissionReading(
+        97_200_000.0, 0, "fm", 150e3, NOISE_DBFS + 10 * math.log10(1 + 10 ** (cn_db / 10)), NOISE_DBFS, cn_db,
+        None, False, 97_200_000),)
     return SweepResult(label, "antenna", t, t, SweepSettings(band="europe", gain_db=gain_db), (hop,),
-                       tuple(channels))
+                       tuple(channels), emissions=emissions)
 
 
 @pytest.fixture(scope="module")
@@ -119,7 +123,9 @@ def test_json_and_plot(db, tmp_path, capsys):
 
 def test_errors_are_one_line(db, capsys, tmp_path):
     for args, text in (
-        (["--station", "88.0"], "no channel near 88 MHz was measured (the sweeps cover 97.1-97.3 MHz"),
+        (["--station", "88.0"], "no station within 100 kHz of 88 MHz in the selected sweeps; nearest stations: "
+                                "97.20 MHz"),
+        (["--station", "97.31"], "no station within 100 kHz of 97.31 MHz"),
         (["--station", "97.2", "--config", "other"], "configuration 'other'"),
         (["--station", "97.2", "--plot", str(tmp_path / "x.jpg")], "must end in .png"),
     ):

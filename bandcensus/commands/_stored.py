@@ -62,15 +62,20 @@ def configuration_lines(run: StoredRun) -> list[str]:
             for label, (n, heard) in run.by_configuration.items()]
 
 
-def stored_line(run: StoredRun, db_path: str, incomplete: int = 0) -> str:
-    """The closing line: ``stored 48 sweeps (2 configurations) in survey.db: 12 stations heard``."""
+def stored_line(run: StoredRun, db_path: str, incomplete: int = 0, stopped_by: str | None = None) -> str:
+    """The closing line: ``stored 48 sweeps (2 configurations) in survey.db: 12 stations heard``.
+
+    A run stopped by a signal says so: ``stored 3 sweeps (bare), 1 incomplete, stopped by SIGTERM, in ...``.
+    """
     configs = len(run.by_configuration)
     what = plural(run.sweeps, "sweep")
     if configs > 1:
         what += f" ({plural(configs, 'configuration')})"
     elif configs == 1:
         what += f" ({plain_text(next(iter(run.by_configuration)))})"
-    extra = f", {incomplete} incomplete (stopped)" if incomplete else ""
+    extra = f", {incomplete} incomplete" if incomplete else ""
+    if stopped_by:
+        extra += f", stopped by {plain_text(stopped_by)},"
     return (f"stored {what}{extra} in {plain_text(display_path(db_path))}: "
             f"{plural(run.heard, 'station')} heard")
 

@@ -204,6 +204,7 @@ def _print_outcome(payload: list[dict], band_name: str, summary, db_path: str, r
     if not quiet:
         for line in configuration_lines(run):
             click.echo(line)
-    click.echo(stored_line(run, db_path, summary.sweeps_incomplete))
-    if summary.status == "stopped":
+    if summary.status == "stopped" and not quiet:
         click.echo(summary.line())
+    click.echo(stored_line(run, db_path, summary.sweeps_incomplete,
+                           (summary.stop_signal or "a stop request") if summary.status == "stopped" else None))
