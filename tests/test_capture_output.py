@@ -143,3 +143,28 @@ def test_scan_progress_line_on_a_fake_terminal(tmp_path, capsys, monkeypatch):
     captured = capsys.readouterr()
     assert "took" not in captured.err  # on a terminal the progress line replaces the per-sweep log
     assert captured.out.splitlines()[-1].startswith("stored 2 sweeps (bare) in s.db: ")
+
+
+def test_runs_json_names_each_device_once(tmp_path, capsys, monkeypatch):
+    import json
+
+    monkeypatch.chdir(tmp_path)
+    for k in range(3):
+        assert main(["replay", str(DEMO[k]), "--db", "r.db", "--quiet"]) == 0
+    assert main(["simulate", str(SCENE), "--db", "r.db", "--config", "bare", "--quiet", *SMALL]) == 0
+    capsys.readouterr()
+    assert main(["runs", "--db", "r.db", "--json"]) == 0
+    data = json.loads(capsys.readouterr().out)
+    runs, devices = data["runs"], data["devices"]
+    assert len(runs) == 4 and len(devices) == 2  # three replays of one receiver, one simulation
+    assert [r["device_ref"] for r in runs] == ["d1", "d1", "d1", "d2"]
+    assert all("device" not in r for r in runs)
+    assert "SIMULATED" in json.dumps(devices["d1"]) and devices["d1"] != devices["d2"]
+    for key in ("id", "status", "complete_sweeps", "incomplete_sweeps", "configurations", "inputs"):
+        assert key in runs[0]
+    # one replay of many recordings of one receiver names it once
+    assert main(["replay", *map(str, DEMO[:4]), "--db", "m.db", "--quiet"]) == 0
+    capsys.readouterr()
+    assert main(["runs", "--db", "m.db", "--json"]) == 0
+    (device,) = json.loads(capsys.readouterr().out)["devices"].values()
+    assert ";" not in str(device)

@@ -115,7 +115,8 @@ def command(recordings, db_path, configuration, input_kind, band, channel_bw_khz
 
     info = RunInfo(
         source_kind="recording",
-        device="; ".join(str(s.describe().get("hw") or s.describe().get("path")) for s in sources),
+        # each distinct receiver once (48 recordings of one receiver name it once)
+        device="; ".join(dict.fromkeys(str(s.describe().get("hw") or s.describe().get("path")) for s in sources)),
         tool_version=__version__,
         settings={"band": band, "channel_bw_hz": channel_bw_khz * 1e3, "usable_fraction": usable_fraction,
                   "dc_guard_hz": dc_guard_khz * 1e3, "fft_size": fft_size,
@@ -156,7 +157,7 @@ def command(recordings, db_path, configuration, input_kind, band, channel_bw_khz
     for path, outcome, plan in summaries:
         rows = [
             {"freq_hz": c.freq_hz, "power_dbfs": c.power_dbfs, "noise_dbfs": c.noise_dbfs,
-             "cn_db": c.cn_db, "received": c.received, "sweeps": 1}
+             "cn_db": c.cn_db, "received": c.received, "detected": c.received, "sweeps": 1}
             for c in sorted(outcome.result.channels, key=lambda c: c.freq_hz)
         ]
         clips = [h.clip_fraction for h in outcome.result.hops if h.clip_fraction is not None]

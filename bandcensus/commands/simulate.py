@@ -151,6 +151,7 @@ def command(scene_path, db_path, configuration, input_kind, sweeps, every, alter
         {"sweep_id": o.sweep_id, "configuration": o.result.configuration, "input": o.result.input,
          "started_utc": o.result.started_utc, "channels": len(o.result.channels),
          "received": sum(1 for c in o.result.channels if c.received),
+         "detected": sum(1 for c in o.result.channels if c.received),
          "max_clip_fraction": max((h.clip_fraction or 0.0) for h in o.result.hops) if o.result.hops else None,
          "complete": bool(o.result.complete),
          "recording": None if o.recording_path is None else str(o.recording_path)}
