@@ -168,3 +168,23 @@ def test_runs_json_names_each_device_once(tmp_path, capsys, monkeypatch):
     assert main(["runs", "--db", "m.db", "--json"]) == 0
     (device,) = json.loads(capsys.readouterr().out)["devices"].values()
     assert ";" not in str(device)
+
+
+def test_replay_notes_name_one_recording_and_count_many(tmp_path, capsys, monkeypatch):
+    import numpy as np
+    from test_recording import write_foreign
+
+    monkeypatch.chdir(tmp_path)
+    raw = (0.05 * np.random.default_rng(3).standard_normal(2 * 200_000)).astype("<f4")
+    metas = [write_foreign(tmp_path, f"n{k}", "cf32_le", [{"core:sample_start": 0, "core:frequency": 98e6}], raw)
+             for k in range(2)]
+    band = ["--band", "custom:97.4-98.6:100", "--config", "x", "--skip-ms", "3"]
+    assert main(["replay", str(metas[0]), "--db", "a.db", *band]) == 0
+    out = capsys.readouterr().out.splitlines()
+    assert "note: n0.sigmf-meta: first 3.00 ms of capture 0 skipped by hand" in out
+    assert main(["replay", *map(str, metas), "--db", "b.db", *band]) == 0
+    out = capsys.readouterr().out.splitlines()
+    assert "note: 2 recordings: start-up samples left out of 2 captures (each sweep's notes say how much)" in out
+    assert not any("n0.sigmf" in line or "n1.sigmf" in line for line in out)
+    assert main(["replay", *map(str, metas), "--db", "c.db", *band, "--quiet"]) == 0
+    assert capsys.readouterr().out.count("\n") == 1

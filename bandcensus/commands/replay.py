@@ -170,11 +170,11 @@ def command(recordings, db_path, configuration, input_kind, band, channel_bw_khz
         echo_json({"run_id": run_id, "status": summary.status, "stop_signal": summary.stop_signal,
                    "sweeps": payload})
         return
-    _print_outcome(payload, plan_band.name, summary, db_path, run_id, show_channels, quiet)
+    _print_outcome(payload, plan_band.name, summary, db_path, run_id, show_channels, quiet, notes_by_path)
 
 
 def _print_outcome(payload: list[dict], band_name: str, summary, db_path: str, run_id: int,
-                   show_channels: bool, quiet: bool) -> None:
+                   show_channels: bool, quiet: bool, notes_by_path: dict[str, list[str]]) -> None:
     """Answer first (stations per configuration), then the closing line; details on request."""
     single = len(payload) == 1
     clipped = [(item["recording"], item["max_clip_fraction"]) for item in payload if item["max_clip_fraction"]]
@@ -187,6 +187,14 @@ def _print_outcome(payload: list[dict], band_name: str, summary, db_path: str, r
         elif clipped:
             click.echo(f"Warning: {plural(len(clipped), 'recording')} clip, up to {100 * max(c for _, c in clipped):.3f} "
                        "% of samples (within one step of full scale): lower the gain", err=True)
+        noted = {path: notes for path, notes in notes_by_path.items() if notes}
+        if len(noted) == 1:
+            path, notes = next(iter(noted.items()))
+            for note in notes:
+                click.echo(f"note: {plain_text(display_path(path))}: {plain_text(note)}")
+        elif noted:
+            click.echo(f"note: {plural(len(noted), 'recording')}: start-up samples left out of "
+                       f"{plural(sum(len(n) for n in noted.values()), 'capture')} (each sweep's notes say how much)")
         for item in dead:
             click.echo(f"{plain_text(display_path(item['recording']))}: sweep {item['sweep_id']}: "
                        f"{plain_text(item['notes'])}")
