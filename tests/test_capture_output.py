@@ -19,10 +19,13 @@ _ESCAPES = re.compile(r"\x1b\[[0-9;?]*[A-Za-z]")
 _CLOSING = re.compile(r"^stored (\d+) sweeps? \((.+)\) in (\S+): (\d+) stations? heard$")
 
 
-def _sweeps_per_configuration(db: Path) -> dict[str, int]:
+def _sweeps_per_configuration(db: Path) -> dict[str, dict[str, int]]:
+    out: dict[str, dict[str, int]] = {}
     with sqlite3.connect(db) as conn:
-        return dict(conn.execute("SELECT configuration, COUNT(*) FROM sweeps WHERE complete = 1 "
-                                 "GROUP BY configuration").fetchall())
+        for label, inp, n in conn.execute("SELECT configuration, input, COUNT(*) FROM sweeps WHERE complete = 1 "
+                                          "GROUP BY configuration, input"):
+            out.setdefault(label, {})[inp] = n
+    return out
 
 
 def test_replaying_the_demo_prints_a_few_lines_and_no_paths(tmp_path, capsys, monkeypatch):
@@ -39,10 +42,15 @@ def test_replaying_the_demo_prints_a_few_lines_and_no_paths(tmp_path, capsys, mo
     heard = int(closing.group(4))
     # one line per configuration, with the sweep counts the database holds
     per_config = _sweeps_per_configuration(tmp_path / "survey.db")
-    for label, n in per_config.items():
+    assert sum(sum(v.values()) for v in per_config.values()) == 48
+    for label, inputs in per_config.items():
         line = next(line for line in out if line.startswith(f"{label}: "))
         detected = int(re.search(r"(\d+) stations? detected", line).group(1))
-        assert line.startswith(f"{label}: {n} sweep{'s' if n != 1 else ''}, ")
+        n = inputs["antenna"]
+        assert line.startswith(f"{label}: {detected} station{'s' if detected != 1 else ''} detected in "
+                               f"{n} antenna sweep{'s' if n != 1 else ''}")
+        others = sum(v for k, v in inputs.items() if k != "antenna")
+        assert (f"; also {others} sweeps of noise-cold, noise-hot, terminated" in line) == bool(others)
         assert detected <= heard
     # heard: detected in at least one sweep of any configuration, so at least the best configuration's count
     assert heard >= max(int(re.search(r"(\d+) stations? detected", line).group(1)) for line in out[:-1]) > 0
@@ -71,7 +79,7 @@ def test_one_sweep_is_singular(tmp_path, capsys, monkeypatch):
     monkeypatch.chdir(tmp_path)
     assert main(["replay", str(DEMO[0]), "--db", "one.db", "--config", "bare"]) == 0
     out = capsys.readouterr().out.splitlines()
-    assert out[-2].startswith("bare: 1 sweep, ")
+    assert re.fullmatch(r"bare: \d+ stations? detected in 1 antenna sweep", out[-2])
     assert _CLOSING.match(out[-1]).group(2) == "bare" and out[-1].startswith("stored 1 sweep (bare) in one.db: ")
 
 
@@ -114,7 +122,8 @@ def test_simulate_prints_the_answer_and_progress_only_on_a_terminal(tmp_path, ca
     captured = capsys.readouterr()
     out = captured.out.splitlines()
     assert out[0].startswith("SIMULATED scene ") and re.search(r": run 1, 3 sweeps of \d+ hops$", out[0])
-    assert out[1].startswith("bare: 2 sweeps, ") and out[2].startswith("preamp-peaked: 1 sweep, ")
+    assert re.fullmatch(r"bare: \d+ stations? detected in 2 antenna sweeps", out[1])
+    assert re.fullmatch(r"preamp-peaked: \d+ stations? detected in 1 antenna sweep", out[2])
     assert _CLOSING.match(out[3]).group(1, 2, 3) == ("3", "2 configurations", "s.db") and len(out) == 4
     assert captured.err == ""  # not a terminal: no progress
     buffer = _fake_terminal(monkeypatch, simulate)
@@ -188,3 +197,12 @@ def test_replay_notes_name_one_recording_and_count_many(tmp_path, capsys, monkey
     assert not any("n0.sigmf" in line or "n1.sigmf" in line for line in out)
     assert main(["replay", *map(str, metas), "--db", "c.db", *band, "--quiet"]) == 0
     assert capsys.readouterr().out.count("\n") == 1
+
+
+def test_sweeps_without_the_antenna_count_no_stations(tmp_path, capsys, monkeypatch):
+    monkeypatch.chdir(tmp_path)
+    assert main(["simulate", str(SCENE), "--db", "n.db", "--config", "bare", "--input", "noise-hot",
+                 "--sweeps", "2", *SMALL]) == 0
+    out = capsys.readouterr().out.splitlines()
+    assert out[-2] == "bare: 2 sweeps of noise-hot"
+    assert out[-1] == "stored 2 sweeps (bare) in n.db: no antenna sweeps, so no stations counted"

@@ -93,7 +93,7 @@ def test_progress_lines_on_stderr(capsys, tmp_path):
     assert "sweep 1 of 2 [bare] took" in err and "floor" in err and "strongest" in err
     # stdout carries only the summary: stations per configuration, the run, what was stored
     lines = out.splitlines()
-    assert len(lines) == 3 and lines[0].startswith("bare: 2 sweeps, ") and lines[1].startswith("Run 1 finished")
+    assert len(lines) == 3 and lines[0].endswith(" detected in 2 antenna sweeps") and lines[1].startswith("Run 1 finished")
     assert "hop" not in err and "\x1b" not in err  # off a terminal: log lines, no progress bar
 
 
