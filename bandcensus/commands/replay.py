@@ -39,7 +39,7 @@ def _open_with_progress(path: str, quiet: bool):
     console = Console(stderr=True)
     with Progress(TextColumn("checking {task.description}"), BarColumn(), DownloadColumn(), console=console,
                   transient=True, disable=quiet or not console.is_terminal) as bar:
-        task = bar.add_task(terminal_label(path), total=None)
+        task = bar.add_task(terminal_label(display_path(path)), total=None)
         return open_recording(path, progress=lambda done, total: bar.update(task, completed=done, total=total))
 
 
