@@ -109,7 +109,7 @@ def command(recordings, db_path, configuration, input_kind, band, channel_bw_khz
         # out for the guard are measured from a DC-notched spectrum instead of dropped.
         notch = inside_guard(plan, source, settings) if source.n_captures == 1 and settings.dc_guard_hz > 0 else ()
         jobs.append((path, source, cfg, inp, settings, plan, notch))
-    if not (quiet or as_json):
+    if not quiet:
         for text in aggregate_warnings(warnings_out, [str(s.path) for s in sources]):
             click.echo(f"Warning: {plain_text(text)}", err=True)
 
