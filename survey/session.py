@@ -124,11 +124,12 @@ class SessionSummary:
     by_configuration: dict = field(default_factory=dict)
 
     def line(self) -> str:
-        """One line such as ``Run 3 stopped by SIGTERM: 2 sweep(s) stored, 1 incomplete, elapsed 4.1 s``."""
+        """One line such as ``Run 3 stopped by SIGTERM: 2 sweeps stored, 1 incomplete, elapsed 4.1 s``."""
         how = f"stopped by {self.stop_signal}" if self.status == "stopped" and self.stop_signal else self.status
         per = ", ".join(f"{k} {v}" for k, v in self.by_configuration.items())
         per = f" ({per})" if per else ""
-        return (f"Run {self.run_id} {how}: {self.sweeps_stored} sweep(s) stored{per}, "
+        stored = f"{self.sweeps_stored} sweep{'' if self.sweeps_stored == 1 else 's'}"
+        return (f"Run {self.run_id} {how}: {stored} stored{per}, "
                 f"{self.sweeps_incomplete} incomplete, elapsed {self.elapsed_s:.1f} s")
 
 

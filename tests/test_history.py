@@ -11,7 +11,7 @@ import pytest
 from analysis.errors import NoDataError
 from analysis.history import station_history, summarise_series
 from bandcensus.cli import main
-from survey.records import ChannelReading, HopReading, RunInfo, SweepResult, SweepSettings
+from survey.records import ChannelReading, EmissionReading, HopReading, RunInfo, SweepResult, SweepSettings
 from survey.store import SurveyStore
 
 FREQS = (97_100_000, 97_200_000, 97_300_000)
@@ -33,8 +33,12 @@ def _result(label: str, cn_db, minute: int, gain_db=29.7) -> SweepResult:
         channels.append(ChannelReading(f, 0, power, NOISE_DBFS, NOISE_DBFS - 53.0, cn if ok else None, ok))
     t = f"2026-01-01T{minute // 60:02d}:{minute % 60:02d}:00.000000Z"
     hop = HopReading(0, 97.6e6, 2.4e6, 240_000, 0.0, -113.0, t)
+    # the station as an emission (kept below the detection margin too); none where P equals N
+    emissions = () if cn_db is None else (EmissionReading(
+        97_200_000.0, 0, "fm", 150e3, NOISE_DBFS + 10 * math.log10(1 + 10 ** (cn_db / 10)), NOISE_DBFS, cn_db,
+        None, False, 97_200_000),)
     return SweepResult(label, "antenna", t, t, SweepSettings(band="europe", gain_db=gain_db), (hop,),
-                       tuple(channels))
+                       tuple(channels), emissions=emissions)
 
 
 @pytest.fixture(scope="module")
@@ -119,7 +123,9 @@ def test_json_and_plot(db, tmp_path, capsys):
 
 def test_errors_are_one_line(db, capsys, tmp_path):
     for args, text in (
-        (["--station", "88.0"], "no channel near 88 MHz was measured (the sweeps cover 97.1-97.3 MHz"),
+        (["--station", "88.0"], "no station within 100 kHz of 88 MHz in the selected sweeps; nearest stations: "
+                                "97.20 MHz"),
+        (["--station", "97.31"], "no station within 100 kHz of 97.31 MHz"),
         (["--station", "97.2", "--config", "other"], "configuration 'other'"),
         (["--station", "97.2", "--plot", str(tmp_path / "x.jpg")], "must end in .png"),
     ):
@@ -152,3 +158,30 @@ def test_calibrated_levels_in_csv_and_refused_at_another_gain(db, tmp_path, caps
     err = capsys.readouterr().err.strip().splitlines()
     assert code == 1 and len(err) == 1
     assert "calibration was made at receiver gain 40.2 dB but these sweeps were taken at 29.7 dB" in err[0]
+
+
+def test_the_station_is_the_census_station_off_the_raster(tmp_path):
+    """A station between raster channels is one series at its own carrier, found from either side."""
+    path = tmp_path / "off.db"
+    carrier = 97_260_000.0
+    cns = [18.0, 9.0, None]
+    with SurveyStore(path) as store:
+        run = store.begin_run(RunInfo("simulated", "test", "test", {}))
+        for k, cn_db in enumerate(cns):
+            t = f"2026-01-02T0{k}:00:00.000000Z"
+            hop = HopReading(0, 97.6e6, 2.4e6, 240_000, 0.0, -113.0, t)
+            channels = tuple(ChannelReading(f, 0, NOISE_DBFS, NOISE_DBFS, NOISE_DBFS - 53.0, None, False)
+                             for f in FREQS)
+            emissions = () if cn_db is None else (EmissionReading(
+                carrier, 0, "fm", 150e3, NOISE_DBFS + 10 * math.log10(1 + 10 ** (cn_db / 10)), NOISE_DBFS, cn_db,
+                None, False, 97_300_000),)
+            store.write_sweep(run, SweepResult("bare", "antenna", t, t, SweepSettings(band="europe"), (hop,),
+                                               channels, emissions=emissions))
+        store.end_run(run)
+    for asked in (97.2e6, 97.3e6):
+        (series,) = station_history(path, asked).series
+        assert series.freq_hz == pytest.approx(carrier)
+        assert np.allclose(series.cn_db[:2], cns[:2], atol=1e-3) and series.detected.tolist() == [True, True, False]
+        assert np.isnan(series.cn_db[2])  # no emission, and the raster channel has P = N: not measurable
+    with pytest.raises(NoDataError, match=r"no station within 100 kHz of 97.4 MHz .*nearest stations: 97.26 MHz"):
+        station_history(path, 97.4e6)

@@ -85,6 +85,9 @@ def test_terminal_table_and_csv(tmp_path, capsys):
     db = tmp_path / "s.db"
     assert main(["replay", str(meta), "--db", str(db), "--config", "bare"]) == 0
     out = capsys.readouterr().out
+    assert "89.30" not in out  # the per-channel table only on request
+    assert main(["replay", str(meta), "--db", str(tmp_path / "t.db"), "--config", "bare", "--channels"]) == 0
+    out = capsys.readouterr().out
     assert "89.30" in out and "not received" in out and "not covered" in out
     assert main(["channels", "--db", str(db), "--csv"]) == 0
     lines = capsys.readouterr().out.strip().splitlines()

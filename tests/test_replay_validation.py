@@ -72,10 +72,10 @@ def test_few_averages_warn_with_the_welch_scatter(tmp_path, capsys):
     meta = write_foreign(tmp_path, "few", "cf32_le", [{"core:sample_start": 0, "core:frequency": 98e6}],
                          _noise_cf32(2048 * 3))
     db = tmp_path / "f.db"
-    code = main(["replay", str(meta), "--db", str(db), "--config", "x", "--fft-size", "2048", "--quiet",
+    code = main(["replay", str(meta), "--db", str(db), "--config", "x", "--fft-size", "2048",
                  "--band", "custom:97.8-98.2:100"])
     err = capsys.readouterr().err
-    assert code == 0
+    assert code == 0 and len(err.splitlines()) == 1
     from survey.dsp import DEFAULT_OVERLAP, welch_effective_averages
 
     k = 1 + (2048 * 3 - 2048) // (2048 - int(round(DEFAULT_OVERLAP * 2048)))  # segments of averaged_psd
@@ -175,6 +175,11 @@ def test_clipping_of_float_captures_is_reported(tmp_path, capsys):
     raw = _noise_cf32(100_000)
     raw[::50][:3600] = 1.0  # 1.8 % of the values at the +1.0 rail, spread over the capture
     meta = write_foreign(tmp_path, "clip", "cf32_le", [{"core:sample_start": 0, "core:frequency": 98e6}], raw)
-    assert main(["replay", str(meta), "--db", str(tmp_path / "c.db"), "--config", "x", "--quiet",
+    assert main(["replay", str(meta), "--db", str(tmp_path / "c.db"), "--config", "x",
                  "--band", "custom:97.4-97.8:100"]) == 0
-    assert "clipping up to 1.800 % of samples" in capsys.readouterr().out
+    assert "clipping up to 1.800 % of samples" in capsys.readouterr().err
+    # --quiet: only the closing line; the warning stays out of the way
+    assert main(["replay", str(meta), "--db", str(tmp_path / "q.db"), "--config", "x", "--quiet",
+                 "--band", "custom:97.4-97.8:100"]) == 0
+    quiet = capsys.readouterr()
+    assert quiet.err == "" and quiet.out.count("\n") == 1 and quiet.out.startswith("stored 1 sweep (x) in ")

@@ -65,7 +65,8 @@ def test_keep_iq_writes_one_recording_per_sweep(scene_file, tmp_path, capsys):
     assert len(metas) == 2
     meta = json.loads(metas[0].read_text())
     assert "SIMULATED" in meta["global"]["core:hw"] and meta["global"]["bandcensus:seed"] == 0
-    assert "2 sweep(s)" in capsys.readouterr().out
+    out = capsys.readouterr().out.splitlines()
+    assert out[1] == f"kept the IQ of 2 sweeps in {iq}" and out[-1].startswith("stored 2 sweeps (bare) in ")
 
 
 def test_unknown_configuration_fails_with_choices(scene_file, tmp_path, capsys):

@@ -21,7 +21,7 @@ import numpy as np
 
 from analysis.errors import MismatchError, NoDataError
 from analysis.thresholds import LISTENABLE_MONO_CN_DB, LISTENABLE_SOURCE, LISTENABLE_STEREO_CN_DB
-from survey.store import SweepRow, list_sweeps, open_for_reading, read_channel_matrix
+from survey.store import SweepRow, list_sweeps, open_for_reading
 
 
 @dataclass(frozen=True)
@@ -72,34 +72,44 @@ class StationHistory:
     series: tuple[StationSeries, ...]
 
 
-def _station_series(conn: sqlite3.Connection, sweeps: Sequence[SweepRow], station_hz: float) -> _SeriesData:
-    """The station's readings in ``sweeps``: the raster channel nearest ``station_hz``.
+#: A station is taken as the one asked for when its carrier lies within this of the frequency given:
+#: half of a 200 kHz channel spacing, so a frequency typed to 0.1 MHz finds the station on or
+#: beside it and not its neighbour one channel away (common practice, no source).
+STATION_MATCH_HZ = 100e3
 
-    The one place that decides what "the station" is in a sweep. It reads the per-channel
-    readings; a station census (one column per transmitter) can take its place without
-    changing the callers. Raises :class:`NoDataError` when no measured channel lies within half
-    a raster step of ``station_hz``.
+
+def _station_series(conn: sqlite3.Connection, sweeps: Sequence[SweepRow], station_hz: float) -> _SeriesData:
+    """The station's readings in ``sweeps``: the census station nearest ``station_hz``.
+
+    The one place that decides what "the station" is in a sweep. Stations are those of the
+    census (:func:`analysis.census.census_matrix`: FM emissions grouped across the sweeps, one
+    column per transmitter), so a station off the raster or drifting between sweeps stays one
+    series; in a sweep where it was not found as an emission, its raster channel's P and N give
+    the C/N (NaN where P <= N) and it counts as not detected. Raises :class:`NoDataError` when
+    no station lies within :data:`STATION_MATCH_HZ` of ``station_hz``, naming the nearest ones.
     """
-    matrix = read_channel_matrix(conn, [s.id for s in sweeps])
-    freqs = matrix.freqs_hz.astype(np.float64)
+    from analysis.census import census_matrix
+
+    matrix = census_matrix(conn, sweeps)
+    freqs = np.asarray(matrix.freqs_hz, dtype=np.float64)
     if freqs.size == 0:
-        raise NoDataError("the selected sweeps hold no channel readings; check the database")
-    col = int(np.argmin(np.abs(freqs - station_hz)))
-    step = float(np.min(np.diff(freqs))) if freqs.size > 1 else float(sweeps[0].channel_bw_hz)
-    if abs(freqs[col] - station_hz) > step / 2.0:
+        raise NoDataError("no FM station was found in the selected sweeps; check the database, the "
+                          "configuration and the time range")
+    distance = np.abs(freqs - station_hz)
+    col = int(np.argmin(distance))
+    if distance[col] > STATION_MATCH_HZ:
+        nearest = sorted(np.argsort(distance)[:3].tolist(), key=lambda k: freqs[k])
+        listed = ", ".join(f"{freqs[k] / 1e6:.2f}" for k in nearest)
         raise NoDataError(
-            f"no channel near {station_hz / 1e6:g} MHz was measured (the sweeps cover "
-            f"{freqs[0] / 1e6:g}-{freqs[-1] / 1e6:g} MHz on a {step / 1e3:g} kHz raster); give a station "
-            "frequency inside the band swept"
+            f"no station within {STATION_MATCH_HZ / 1e3:g} kHz of {station_hz / 1e6:g} MHz in the selected "
+            f"sweeps; nearest stations: {listed} MHz"
         )
-    with np.errstate(invalid="ignore"):
-        cn = matrix.cn_db[:, col]
     return _SeriesData(
         freq_hz=float(freqs[col]),
-        power_dbfs=matrix.power_dbfs[:, col].astype(np.float64),
-        noise_dbfs=matrix.noise_dbfs[:, col].astype(np.float64),
-        cn_db=np.asarray(cn, dtype=np.float64),
-        detected=matrix.received[:, col].copy(),
+        power_dbfs=np.asarray(matrix.power_dbfs[:, col], dtype=np.float64),
+        noise_dbfs=np.asarray(matrix.noise_dbfs[:, col], dtype=np.float64),
+        cn_db=np.asarray(matrix.cn_db[:, col], dtype=np.float64),
+        detected=np.asarray(matrix.detected[:, col], dtype=bool),
     )
 
 
@@ -116,7 +126,7 @@ def station_history(
     Parameters
     ----------
     station_hz : float
-        Station frequency, Hz (the nearest measured channel is used).
+        Station frequency, Hz (the census station nearest it, within :data:`STATION_MATCH_HZ`).
     configurations : sequence of str, optional
         Labels to include (default: every configuration with sweeps of ``input``).
 

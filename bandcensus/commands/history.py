@@ -55,7 +55,7 @@ def _reception(row: dict) -> str:
 @click.command("history")
 @db_option
 @click.option("--station", "station_mhz", required=True, type=click.FloatRange(min=0.0, min_open=True),
-              help="Station frequency in MHz, e.g. 97.2 (the nearest measured channel is used).")
+              help="Station frequency in MHz, e.g. 97.2 (the station heard nearest it, within 100 kHz).")
 @click.option("--config", "configurations", multiple=True,
               help="Configuration label to include (repeatable, or A,B); default: every configuration.")
 @click.option("--input", "input_kind", type=click.Choice(INPUT_KINDS), default="antenna", show_default=True,
@@ -74,7 +74,7 @@ def command(db_path, station_mhz, configurations, input_kind, since, until, deta
 
     C/N is the carrier-to-noise ratio in the channel bandwidth, (P - N)/N in dB; some call it
     SNR. Detected: C/N at or above the sweep's detection margin; listenable mono / stereo:
-    C/N of at least 12 / 32 dB (common practice, no source). With --calibration the station's
+    C/N of at least 12 / 32 dB (a rule of thumb; --explain says so). With --calibration the station's
     level is also given in dBm and dBuV at the receiver input (CSV and JSON).
     """
     if as_json and as_csv:

@@ -8,7 +8,10 @@ import click
 
 from bandcensus import __version__
 from bandcensus.commands._common import FiniteFloat, db_option, echo_json, json_option
+from bandcensus.commands._progress import sweep_progress
+from bandcensus.commands._stored import aggregate_warnings, configuration_lines, stored_line, stored_run
 from bandcensus.commands._tables import channel_rows_table, print_table
+from bandcensus.commands._text import display_path, plural
 from survey.bandplan import parse_band
 from survey.records import INPUT_KINDS, RunInfo, SweepSettings
 from survey.errors import RecordingError, SurveyError
@@ -36,7 +39,7 @@ def _open_with_progress(path: str, quiet: bool):
     console = Console(stderr=True)
     with Progress(TextColumn("checking {task.description}"), BarColumn(), DownloadColumn(), console=console,
                   transient=True, disable=quiet or not console.is_terminal) as bar:
-        task = bar.add_task(terminal_label(path), total=None)
+        task = bar.add_task(terminal_label(display_path(path)), total=None)
         return open_recording(path, progress=lambda done, total: bar.update(task, completed=done, total=total))
 
 
@@ -59,10 +62,12 @@ def _open_with_progress(path: str, quiet: bool):
 @click.option("--skip-ms", type=FiniteFloat(0.0, 60_000.0),
               help="Leave out this much of the start of every capture, ms (default: detect a start-up "
                    "transient and leave it out; 0: keep everything).")
-@click.option("--quiet", is_flag=True, help="Do not print the per-channel table.")
+@click.option("--channels", "show_channels", is_flag=True,
+              help="Also print each recording's per-channel table (every raster channel).")
+@click.option("--quiet", is_flag=True, help="Print only errors and the closing line.")
 @json_option
 def command(recordings, db_path, configuration, input_kind, band, channel_bw_khz, usable_fraction,
-            dc_guard_khz, fft_size, skip_ms, quiet, as_json):
+            dc_guard_khz, fft_size, skip_ms, show_channels, quiet, as_json):
     """Replay SigMF RECORDINGS (one sweep each) into the database at --db.
 
     Any SigMF recording of the band replays: ours (one capture per hop) or a foreign one
@@ -104,12 +109,14 @@ def command(recordings, db_path, configuration, input_kind, band, channel_bw_khz
         # out for the guard are measured from a DC-notched spectrum instead of dropped.
         notch = inside_guard(plan, source, settings) if source.n_captures == 1 and settings.dc_guard_hz > 0 else ()
         jobs.append((path, source, cfg, inp, settings, plan, notch))
-    for text in warnings_out:
-        click.echo(f"Warning: {plain_text(text)}", err=True)
+    if not quiet:
+        for text in aggregate_warnings(warnings_out, [str(s.path) for s in sources]):
+            click.echo(f"Warning: {plain_text(text)}", err=True)
 
     info = RunInfo(
         source_kind="recording",
-        device="; ".join(str(s.describe().get("hw") or s.describe().get("path")) for s in sources),
+        # each distinct receiver once (48 recordings of one receiver name it once)
+        device="; ".join(dict.fromkeys(str(s.describe().get("hw") or s.describe().get("path")) for s in sources)),
         tool_version=__version__,
         settings={"band": band, "channel_bw_hz": channel_bw_khz * 1e3, "usable_fraction": usable_fraction,
                   "dc_guard_hz": dc_guard_khz * 1e3, "fft_size": fft_size,
@@ -119,16 +126,18 @@ def command(recordings, db_path, configuration, input_kind, band, channel_bw_khz
     store = SurveyStore(db_path)
     summaries = []
     try:
-        with CaptureSession(store, info) as session:
+        with CaptureSession(store, info) as session, sweep_progress(len(jobs), quiet or as_json) as progress:
             run_id = session.run_id
             for path, source, cfg, inp, settings, plan, notch in jobs:
                 if session.stopped:
                     break
+                progress.start_sweep(terminal_label(cfg))
                 try:
                     notes = "; ".join(notes_by_path.get(str(source.path), []) + [
                         w.split(": ", 1)[1] for w in warnings_out if w.startswith(f"{source.path}:")])
                     outcome = session.record(source, plan, settings, cfg, inp, recording=str(path), notes=notes,
-                                             dc_notch_hz=settings.dc_guard_hz, notch_channels_hz=notch)
+                                             dc_notch_hz=settings.dc_guard_hz, notch_channels_hz=notch,
+                                             on_hop=progress.on_hop)
                 except (SurveyError, OSError) as exc:
                     done = f"; the sweeps of the {len(summaries)} earlier recording(s) are stored" if summaries else ""
                     text = str(exc) if isinstance(exc, SurveyError) else (exc.strerror or str(exc))
@@ -136,6 +145,7 @@ def command(recordings, db_path, configuration, input_kind, band, channel_bw_khz
                         text = f"{path}: {text}"
                     raise (type(exc) if isinstance(exc, SurveyError) else RecordingError)(f"{text}{done}") from exc
                 summaries.append((path, outcome, plan))
+                progress.on_sweep()
                 source.close()
     finally:
         store.close()
@@ -147,7 +157,7 @@ def command(recordings, db_path, configuration, input_kind, band, channel_bw_khz
     for path, outcome, plan in summaries:
         rows = [
             {"freq_hz": c.freq_hz, "power_dbfs": c.power_dbfs, "noise_dbfs": c.noise_dbfs,
-             "cn_db": c.cn_db, "received": c.received, "sweeps": 1}
+             "cn_db": c.cn_db, "received": c.received, "detected": c.received, "sweeps": 1}
             for c in sorted(outcome.result.channels, key=lambda c: c.freq_hz)
         ]
         clips = [h.clip_fraction for h in outcome.result.hops if h.clip_fraction is not None]
@@ -160,22 +170,50 @@ def command(recordings, db_path, configuration, input_kind, band, channel_bw_khz
         echo_json({"run_id": run_id, "status": summary.status, "stop_signal": summary.stop_signal,
                    "sweeps": payload})
         return
-    for item in payload:
-        received = sum(1 for r in item["channels"] if r["received"])
-        if item["no_signal"]:
-            click.echo(f"{plain_text(item['recording'])}: sweep {item['sweep_id']}: {plain_text(item['notes'])}")
-            continue
-        click.echo(
-            f"{plain_text(item['recording'])}: sweep {item['sweep_id']} ({plain_text(item['configuration'])}, "
-            f"{item['input']}): "
-            f"{len(item['channels'])} channels measured, {received} received, "
-            f"{len(item['uncovered_hz'])} of band '{plan_band.name}' not covered by the recording"
-            + (f"; clipping up to {100 * item['max_clip_fraction']:.3f} % of samples (within one step of full "
-               "scale): lower the gain" if item["max_clip_fraction"] else "")
-        )
-        for note in filter(None, str(item["notes"]).split("; ")):
-            click.echo(f"  note: {plain_text(note)}")
-        if not quiet:
-            print_table(channel_rows_table(item["channels"], f"Recording {terminal_label(item['recording'])}"))
-    if summary.status == "stopped":
+    _print_outcome(payload, plan_band.name, summary, db_path, run_id, show_channels, quiet, notes_by_path)
+
+
+def _print_outcome(payload: list[dict], band_name: str, summary, db_path: str, run_id: int,
+                   show_channels: bool, quiet: bool, notes_by_path: dict[str, list[str]]) -> None:
+    """Answer first (stations per configuration), then the closing line; details on request."""
+    single = len(payload) == 1
+    clipped = [(item["recording"], item["max_clip_fraction"]) for item in payload if item["max_clip_fraction"]]
+    dead = [item for item in payload if item["no_signal"]]
+    if not quiet:
+        if len(clipped) == 1:
+            click.echo(f"Warning: {plain_text(display_path(clipped[0][0]))}: clipping up to "
+                       f"{100 * clipped[0][1]:.3f} % of samples (within one step of full scale): lower the gain",
+                       err=True)
+        elif clipped:
+            click.echo(f"Warning: {plural(len(clipped), 'recording')} clip, up to {100 * max(c for _, c in clipped):.3f} "
+                       "% of samples (within one step of full scale): lower the gain", err=True)
+        noted = {path: notes for path, notes in notes_by_path.items() if notes}
+        if len(noted) == 1:
+            path, notes = next(iter(noted.items()))
+            for note in notes:
+                click.echo(f"note: {plain_text(display_path(path))}: {plain_text(note)}")
+        elif noted:
+            click.echo(f"note: {plural(len(noted), 'recording')}: start-up samples left out of "
+                       f"{plural(sum(len(n) for n in noted.values()), 'capture')} (each sweep's notes say how much)")
+        for item in dead:
+            click.echo(f"{plain_text(display_path(item['recording']))}: sweep {item['sweep_id']}: "
+                       f"{plain_text(item['notes'])}")
+        for item in payload:
+            if item["no_signal"] or not (single or show_channels):
+                continue
+            detected = sum(1 for r in item["channels"] if r["received"])
+            click.echo(f"{plain_text(display_path(item['recording']))}: sweep {item['sweep_id']} "
+                       f"({plain_text(item['configuration'])}, {item['input']}): "
+                       f"{plural(len(item['channels']), 'channel')} measured, {detected} detected, "
+                       f"{len(item['uncovered_hz'])} of band '{band_name}' not covered by the recording")
+            if show_channels:
+                print_table(channel_rows_table(item["channels"],
+                                               f"Recording {terminal_label(display_path(item['recording']))}"))
+    run = stored_run(db_path, run_id)
+    if not quiet:
+        for line in configuration_lines(run):
+            click.echo(line)
+    if summary.status == "stopped" and not quiet:
         click.echo(summary.line())
+    click.echo(stored_line(run, db_path, summary.sweeps_incomplete,
+                           (summary.stop_signal or "a stop request") if summary.status == "stopped" else None))

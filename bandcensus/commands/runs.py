@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import json
+
 import click
 from rich.table import Table
 
@@ -12,11 +14,35 @@ from survey.store import list_runs, open_for_reading
 from survey.text import terminal_label
 
 
+def runs_payload(runs: list[dict]) -> dict:
+    """``{"devices": {"d1": ...}, "runs": [...]}``: each distinct device description once.
+
+    Every run names its device by key (``device_ref``) instead of repeating the description,
+    which for a long replay or a week of scans is the same text run after run.
+    """
+    devices: dict[str, object] = {}
+    keys: dict[str, str] = {}
+    out = []
+    for r in runs:
+        text = json.dumps(r.get("device"), sort_keys=True)
+        if text not in keys:
+            keys[text] = f"d{len(keys) + 1}"
+            devices[keys[text]] = r.get("device")
+        row = {k: v for k, v in r.items() if k != "device"}
+        row["device_ref"] = keys[text]
+        out.append(row)
+    return {"devices": devices, "runs": out}
+
+
 @click.command("runs")
 @db_option
 @json_option
 def command(db_path, as_json):
-    """List runs with their source, status, sweep counts, configurations and inputs."""
+    """List runs with their source, status, sweep counts, configurations and inputs.
+
+    With --json, each distinct device is given once under "devices" and runs refer to it by
+    "device_ref".
+    """
     conn = open_for_reading(db_path)
     try:
         runs = list_runs(conn)
@@ -26,7 +52,7 @@ def command(db_path, as_json):
         r["stored_status"] = r["status"]
         r["status"] = shown_status(r)
     if as_json:
-        echo_json({"runs": runs})
+        echo_json(runs_payload(runs))
         return
     if not runs:
         click.echo(f"{db_path}: no runs yet")

@@ -17,6 +17,9 @@ import click
 
 from bandcensus import __version__
 from bandcensus.commands._common import FiniteFloat, db_option
+from bandcensus.commands._progress import sweep_progress
+from bandcensus.commands._stored import configuration_lines, stored_line, stored_run
+from bandcensus.commands._text import plural
 from survey.bandplan import parse_band
 from survey.errors import ScheduleError
 from survey.records import INPUT_KINDS, RunInfo, SweepSettings
@@ -70,48 +73,34 @@ def _factory(device, sample_rate_hz, gain_db, ppm, settle_s, simulate_scene, sou
 
 
 class _Reporter:
-    """Renders schedule progress on standard error with rich (one line per sweep)."""
+    """Schedule progress: the progress line on a terminal, else one log line per sweep on stderr.
 
-    def __init__(self) -> None:
+    An unattended scan (a service, output to a file) keeps a short log of each sweep and of
+    each receiver fault; on a terminal the progress line shows sweep, hop, elapsed and time
+    left instead, and receiver faults are printed above it.
+    """
+
+    def __init__(self, progress) -> None:
         from rich.console import Console
 
+        self.progress = progress
         self.console = Console(stderr=True, highlight=False, markup=False, soft_wrap=True)
-        self.live = self.console.is_terminal
-        self._status = None
 
     def __call__(self, p: ScheduleProgress) -> None:
+        if self.progress.enabled:
+            self.progress.on_schedule(p)
+            return
         total = f" of {p.sweeps_total}" if p.sweeps_total else ""
         left = f", {p.time_left_s / 60:.1f} min left" if p.time_left_s is not None else ""
         if p.event == "sweep":
-            strongest = ", ".join(f"{f / 1e6:.1f} MHz {pw:.1f} dBFS" for f, pw, _ in p.strongest) or "none received"
+            strongest = ", ".join(f"{f / 1e6:.1f} MHz {pw:.1f} dBFS" for f, pw, _ in p.strongest) or "none detected"
             floor = "n/a" if p.noise_floor_dbfs_hz is None else f"{p.noise_floor_dbfs_hz:.1f} dBFS/Hz"
             nxt = f", next in {p.next_sweep_in_s:.0f} s" if p.next_sweep_in_s else ""
-            self._clear()
             self.console.print(f"sweep {p.sweep_number}{total} [{plain_text(p.configuration)}] took {p.last_sweep_s:.1f} s; "
                                f"floor {floor}; strongest {strongest}; elapsed {p.elapsed_s:.0f} s{left}{nxt}")
         elif p.event == "gap":
-            self._clear()
             self.console.print(f"receiver fault: sweep [{plain_text(p.configuration)}] dropped, receiver reopened "
                                f"({p.gaps} so far)")
-        elif self.live and p.event == "hop":
-            self._show(f"sweep {p.sweep_number}{total} [{plain_text(p.configuration)}] hop {p.hop_index + 1}/{p.n_hops}, "
-                       f"elapsed {p.elapsed_s:.0f} s{left}")
-        elif self.live and p.event == "wait":
-            self._show(f"next sweep in {p.next_sweep_in_s:.0f} s{left}")
-
-    def _show(self, text: str) -> None:
-        from rich.text import Text
-
-        if self._status is None:
-            self._status = self.console.status(Text(text))
-            self._status.start()
-        else:
-            self._status.update(Text(text))
-
-    def _clear(self) -> None:
-        if self._status is not None:
-            self._status.stop()
-            self._status = None
 
 
 @click.command("scan")
@@ -149,14 +138,15 @@ class _Reporter:
 @click.option("--simulate-scene", type=click.Path(dir_okay=False), hidden=True,
               help="Testing: use a simulated scene instead of the receiver.")
 @click.option("--source-factory", hidden=True, help="Testing: MODULE:CALLABLE building the source.")
-@click.option("--quiet", is_flag=True, help="No progress lines.")
+@click.option("--quiet", is_flag=True, help="Print only errors and the closing line (no progress, no log lines).")
 def command(db_path, configuration, input_kind, band, gain_db, ppm, sample_rate, dwell_ms, settle_ms, keep_iq,
             device, sweeps, for_, until, every, alternate, switch, bias_tee, stall_timeout_s, max_reopen,
             simulate_scene, source_factory, quiet):
     """Survey the band with the USB receiver into the database at --db.
 
     Each sweep tunes hop by hop across the band and stores every channel's power, local noise
-    floor and carrier-to-noise (SNR) in one transaction. Stop with Ctrl-C or SIGTERM: the sweep
+    floor and carrier-to-noise ratio (C/N; some call it SNR, but it is not the audio signal-to-noise
+    ratio) in one transaction. On a terminal a progress line shows sweep, hop, elapsed and time left. Stop with Ctrl-C or SIGTERM: the sweep
     in progress is kept marked incomplete and a summary is printed.
 
     Example: bandcensus scan --db roof.db --alternate bare,preamp --switch preamp="relay on"
@@ -219,20 +209,27 @@ def command(db_path, configuration, input_kind, band, gain_db, ppm, sample_rate,
                                          "dwell_s": dwell_ms / 1e3, "settle_s": settle_ms / 1e3,
                                          "sweeps": sweeps, "duration_s": duration_s, "every_s": every_s,
                                          "switch": switches, "bias_tee": list(bias_tee)})
-                summary = run_schedule(
-                    store, source, plan, settings, configurations=labels, input=input_kind, run_info=info,
-                    sweeps=sweeps, duration_s=duration_s, every_s=every_s, switch_commands=switches,
-                    bias_tee_labels=list(bias_tee), stop=stop, progress=None if quiet else _Reporter(),
-                    keep_iq_dir=keep_iq,
-                )
+                with sweep_progress(sweeps, quiet) as progress:
+                    summary = run_schedule(
+                        store, source, plan, settings, configurations=labels, input=input_kind, run_info=info,
+                        sweeps=sweeps, duration_s=duration_s, every_s=every_s, switch_commands=switches,
+                        bias_tee_labels=list(bias_tee), stop=stop, progress=None if quiet else _Reporter(progress),
+                        keep_iq_dir=keep_iq,
+                    )
             finally:
                 store.close()
         finally:
             source.close()
-    per_label = ", ".join(f"{k} {v}" for k, v in summary.by_configuration.items())
-    how = f"stopped by {summary.stop_signal}" if summary.stop_signal else summary.status
-    click.echo(
-        f"Run {summary.run_id} {how}: {summary.sweeps_stored} sweep(s) stored ({per_label or 'none'}), "
-        f"{summary.sweeps_incomplete} incomplete, {summary.gaps} gap(s), {summary.clock_jumps} clock jump(s), "
-        f"elapsed {time.monotonic() - started:.1f} s"
-    )
+    run = stored_run(db_path, summary.run_id)
+    if not quiet:
+        for line in configuration_lines(run):
+            click.echo(line)
+        per_label = ", ".join(f"{k} {v}" for k, v in summary.by_configuration.items())
+        how = f"stopped by {summary.stop_signal}" if summary.stop_signal else summary.status
+        click.echo(
+            f"Run {summary.run_id} {how}: {plural(summary.sweeps_stored, 'sweep')} stored ({per_label or 'none'}), "
+            f"{summary.sweeps_incomplete} incomplete, {plural(summary.gaps, 'gap')}, "
+            f"{plural(summary.clock_jumps, 'clock jump')}, elapsed {time.monotonic() - started:.1f} s"
+        )
+    click.echo(stored_line(run, db_path, summary.sweeps_incomplete,
+                           (summary.stop_signal or "a stop request") if summary.status == "stopped" else None))

@@ -9,6 +9,9 @@ import click
 
 from bandcensus import __version__
 from bandcensus.commands._common import FiniteFloat, db_option, echo_json, json_option, seed_type
+from bandcensus.commands._progress import sweep_progress
+from bandcensus.commands._stored import configuration_lines, stored_line, stored_run
+from bandcensus.commands._text import display_path, plural
 from survey.bandplan import parse_band
 from survey.records import RunInfo, SweepSettings
 from survey.errors import SceneError
@@ -59,16 +62,6 @@ def load_scene_file(path: str) -> "Scene":
     return load_scene(path)
 
 
-def _progress(enabled: bool):
-    from rich.console import Console
-    from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn
-
-    return Progress(
-        TextColumn("{task.description}"), BarColumn(), MofNCompleteColumn(), TimeElapsedColumn(),
-        console=Console(stderr=True), transient=True, disable=not enabled,
-    )
-
-
 @click.command("simulate")
 @click.argument("scene_path", metavar="SCENE.toml", type=click.Path(dir_okay=False))
 @db_option
@@ -86,14 +79,19 @@ def _progress(enabled: bool):
               help="Samples measured per hop, in milliseconds.")
 @click.option("--keep-iq", "keep_iq", type=click.Path(file_okay=False),
               help="Keep each sweep's IQ as a SigMF recording in this folder.")
+@click.option("--quiet", is_flag=True, help="Print only errors and the closing line.")
 @json_option
 def command(scene_path, db_path, configuration, input_kind, sweeps, every, alternate, seed, band, dwell_ms,
-            keep_iq, as_json):
+            keep_iq, quiet, as_json):
     """Sweep the SIMULATED scene in SCENE.toml into the database at --db.
 
     The scene (stations, outside noise, preamps, receiver) is rendered as 8-bit IQ on a simulated
     clock and measured by the same sweep engine as a live receiver. Give --config for one
     configuration, or --alternate A,B to switch between them sweep by sweep (A/B pairs).
+
+    Prints the stations detected per configuration (C/N, the carrier-to-noise ratio that some
+    call SNR, at or above the detection margin) and a closing line saying what was stored; a
+    progress line on standard error while it works (on a terminal, without --quiet).
     """
     interval_s = parse_interval_s(every)
     scene = load_scene_file(scene_path)
@@ -131,19 +129,18 @@ def command(scene_path, db_path, configuration, input_kind, sweeps, every, alter
     try:
         with CaptureSession(store, info, keep_iq_dirs=[keep_iq]) as session:
             run_id = session.run_id
-            with _progress(not as_json) as progress:
-                task = progress.add_task("sweep", total=sweeps)
+            with sweep_progress(sweeps, quiet or as_json) as progress:
                 for k in range(sweeps):
                     if session.stopped:
                         break
                     label = labels[k % len(labels)]
                     source.set_chain(label, input_kind)
-                    progress.update(task, description=f"sweep {k + 1} of {sweeps} ({terminal_label(label)}, {input_kind})")
+                    progress.start_sweep(f"{terminal_label(label)}, {input_kind}")
                     start_s = source.time_s
                     outcome = session.record(source, plan, settings, label, input_kind,
-                                             keep_iq_dir=keep_iq, recording_fields=fields)
+                                             keep_iq_dir=keep_iq, recording_fields=fields, on_hop=progress.on_hop)
                     done.append(outcome)
-                    progress.advance(task)
+                    progress.on_sweep()
                     if k + 1 < sweeps:
                         source.advance(max(0.0, interval_s - (source.time_s - start_s)))
     finally:
@@ -154,6 +151,7 @@ def command(scene_path, db_path, configuration, input_kind, sweeps, every, alter
         {"sweep_id": o.sweep_id, "configuration": o.result.configuration, "input": o.result.input,
          "started_utc": o.result.started_utc, "channels": len(o.result.channels),
          "received": sum(1 for c in o.result.channels if c.received),
+         "detected": sum(1 for c in o.result.channels if c.received),
          "max_clip_fraction": max((h.clip_fraction or 0.0) for h in o.result.hops) if o.result.hops else None,
          "complete": bool(o.result.complete),
          "recording": None if o.recording_path is None else str(o.recording_path)}
@@ -163,20 +161,23 @@ def command(scene_path, db_path, configuration, input_kind, sweeps, every, alter
         echo_json({"run_id": run_id, "scene": scene.name, "seed": int(seed), "simulated": True,
                    "status": summary.status, "stop_signal": summary.stop_signal, "sweeps": rows})
         return
-    click.echo(f"SIMULATED scene '{plain_text(scene.name)}', seed {seed}: run {run_id}, {len(rows)} sweep(s) of "
-               f"{len(plan.hops)} hops into {db_path}")
-    for r in rows:
-        line = (f"  sweep {r['sweep_id']} {r['started_utc']} {plain_text(r['configuration'])}/{r['input']}: "
-                f"{r['received']} of {r['channels']} channels received")
-        if r["max_clip_fraction"]:
-            line += f", clipping up to {100 * r['max_clip_fraction']:.3f} % of samples"
-        if r["recording"]:
-            line += f" -> {r['recording']}"
-        if not r["complete"]:
-            line += " (incomplete: stopped)"
-        click.echo(line)
-    if summary.status == "stopped":
+    run = stored_run(db_path, run_id)
+    if not quiet:
+        click.echo(f"SIMULATED scene '{plain_text(scene.name)}' (invented stations), seed {seed}: run {run_id}, "
+                   f"{plural(len(rows), 'sweep')} of {plural(len(plan.hops), 'hop')}")
+        clipped = [r["max_clip_fraction"] for r in rows if r["max_clip_fraction"]]
+        if clipped:
+            click.echo(f"Warning: {plural(len(clipped), 'sweep')} clip, up to {100 * max(clipped):.3f} % of samples "
+                       "(within one step of full scale)", err=True)
+        kept = [r["recording"] for r in rows if r["recording"]]
+        if kept:
+            click.echo(f"kept the IQ of {plural(len(kept), 'sweep')} in {plain_text(display_path(keep_iq))}")
+        for line in configuration_lines(run):
+            click.echo(line)
+    if summary.status == "stopped" and not quiet:
         click.echo(summary.line())
+    click.echo(stored_line(run, db_path, summary.sweeps_incomplete,
+                           (summary.stop_signal or "a stop request") if summary.status == "stopped" else None))
 
 
 __all__ = ["command", "parse_interval_s"]
