@@ -39,7 +39,7 @@ def verdict_line(summary: dict) -> str:
         parts.append(f"{key} {n}" + (f" ({_mhz_list(freqs[key], names=summary.get('names'))})" if n else ""))
     tail = f"; {summary['undetermined']} undetermined, {summary['unchanged']} unchanged"
     if summary.get("not_received"):
-        tail += f", {summary['not_received']} not received"
+        tail += f", {summary['not_received']} not detected"
     return f"{unit.capitalize()}s {', '.join(parts)}{tail} (of {_count(summary['rows'], unit)})."
 
 

@@ -111,8 +111,8 @@ def _table_rows(a: Assessment) -> tuple[str, list[Column], list[list[str]]]:
     """Title, columns and formatted rows of the per-station (or per-channel) table."""
     r = a.comparison
     pct = f"{100 * r.thresholds['confidence']:g}%"
-    title = (f"'{r.test}' against '{r.base}', per {r.unit}: {CN_LABEL}, delta, interval, gain and noise rise in dB "
-             f"(base and test {CN_LABEL} over the same pairs as the delta)")
+    title = (f"'{r.test}' against '{r.base}', per {r.unit}, in dB ({CN_LABEL} of both over the pairs the delta "
+             "is taken on)")
     named = any(c.name for c in r.items)
     with_bler = any(c.delta_block_error_rate is not None for c in r.items)
     columns = [Column("MHz")] + ([Column("station", justify="left", drop_order=6)] if named else []) + [
