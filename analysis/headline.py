@@ -39,17 +39,23 @@ def verdict_line(summary: dict) -> str:
         parts.append(f"{key} {n}" + (f" ({_mhz_list(freqs[key], names=summary.get('names'))})" if n else ""))
     tail = f"; {summary['undetermined']} undetermined, {summary['unchanged']} unchanged"
     if summary.get("not_received"):
-        tail += f", {summary['not_received']} not received"
+        tail += f", {summary['not_received']} not detected"
     return f"{unit.capitalize()}s {', '.join(parts)}{tail} (of {_count(summary['rows'], unit)})."
 
 
 def listenable_line(summary: dict) -> str:
-    """Items listenable before -> after, with the thresholds and their source."""
+    """Items listenable before -> after, with the thresholds stated once.
+
+    The thresholds' provenance (a published source, or a rule of thumb) is in the JSON under
+    ``listenable.source``; a cited source is also printed, a rule of thumb is not repeated here.
+    """
     li = summary["listenable"]
     unit = summary.get("unit", "station")
-    return (f"Listenable {unit}s, base -> test: mono {li['mono_base']} -> {li['mono_test']} "
-            f"(C/N >= {li['mono_cn_db']:g} dB), stereo {li['stereo_base']} -> {li['stereo_test']} "
-            f"(C/N >= {li['stereo_cn_db']:g} dB); thresholds {li['source']}.")
+    source = str(li.get("source") or "")
+    cited = "" if not source or "no source" in source else f"; thresholds from {source}"
+    return (f"Listenable {unit}s, base -> test: listenable mono {li['mono_base']} -> {li['mono_test']} "
+            f"(C/N >= {li['mono_cn_db']:g} dB), listenable stereo {li['stereo_base']} -> {li['stereo_test']} "
+            f"(C/N >= {li['stereo_cn_db']:g} dB){cited}.")
 
 
 def ceiling_line(ceiling: dict) -> str:

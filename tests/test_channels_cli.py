@@ -27,3 +27,28 @@ def test_one_block_per_configuration(tmp_path, capsys):
     assert main(["channels", "--db", str(db), "--csv"]) == 0
     lines = capsys.readouterr().out.strip().splitlines()
     assert lines[0].endswith(",configuration") and len(lines) == 1 + 2 * FREQS_HZ.size
+    header = lines[0].split(",")
+    for line in lines[1:]:   # levels to 0.01 dB, frequencies to 1 Hz (bandcensus/commands/_csv.py)
+        for name, cell in zip(header, line.split(",")):
+            if cell and name.endswith(("_db", "_dbfs")):
+                assert len(cell.split(".")[1]) == 2, (name, cell)
+            if cell and name.endswith("_hz"):
+                assert cell.isdigit(), (name, cell)
+
+
+def test_csv_rounds_by_unit_and_makes_labels_safe(tmp_path, capsys):
+    """CSV cells carry the precision of their unit (0.01 dB, 1 Hz, bandcensus/commands/_csv.py) and a
+    configuration label that looks like a formula is written as text (OWASP "CSV Injection")."""
+    import csv
+    import io
+
+    from bandcensus.commands._csv import csv_text
+
+    text = csv_text([{"freq_hz": 88_100_000.4, "power_dbfs": -44.544464111328125, "noise_dbfs": -60.0,
+                      "cn_db": 15.455535888671875, "received": True, "received_fraction": 2 / 3, "sweeps": 3,
+                      "configuration": "=preamp+1"}],
+                    ["freq_hz", "power_dbfs", "noise_dbfs", "cn_db", "received", "received_fraction", "sweeps",
+                     "configuration"])
+    (row,) = csv.DictReader(io.StringIO(text))
+    assert row == {"freq_hz": "88100000", "power_dbfs": "-44.54", "noise_dbfs": "-60.00", "cn_db": "15.46",
+                   "received": "true", "received_fraction": "0.6667", "sweeps": "3", "configuration": "'=preamp+1"}

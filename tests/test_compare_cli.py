@@ -105,10 +105,11 @@ def test_terminal_summary_then_rows(db, capsys, tmp_path):
     assert main(["compare", "--db", db, "--base", "bare", "--test", "preamp-a", "--plot", str(png),
                  "--explain"]) == 0
     out = capsys.readouterr().out
-    assert out.count("SNR (C/N) =") == 1 and "(P - N) / N" in out
+    assert out.count("C/N = (P - N) / N") == 1 and "SNR" not in out
     assert out.index("Stations helped") < out.index("Listenable") < out.index("Could any preamp help") \
         < out.index("Trouble") < out.index("│ 88.10") < out.index("│ 88.30") < out.index("│ 92.70")
-    assert "common practice, no source" in out and "Verdicts:" in out
+    assert "no source" not in out and "Verdicts:" in out   # provenance of thresholds: JSON and README
+    assert "listenable mono" in out and "(C/N >= 12 dB)" in out
     assert png.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n" and png.stat().st_size > 20_000
 
 

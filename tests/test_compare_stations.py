@@ -165,7 +165,7 @@ def test_station_names_in_rows_headline_json_and_report(tmp_path, capsys, monkey
         assert "MARSH FM (PI D2E4)" in doc["headlines"][0]
     assert main(["compare", "--db", str(db), "--base", "bare", "--test", "preamp-a"]) == 0
     out = capsys.readouterr().out
-    assert "MARSH FM (PI D2E4)" in out and "20.0 % -> 5.0 %" in out
+    assert "MARSH FM (PI D2E4)" in out and "20.0 -> 5.0 %" in out
     from analysis.report.build import build_report
     from analysis.report.html import render_html
 

@@ -81,8 +81,49 @@ def test_text_output_one_block_per_finding(sim_db, capsys):
 def test_clean_preamp_says_what_was_checked(sim_db, capsys):
     assert main(["diagnose", "--db", str(sim_db), "--base", "bare", "--test", "peaked"]) == 0
     text = capsys.readouterr().out
+    assert "No fault found. Checked:" in text and "clipping: 0 of" not in text   # evidence behind --explain
+    assert len(text.splitlines()) == 2
+    assert main(["diagnose", "--db", str(sim_db), "--base", "bare", "--test", "peaked", "--explain"]) == 0
+    text = capsys.readouterr().out
     assert "No fault found. Checked:" in text
     assert "clipping: 0 of" in text and "added-noise:" in text and "oscillation:" in text
+
+
+def test_csv_of_the_findings_rounds_by_unit(sim_db, capsys):
+    """One row per finding: fixed columns, then its evidence rounded by the unit in the key
+    (``_db`` 0.01 dB, ``_k`` 0.1 K, ``_hz`` 1 Hz; bandcensus/commands/_csv.py)."""
+    import csv
+    import io
+
+    assert main(["diagnose", "--db", str(sim_db), "--base", "bare", "--test", "peaked", "--csv"]) == 0
+    text = capsys.readouterr().out
+    header = text.splitlines()[0].split(",")
+    assert header[:4] == ["severity", "kind", "freq_hz", "advice"]
+    for row in csv.DictReader(io.StringIO(text)):
+        for key, cell in row.items():
+            if cell and key.endswith("_db"):
+                assert len(cell.split(".")[1]) == 2, (key, cell)
+            if cell and key.endswith("_hz"):
+                assert "." not in cell, (key, cell)
+            if cell and key.endswith("_k"):
+                assert len(cell.split(".")[1]) == 1, (key, cell)
+
+
+def test_finding_rows_carry_every_evidence_key_and_safe_labels():
+    from analysis.findings import Finding
+    from bandcensus.commands._csv import csv_text
+    from bandcensus.commands.diagnose import finding_rows
+
+    findings = [Finding(kind="added-noise", severity="problem", freq_hz=None, advice="=SUM(A1) is not a formula",
+                        evidence={"added_noise_k": 32068.94, "excess_db": 11.8449}),
+                Finding(kind="passband", severity="problem", freq_hz=94_517_123.4, advice="retune",
+                        evidence={"covered_stations_count": 1})]
+    rows, fields = finding_rows(findings)
+    assert fields == ["severity", "kind", "freq_hz", "advice", "added_noise_k", "excess_db",
+                      "covered_stations_count"]
+    lines = csv_text(rows, fields).splitlines()
+    assert lines[1] == "problem,added-noise,,'=SUM(A1) is not a formula,32068.9,11.84,"
+    assert lines[2] == "problem,passband,94517123,retune,,,1"
 
 
 def test_unknown_label_fails_with_one_line(sim_db, capsys):

@@ -282,7 +282,12 @@ def test_cli_table(full_db, tmp_path, capsys):
     code = main(["noise", "--db", str(full_db), "--receiver", RX, "--system", SYS, "--enr-table", str(table)])
     out = capsys.readouterr().out
     assert code == 0
-    assert "preamp NF" in out and "galactic" in out and "Assumptions" in out and "MHz" in out
+    assert "preamp NF" in out and "MHz" in out and "Assumptions" not in out and "with --explain" in out
+    code = main(["noise", "--db", str(full_db), "--receiver", RX, "--system", SYS, "--enr-table", str(table),
+                 "--explain", "--channels"])
+    out = capsys.readouterr().out
+    assert code == 0
+    assert "preamp NF" in out and "galactic" in out and "Assumptions" in out and "every" in out
 
 
 @pytest.mark.parametrize("extra, code, text", [
@@ -412,3 +417,27 @@ def test_end_to_end_on_simulated_truth(simulated):
     assert np.max(np.abs(ratio_to_db(r.column("antenna_temp_k")[free] / ta_true[free]))) < 1.0
     assert r.summary["closest_environment"] == "galactic"
     assert not any("clipped" in a for a in r.assumptions)
+
+
+def test_cli_csv_header_and_rounding(full_db, capsys):
+    """Per-channel CSV: a header of unit-named columns; dB to 0.01, K to 0.1, Hz to 1
+    (bandcensus/commands/_csv.py), and no more rows than the JSON has points."""
+    assert main(["noise", "--db", str(full_db), "--receiver", RX, "--system", SYS, "--enr-db", "15", "--csv"]) == 0
+    lines = capsys.readouterr().out.splitlines()
+    header = lines[0].split(",")
+    assert header[:3] == ["freq_hz", "occupied", "receiver_nf_db"] and "antenna_temp_k" in header
+    assert main(["noise", "--db", str(full_db), "--receiver", RX, "--system", SYS, "--enr-db", "15", "--json"]) == 0
+    doc = json.loads(capsys.readouterr().out)
+    assert len(lines) - 1 == len(doc["points"])
+    for line in lines[1:]:
+        for name, cell in zip(header, line.split(",")):
+            if not cell:
+                continue
+            if name.endswith("_hz"):
+                assert cell.isdigit()
+            elif name.endswith("_db"):
+                assert len(cell.split(".")[1]) == 2, (name, cell)
+            elif name.endswith("_k"):
+                assert len(cell.split(".")[1]) == 1, (name, cell)
+    first = dict(zip(header, lines[1].split(",")))
+    assert float(first["receiver_nf_db"]) == pytest.approx(doc["points"][0]["receiver_nf_db"], abs=0.005)

@@ -180,3 +180,30 @@ def test_end_to_end_low_receiver_gain_is_flagged(tmp_path, capsys):
     assert main(["passband", "--db", str(db), "--base", "bare", "--test", "peaked", "--target", "88-100", "--json"]) == 0
     out = json.loads(capsys.readouterr().out)
     assert any("quantisation floor" in n for n in out["notes"])
+
+
+def test_csv_of_the_curve_has_a_header_and_rounded_cells(readings, capsys):
+    """Measured points and the fitted gain as CSV: 1 Hz for frequencies, 0.01 dB for levels
+    (the precision they carry; bandcensus/commands/_csv.py)."""
+    assert main(["passband", "--points", str(readings), "--target", "88-100", "--csv"]) == 0
+    lines = capsys.readouterr().out.splitlines()
+    assert lines[0] == "freq_hz,gain_db,sigma_db,fitted_gain_db,in_target"
+    assert len(lines) == 1 + 5
+    for line in lines[1:]:
+        freq, gain, sigma, fitted, inside = line.split(",")
+        assert freq.isdigit() and inside in ("true", "false")
+        for cell in (gain, sigma, fitted):
+            assert len(cell.split(".")[1]) == 2, line
+    # the weighted fit passes each reading within twice that reading's stated standard uncertainty
+    for line in lines[1:]:
+        _, gain, sigma, fitted, _ = (line.split(",")[i] for i in range(5))
+        assert abs(float(gain) - float(fitted)) <= 2 * float(sigma), line
+
+
+def test_short_output_then_the_plan_with_explain(readings, capsys):
+    assert main(["passband", "--points", str(readings), "--target", "88-100"]) == 0
+    short = capsys.readouterr().out
+    assert main(["passband", "--points", str(readings), "--target", "88-100", "--explain"]) == 0
+    full = capsys.readouterr().out
+    assert len(short.splitlines()) <= 4 < len(full.splitlines())
+    assert "Fitted tuned circuits" in full and "Fitted tuned circuits" not in short

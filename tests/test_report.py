@@ -12,6 +12,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 
+from bandcensus.commands._text import display_path
 from analysis.compare.core import compare_configurations
 from analysis.diagnose.core import summarise_findings
 from analysis.errors import BadParameterError, NoDataError
@@ -240,7 +241,7 @@ def test_command_writes_and_prints_the_path(sim, tmp_path, capsys):
     out = tmp_path / "cli.html"
     code = main(["report", "--db", str(db), "--base", "bare", "--test", "preamp-peaked", "--out", str(out),
                  "--target", "92-97", "--enr-db", "15"])
-    assert code == 0 and capsys.readouterr().out.strip() == str(out)
+    assert code == 0 and capsys.readouterr().out.strip() == f"Report: {display_path(out)}"
     assert out.stat().st_size > 100_000 and "92.00 – 97.00 MHz (target band as given)" in out.read_text("utf-8")
 
 

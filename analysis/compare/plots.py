@@ -2,7 +2,7 @@
 
 Three panels sharing the frequency axis (MHz):
 
-1. SNR (C/N) of both configurations per compared item (station, or raster channel with
+1. C/N of both configurations per compared item (station, or raster channel with
    ``--channels``; base: open circles, test: filled squares, joined by a dotted stem; triangles
    mark stations gained or lost), with the mono and stereo listenable thresholds;
 2. delta C/N per item (test minus base) as bars with their confidence intervals, hatched
@@ -60,7 +60,7 @@ def plot_comparison(result: Comparison, path: str | Path, dpi: int = 120) -> Pat
     fig = Figure(figsize=(11, 9.5), layout="constrained")
     ax1, ax2, ax3 = fig.subplots(3, 1, sharex=True)
     fig.suptitle(
-        f"'{plot_label(result.test)}' (test) against '{plot_label(result.base)}' (base): SNR (C/N) per {result.unit}, "
+        f"'{plot_label(result.test)}' (test) against '{plot_label(result.base)}' (base): C/N per {result.unit}, "
         f"{result.n_base_sweeps} + {result.n_test_sweeps} sweeps, {'paired' if result.paired else 'unpaired'}"
     )
 
@@ -81,7 +81,7 @@ def plot_comparison(result: Comparison, path: str | Path, dpi: int = 120) -> Pat
     if lost.any():
         ax1.plot(f_mhz[lost], base_cn[lost], linestyle="none", marker="v", markersize=10,
                  color="black", markerfacecolor="none", label="lost (detected only with base)")
-    ax1.set_ylabel("SNR (C/N) = (P - N)/N, dB")
+    ax1.set_ylabel("C/N = (P - N)/N, dB")
     ax1.legend(loc="best", fontsize="small")
     ax1.grid(True, alpha=0.3)
 
@@ -98,7 +98,7 @@ def plot_comparison(result: Comparison, path: str | Path, dpi: int = 120) -> Pat
     ax2.axhline(0.0, color="black", linewidth=0.8)
     m = result.thresholds["min_change_db"]
     ax2.axhspan(-m, m, color="0.9", zorder=0, label=f"+/-{m:g} dB (unchanged when the interval lies within)")
-    ax2.set_ylabel("delta SNR (test - base), dB")
+    ax2.set_ylabel("delta C/N (test - base), dB")
     ax2.legend(loc="best", fontsize="small", title="hatched: // improved, xx worse", title_fontsize="small")
     ax2.grid(True, alpha=0.3)
 

@@ -69,7 +69,7 @@ SAFETY_NOTES = (
 
 #: Meaning of the numbers in the table and figures (the project's definitions).
 DEFINITIONS = (
-    "SNR (C/N) = (P - N) / N in dB: channel power P above the local noise power N = N0 B.",
+    "C/N = (P - N) / N in dB: channel power P above the local noise power N = N0 B.",
     "delta = test minus base; gain = ratio of signal-only powers P - N; noise rise = ratio of N; "
     "delta C/N = gain - noise rise.",
     "A channel whose P does not exceed N by the detection margin is 'not received' and has no C/N.",
@@ -335,8 +335,7 @@ def _assumptions(cmp_, pb, nr, diag) -> list[tuple[str, tuple[str, ...]]]:
             f"Improved if {t['improved_if']}; worse if {t['worse_if']}; unchanged if {t['unchanged_if']}; "
             f"undetermined if {t['undetermined_if']}.",
             f"Gained if {t['gained_if']}; lost: {t['lost_if']}.",
-            (f"Listenable: mono from C/N {cmp_.summary['listenable']['mono_cn_db']:g} dB, stereo from "
-             f"{cmp_.summary['listenable']['stereo_cn_db']:g} dB ({cmp_.summary['listenable']['source']})."),
+            _listenable_note(cmp_.summary["listenable"]),
             *cmp_.warnings,
         )))
     if pb is not None:
@@ -351,7 +350,7 @@ def _assumptions(cmp_, pb, nr, diag) -> list[tuple[str, tuple[str, ...]]]:
     out.append(("Overnight figures", (
         "Hop floors are each hop's noise-floor estimate (dBFS/Hz) as stored; hops at different centres "
         "sit at different levels behind a tuned preamp, so follow each band of points, not the spread.",
-        "Strongest and weakest stations: highest and lowest median SNR among channels received in at "
+        "Strongest and weakest stations: highest and lowest median C/N among channels detected in at "
         "least half of the sweeps of both configurations together.",
     )))
     return out
@@ -460,3 +459,12 @@ def build_report(
         unavailable=unavailable, summary=tuple(summary_lines(parts, unavailable)),
         assumptions=tuple(_assumptions(cmp_, pb, nr, diag)), build_s=time.monotonic() - started,
     )
+
+
+def _listenable_note(listenable: dict) -> str:
+    """The listenable thresholds, stated once; a published source is named, a rule of thumb is
+    not labelled in the page (its provenance is in the JSON and the README)."""
+    source = str(listenable.get("source") or "")
+    cited = "" if not source or "no source" in source else f" ({source})"
+    return (f"Listenable mono from C/N {listenable['mono_cn_db']:g} dB, listenable stereo from "
+            f"{listenable['stereo_cn_db']:g} dB{cited}.")

@@ -164,7 +164,7 @@ def _channel_table(r: Report) -> str:
     pct = f"{100 * c.thresholds['confidence']:g} %"
     named = any(getattr(ch, "name", None) for ch in c.channels)
     head = ("<tr><th class=\"num\">MHz</th>" + ("<th>station (RDS)</th>" if named else "")
-            + "<th class=\"num\">SNR base, dB</th><th class=\"num\">SNR test, dB</th>"
+            + "<th class=\"num\">C/N base, dB</th><th class=\"num\">C/N test, dB</th>"
             f"<th class=\"num\">change, dB</th><th class=\"num\">{e(pct)} interval, dB</th>"
             "<th class=\"num\">gain, dB</th><th class=\"num\">noise rise, dB</th><th class=\"num\">pairs</th>"
             "<th>verdict</th></tr>")
@@ -182,7 +182,7 @@ def _channel_table(r: Report) -> str:
             f'<td class="verdict">{e(_VERDICT_MARK.get(v, ""))} {e(v)}</td></tr>'
         )
     return (f'<table id="channel-table"><caption>Every {e(c.unit)} compared: \'{e(c.test)}\' (test) against '
-            f"'{e(c.base)}' (base), {c.n_base_sweeps} + {c.n_test_sweeps} sweeps; base and test SNR over the same "
+            f"'{e(c.base)}' (base), {c.n_base_sweeps} + {c.n_test_sweeps} sweeps; base and test C/N over the same "
             f"pairs as the change"
             f"{', ' + str(c.n_pairs) + ' pairs' if c.paired else ', unpaired'}</caption>"
             f"<thead>{head}</thead><tbody>{''.join(rows)}</tbody></table>")
@@ -195,9 +195,9 @@ def _channels(r: Report, figures: Mapping[str, str]) -> str:
     marks = ", ".join(f"{m} {v}" for v, m in _VERDICT_MARK.items())
     return (
         f"<p>{e(c.method)}.</p>"
-        + _figure(figures, "comparison", "SNR of both configurations, the change with its interval, and gain and "
+        + _figure(figures, "comparison", "C/N of both configurations, the change with its interval, and gain and "
                   f"noise rise against {c.unit} frequency",
-                  f"Top: SNR (C/N) per {c.unit}, base and test. Middle: change in SNR with its interval. "
+                  f"Top: C/N per {c.unit}, base and test. Middle: change in C/N with its interval. "
                   "Bottom: gain (ratio of P - N) and noise rise (ratio of N), dB.")
         + f"<p>Verdict marks: {e(marks)}. {e(c.thresholds['improved_if'])} for improved; "
         f"{e(c.thresholds['unchanged_if'])} for unchanged; otherwise undetermined.</p>"
@@ -287,11 +287,11 @@ def _overnight(r: Report, figures: Mapping[str, str]) -> str:
             + ("none" if s.strongest_hz is None else f"{_mhz(s.strongest_hz)} MHz")
             + ", weakest " + ("none" if s.weakest_hz is None else f"{_mhz(s.weakest_hz)} MHz") + ".")
     return (f"<p>{e(text)}</p>"
-            + _figure(figures, "overnight", "Noise floor of every hop and SNR of the strongest and weakest stations "
-                      "against time", "Top: each hop's noise floor and the median per sweep. Bottom: SNR of the "
+            + _figure(figures, "overnight", "Noise floor of every hop and C/N of the strongest and weakest stations "
+                      "against time", "Top: each hop's noise floor and the median per sweep. Bottom: C/N of the "
                       "strongest and weakest received stations; gaps where not received.")
-            + _figure(figures, "waterfall", "Time-by-frequency image of SNR for base and test",
-                      "SNR (C/N) of every channel in every sweep; hatched cells were not received."))
+            + _figure(figures, "waterfall", "Time-by-frequency image of C/N for base and test",
+                      "C/N of every channel in every sweep; hatched cells: not detected."))
 
 
 def _assumptions(r: Report) -> str:

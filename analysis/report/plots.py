@@ -4,9 +4,9 @@ The comparison, passband and noise figures are drawn by their own analyses' plot
 (:func:`analysis.compare.plots.plot_comparison`, :func:`analysis.passband.plots.plot_passband`,
 :func:`analysis.noise.plots.plot_noise`); this module adds the overnight figures:
 
-* the noise floor of every hop against time (``hops.floor_dbfs_hz``) and the SNR (C/N) of the
+* the noise floor of every hop against time (``hops.floor_dbfs_hz``) and the C/N of the
   strongest and weakest received stations against time, base and test apart;
-* a time-by-frequency image of SNR for each configuration.
+* a time-by-frequency image of C/N for each configuration.
 
 matplotlib is imported here only, with the Agg canvas. Series differ by marker and line style
 as well as by colour (Okabe-Ito blue and vermilion, Okabe & Ito 2008, "Color universal
@@ -75,7 +75,7 @@ def _save(fig) -> bytes:
 
 
 def comparison_png(report: Report) -> bytes:
-    """SNR both ways, the change with intervals, gain and noise rise (the comparison's own figure)."""
+    """C/N both ways, the change with intervals, gain and noise rise (the comparison's own figure)."""
     from analysis.compare.plots import plot_comparison
 
     cmp_ = replace(report.comparison, base=mpl_text(report.base), test=mpl_text(report.test))
@@ -115,7 +115,7 @@ class _Clock:
 
 
 def overnight_png(series: OvernightSeries, base: str, test: str) -> bytes:
-    """Two panels against UTC time: hop noise floors, and SNR of the strongest / weakest station."""
+    """Two panels against UTC time: hop noise floors, and C/N of the strongest / weakest station."""
     fig = _figure()(figsize=(10, 6.6), layout="constrained")
     ax_f, ax_c = fig.subplots(2, 1, sharex=True)
     styles = {base: (_BLUE, "o", "white", "--"), test: (_VERMILION, "s", _VERMILION, "-")}
@@ -156,9 +156,9 @@ def overnight_png(series: OvernightSeries, base: str, test: str) -> bytes:
     if not drawn:
         ax_c.text(0.5, 0.5, "no station received in half of the sweeps", ha="center", va="center",
                   transform=ax_c.transAxes)
-    ax_c.set_ylabel("SNR (C/N), dB")
+    ax_c.set_ylabel("C/N, dB")
     ax_c.set_xlabel(clock.label)
-    ax_c.set_title("SNR of the strongest and weakest received stations (gaps: not received)")
+    ax_c.set_title("C/N of the strongest and weakest received stations (gaps: not detected)")
     ax_c.grid(True, color="0.88")
     if drawn:
         ax_c.legend(fontsize="small", ncol=2, loc="best")
@@ -179,7 +179,7 @@ WATERFALL_MAX_ROWS = 720
 
 
 def waterfall_png(series: OvernightSeries, base: str, test: str) -> bytes:
-    """Time-by-frequency images of SNR (C/N), base above test, on one colour scale.
+    """Time-by-frequency images of C/N, base above test, on one colour scale.
 
     Cells a sweep did not receive are left hatched rather than given a number.
     """
@@ -214,7 +214,7 @@ def waterfall_png(series: OvernightSeries, base: str, test: str) -> bytes:
         ax.set_ylabel(clock.label.replace("time since", "sweep start after"), fontsize="small")
     axes[-1].set_xlabel("channel frequency, MHz")
     if mesh is not None:
-        fig.colorbar(mesh, ax=list(axes), label="SNR (C/N), dB", shrink=0.9)
+        fig.colorbar(mesh, ax=list(axes), label="C/N, dB", shrink=0.9)
     return _save(fig)
 
 

@@ -2,15 +2,13 @@
 
 from __future__ import annotations
 
-import csv
-import sys
-
 import click
 
 from analysis.channel_stats import channel_table
 from analysis.errors import NoDataError
 from analysis.selection import Survey
 from bandcensus.commands._common import db_option, echo_json
+from bandcensus.commands._csv import write_csv
 from bandcensus.commands._tables import channel_rows_table, print_table
 from survey.records import INPUT_KINDS
 
@@ -27,7 +25,7 @@ _CSV_FIELDS = ["freq_hz", "power_dbfs", "noise_dbfs", "cn_db", "received", "rece
 @click.option("--json", "as_json", is_flag=True, help="Print machine-readable JSON.")
 @click.option("--csv", "as_csv", is_flag=True, help="Print CSV.")
 def command(db_path, configuration, input_kind, since, until, as_json, as_csv):
-    """Per channel: median power P, noise N, SNR (C/N) over sweeps, and how often it was received.
+    """Per channel: median power P, noise N, C/N (some call it SNR) over sweeps, and how often it was detected.
 
     P is signal plus noise in the channel bandwidth (dBFS); N is the local noise floor times
     the bandwidth (dBFS); C/N = (P - N)/N in dB, shown as not received when P does not exceed N
@@ -58,11 +56,7 @@ def command(db_path, configuration, input_kind, since, until, as_json, as_csv):
                        "configurations": [{"configuration": label, "channels": rows} for label, rows in blocks]})
     elif as_csv:
         fields = _CSV_FIELDS + ([] if configuration is not None else ["configuration"])
-        writer = csv.DictWriter(sys.stdout, fieldnames=fields, extrasaction="ignore", lineterminator="\n")
-        writer.writeheader()
-        for label, rows in blocks:
-            for r in rows:
-                writer.writerow({**r, "configuration": label})
+        write_csv(({**r, "configuration": label} for label, rows in blocks for r in rows), fields)
     else:
         for label, rows in blocks:
             print_table(channel_rows_table(rows, f"Channels of '{label}' ({input_kind}), medians over its sweeps"))

@@ -11,6 +11,8 @@ from analysis.workflows import Assessment, assess
 from bandcensus.commands._common import db_option, echo_json, json_option
 from bandcensus.commands._csv import write_csv
 from bandcensus.commands._noise_source import noise_options_from, noise_source_options
+from bandcensus.commands._tables import Column, print_fitted
+from bandcensus.commands._text import CN_LABEL, display_path, plural
 
 #: Columns of the station (or channel) rows (JSON and CSV), units in the names.
 ROW_FIELDS = ["freq_hz", "verdict", "base_cn_db", "test_cn_db", "delta_cn_db", "ci_low_db", "ci_high_db",
@@ -79,24 +81,21 @@ def _num(value, fmt: str = "{:+.1f}") -> str:
 
 
 def _summary_lines(a: Assessment, explain: bool = False) -> list[str]:
-    """The headlines, what was compared, the conclusions on noise and the findings; with
-    ``explain`` also the method paragraph (statistics, definitions, verdict rules)."""
+    """The headlines and the conclusion on noise; with ``explain`` also what was compared, the
+    method paragraph (statistics, definitions, verdict rules), the noise split and the findings."""
     r = a.comparison
-    lines = list(a.headlines) + [
-        "",
-        f"Compared '{r.test}' (test) against '{r.base}' (base), input {r.input}: {r.n_base_sweeps} base and "
-        f"{r.n_test_sweeps} test sweeps, per {r.unit}" + ("." if explain else " (--explain for the method)."),
-    ]
-    if explain:
-        lines += [
-            f"Method: {r.method}.",
-            "SNR (C/N) = (P - N) / N in dB: power P above the local noise power N; delta = test minus base; "
-            "gain = ratio of P - N; noise rise = ratio of N; delta = gain - noise rise.",
-            f"Verdicts: improved/worse need the {r.thresholds['improved_if'].split(' of ')[0]} wholly above/below "
-            f"0 dB; unchanged needs it within +-{r.thresholds['min_change_db']:g} dB; otherwise undetermined.",
-        ]
+    lines = list(a.headlines) + [f"Noise: {r.summary['noise_source']}"
+                                 + ("." if explain else " (--explain for the method).")]
+    if not explain:
+        return lines
     lines += [
-        f"Noise: {r.summary['noise_source']}.",
+        f"Compared '{r.test}' (test) against '{r.base}' (base), input {r.input}: "
+        f"{plural(r.n_base_sweeps, 'base sweep')} and {plural(r.n_test_sweeps, 'test sweep')}, per {r.unit}.",
+        f"Method: {r.method}.",
+        "C/N = (P - N) / N in dB: power P above the local noise power N; delta = test minus base; "
+        "gain = ratio of P - N; noise rise = ratio of N; delta = gain - noise rise.",
+        f"Verdicts: improved/worse need the {r.thresholds['improved_if'].split(' of ')[0]} wholly above/below "
+        f"0 dB; unchanged needs it within +-{r.thresholds['min_change_db']:g} dB; otherwise undetermined.",
     ]
     if a.noise_split:
         lines.append(f"Noise split: {a.noise_split}.")
@@ -108,18 +107,22 @@ def _summary_lines(a: Assessment, explain: bool = False) -> list[str]:
     return lines
 
 
-def _table(a: Assessment) -> Table:
+def _table_rows(a: Assessment) -> tuple[str, list[Column], list[list[str]]]:
+    """Title, columns and formatted rows of the per-station (or per-channel) table."""
     r = a.comparison
     pct = f"{100 * r.thresholds['confidence']:g}%"
-    table = Table(title=f"'{r.test}' against '{r.base}', per {r.unit} (SNR, delta, interval, gain and noise rise "
-                        "in dB; base and test SNR over the same pairs as the delta)", title_justify="left")
+    title = (f"'{r.test}' against '{r.base}', per {r.unit}, in dB ({CN_LABEL} of both over the pairs the delta "
+             "is taken on)")
     named = any(c.name for c in r.items)
     with_bler = any(c.delta_block_error_rate is not None for c in r.items)
-    columns = ["MHz"] + (["station"] if named else []) + ["base SNR", "test SNR", "delta", f"{pct} interval",
-                                                          "gain", "noise rise", "pairs", "verdict"]
-    columns += ["RDS block errors base -> test"] if with_bler else []
-    for name in columns:
-        table.add_column(name, justify="left" if name in ("verdict", "station") else "right", no_wrap=name != "station")
+    columns = [Column("MHz")] + ([Column("station", justify="left", drop_order=6)] if named else []) + [
+        Column(f"base {CN_LABEL}", short="base"), Column(f"test {CN_LABEL}", short="test"), Column("delta"),
+        Column(f"{pct} interval", short=pct, drop_order=5), Column("gain", drop_order=2),
+        Column("noise rise", short="N rise", drop_order=1), Column("pairs", short="n", drop_order=3),
+        Column("verdict", justify="left")]
+    if with_bler:
+        columns.append(Column("RDS block errors base -> test", short="RDS errors", drop_order=4))
+    rows = []
     for c in sorted(r.items, key=lambda c: c.freq_hz):
         interval = "-" if c.ci_low_db is None else f"[{c.ci_low_db:+.2f}, {c.ci_high_db:+.2f}]"
         cells = [f"{c.freq_hz / 1e6:.2f}"] + ([c.name or ""] if named else []) + [
@@ -127,11 +130,9 @@ def _table(a: Assessment) -> Table:
             _num(c.delta_cn_db, "{:+.2f}"), interval, _num(c.gain_db), _num(c.noise_rise_db), str(c.pairs), c.verdict]
         if with_bler:
             cells.append("-" if c.delta_block_error_rate is None else
-                         f"{100 * c.base_block_error_rate:.1f} % -> {100 * c.test_block_error_rate:.1f} %"
-                         + ("" if c.bler_ci_low is None else
-                            f" [{100 * c.bler_ci_low:+.1f}, {100 * c.bler_ci_high:+.1f}]"))
-        table.add_row(*cells)
-    return table
+                         f"{100 * c.base_block_error_rate:.1f} -> {100 * c.test_block_error_rate:.1f} %")
+        rows.append(cells)
+    return title, columns, rows
 
 
 @click.command("compare")
@@ -152,17 +153,18 @@ def _table(a: Assessment) -> Table:
               help="Confidence level of the intervals.")
 @noise_source_options
 @click.option("--explain", is_flag=True, help="Also print the method: statistics, definitions and verdict rules.")
+@click.option("--brief", is_flag=True, help="Only the headlines and the conclusion on noise (no table).")
 @click.option("--no-diagnosis", is_flag=True, help="Skip the chain diagnosis (clipping, intermodulation, "
               "oscillation, added noise) in the summary.")
 def command(db_path, base, test, as_json, as_csv, channels, plot_path, since, until, min_change_db, confidence,
-            enr_db, enr_table, cold_k, receiver_nf_db, explain, no_diagnosis):
-    """Which stations gained or lost SNR (C/N) with TEST compared to BASE, by how much, how sure.
+            enr_db, enr_table, cold_k, receiver_nf_db, explain, brief, no_diagnosis):
+    """Which stations gained or lost C/N with TEST compared to BASE, by how much, how sure.
 
-    SNR (C/N) is (P - N)/N in dB. Sweeps that alternated between the two configurations are
+    C/N (some call it SNR) is the carrier-to-noise ratio (P - N)/N in dB. Sweeps that alternated between the two configurations are
     compared in pairs (mean of the paired differences with its Student t interval, n - 1
     degrees of freedom, from 3 pairs); sweeps taken at different times with Welch's t
     interval. Gain is the ratio of signal powers P - N, noise rise the ratio of N, and
-    delta SNR = gain - noise rise. With noise-figure runs the C/N ceiling set by outside noise
+    delta C/N = gain - noise rise. With noise-figure runs the C/N ceiling set by outside noise
     is checked too.
     """
     if as_json and as_csv:
@@ -187,14 +189,15 @@ def command(db_path, base, test, as_json, as_csv, channels, plot_path, since, un
     if as_csv:
         write_csv(payload["stations" if a.comparison.unit == "station" else "channels"], row_fields(a.comparison))
         return
-    console = Console(width=max(110, Console().width))
+    console = Console(width=max(120, Console().width))
     for line in _summary_lines(a, explain):
         console.print(line, highlight=False, markup=False)
     for warning in a.comparison.warnings:
         console.print(f"Warning: {warning}", highlight=False, markup=False)
-    console.print(_table(a))
+    if not brief:
+        print_fitted(*_table_rows(a), console=console)
     if plot_path:
-        console.print(f"Figure written to {plot_path}", highlight=False, markup=False)
+        console.print(f"Figure: {display_path(plot_path)}", highlight=False, markup=False)
 
 
 #: Columns of the ranking (JSON and CSV).

@@ -15,8 +15,10 @@ from bandcensus.demo import run_demo
 def command(out_dir):
     """Replay the bundled SIMULATED recordings of an invented town and run every analysis.
 
-    Writes the database, PNG plots and an HTML report into a new folder and prints what each
-    analysis says, with the command line that produced it.
+    Writes the databases, PNG plots and an HTML report into a new folder and prints, in about
+    150 lines, what each analysis says (answer first) with the command line that produced it:
+    the station census, the stations' names, each preamp's headlines, the noise figures, the
+    passbands, the trouble found, and where the report is.
     """
     from bandcensus.cli import main  # the demo runs the same commands a user would type
 

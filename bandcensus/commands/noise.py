@@ -3,12 +3,13 @@
 from __future__ import annotations
 
 import click
-from rich.table import Table
 
 from analysis.noise.workflow import analyse_noise
 from bandcensus.commands._common import db_option, echo_json, json_option
 from bandcensus.commands._noise_source import noise_options_from, noise_source_options
-from bandcensus.commands._tables import print_table
+from bandcensus.commands._csv import write_csv
+from bandcensus.commands._tables import Column, print_fitted
+from bandcensus.commands._text import display_path, plural
 
 #: Table columns: (point key, heading, format).
 _COLUMNS = (
@@ -43,6 +44,16 @@ _SUMMARY = (
 )
 
 
+#: Summary rows shown only with --explain (cross-checks of the main figures).
+_DETAIL = frozenset({"passband_peak_gain_db", "preamp_nf_terminated_db", "station_minus_hot_cold_gain_db",
+                     "noise_after_gain_k", "preamp_nf_at_input_db"})
+#: Short headers and drop order of the per-channel columns (in the order of ``_COLUMNS``).
+_SHORT = ("rx NF", "sys NF", "G", "NF", "±", "Ta", "Fa", "C/N+", "other")
+_DROP = (None, 3, None, None, 2, None, 1, None, 0)
+#: CSV columns (units in the names), one row per channel.
+CSV_FIELDS = ["freq_hz", "occupied"] + [key for key, _, _ in _COLUMNS]
+
+
 def _cell(value, fmt: str) -> str:
     return "-" if value is None else fmt.format(value)
 
@@ -59,9 +70,12 @@ def _cell(value, fmt: str) -> str:
 @click.option("--for-receiver-nf-db", type=float,
               help="Project the preamp's C/N gain onto another receiver of this NF, dB.")
 @json_option
+@click.option("--csv", "as_csv", is_flag=True, help="Print the per-channel values as CSV.")
+@click.option("--channels", is_flag=True, help="Also print the per-channel table (every few channels).")
+@click.option("--explain", is_flag=True, help="Also print the assumptions and how to remove them.")
 @click.option("--plot", "plot_path", type=click.Path(dir_okay=False), help="Write a PNG figure here.")
 def command(db_path, receiver, system, enr_db, enr_table, cold_k, receiver_nf_db, enr_uncertainty_db,
-            for_receiver_nf_db, as_json, plot_path):
+            for_receiver_nf_db, as_json, as_csv, channels, explain, plot_path):
     """Noise figure of receiver, system and preamp; preamp gain; outside noise beside ITU-R P.372.
 
     Uses whichever sweeps exist for the two configurations: noise-hot + noise-cold (Y-factor
@@ -69,6 +83,8 @@ def command(db_path, receiver, system, enr_db, enr_table, cold_k, receiver_nf_db
     and receiver NF) and antenna + terminated (outside noise temperature Ta and Fa). States
     every assumption and which runs would remove it.
     """
+    if as_json and as_csv:
+        raise click.UsageError("choose one of --json and --csv")
     options = noise_options_from(enr_db, enr_table, cold_k, receiver_nf_db)
     result = analyse_noise(
         db_path, receiver, system, enr_uncertainty_db=enr_uncertainty_db, for_receiver_nf_db=for_receiver_nf_db,
@@ -82,32 +98,41 @@ def command(db_path, receiver, system, enr_db, enr_table, cold_k, receiver_nf_db
     if as_json:
         echo_json(payload)
         return
+    if as_csv:
+        write_csv(payload["points"], CSV_FIELDS)
+        return
+    if channels:
+        _print_channels(payload, receiver, system)
+    s = payload["summary"]
+    what = f" and '{system}' (preamp + receiver)" if system else " (receiver alone)"
+    rows = []
+    for key, label, fmt in _SUMMARY:
+        if s.get(key) is not None and (explain or key not in _DETAIL):
+            if key == "projected_benefit_db":
+                label += f" (NF {s['for_receiver_nf_db']:g} dB)"
+            rows.append([label, fmt(s[key])])
+    print_fitted(f"Noise of '{receiver}'{what}, {s['summary_region']}",
+                 [Column("quantity", justify="left"), Column("value")], rows)
+    click.echo("Workflows: " + ", ".join(payload["workflows"]))
+    n = len(payload["assumptions"])
+    if explain:
+        click.echo("Assumptions (and how to remove them):")
+        for a in payload["assumptions"]:
+            click.echo(f"  - {a}")
+    elif n:
+        click.echo(f"{plural(n, 'assumption')} stated with --explain (and how to remove them).")
+    if plot_path:
+        click.echo(f"Figure: {display_path(plot_path)}")
+
+
+def _print_channels(payload: dict, receiver: str, system: str | None) -> None:
+    """The per-channel table, thinned to about 30 rows."""
     points = payload["points"]
     step = max(1, -(-len(points) // 30))
     what = f" and '{system}' (preamp + receiver)" if system else ""
-    grid = Table(title=f"Noise: '{receiver}' (receiver alone){what}"
-                 + (f", every {step}th channel" if step > 1 else ""), title_justify="left")
-    grid.add_column("MHz", justify="right")
-    for _, head, _ in _COLUMNS:
-        grid.add_column(head, justify="right")
-    for p in points[::step]:
-        flag = "*" if p.get("occupied") else ""
-        grid.add_row(f"{p['freq_hz'] / 1e6:.2f}{flag}", *[_cell(p[k], fmt) for k, _, fmt in _COLUMNS])
-    print_table(grid)
-    s = payload["summary"]
-    summary = Table(title=f"Summary ({s['summary_region']})", title_justify="left", show_header=False)
-    summary.add_column("quantity")
-    summary.add_column("value", justify="right")
-    for key, label, fmt in _SUMMARY:
-        if s.get(key) is not None:
-            if key == "projected_benefit_db":
-                label += f" (NF {s['for_receiver_nf_db']:g} dB)"
-            summary.add_row(label, fmt(s[key]))
-    print_table(summary)
-    click.echo("* station channel: Ta there is from the local floor only.")
-    click.echo("Workflows: " + ", ".join(payload["workflows"]))
-    click.echo("Assumptions (and how to remove them):")
-    for a in payload["assumptions"]:
-        click.echo(f"  - {a}")
-    if plot_path:
-        click.echo(f"Figure written to {plot_path}")
+    rows = [[f"{p['freq_hz'] / 1e6:.2f}" + ("*" if p.get("occupied") else "")]
+            + [_cell(p[k], fmt) for k, _, fmt in _COLUMNS] for p in points[::step]]
+    print_fitted(f"Noise: '{receiver}' (receiver alone){what}" + (f", every {step}th channel" if step > 1 else "")
+                 + "; * station channel: Ta there is from the local floor only",
+                 [Column("MHz")] + [Column(head, short=short, drop_order=drop) for (_, head, _), short, drop
+                                    in zip(_COLUMNS, _SHORT, _DROP)], rows)

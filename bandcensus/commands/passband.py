@@ -12,7 +12,9 @@ from analysis.passband.report import analyse_passband
 from analysis.selection import Survey
 from analysis.workflows import passband_for
 from bandcensus.commands._common import echo_json, json_option, parse_mhz_range
+from bandcensus.commands._csv import write_csv
 from bandcensus.commands._tables import print_table
+from bandcensus.commands._text import display_path, plural
 
 
 def _target_from_band(band: str) -> tuple[float, float]:
@@ -50,9 +52,11 @@ def _mhz(v: float | None, digits: int = 2) -> str:
 @click.option("--q-unloaded", type=click.FloatRange(min=1.0, min_open=True), default=None,
               help="Unloaded Q of the coils for the insertion loss (default: 150, assumed and flagged).")
 @json_option
+@click.option("--csv", "as_csv", is_flag=True, help="Print the measured gain points and the fitted curve as CSV.")
+@click.option("--explain", is_flag=True, help="Also print the fitted circuits, the stagger plan and the data notes.")
 @click.option("--plot", "plot_path", type=click.Path(dir_okay=False), default=None, help="Write a PNG figure.")
 def command(db_path, base, test, points_path, target, band, source, bin_khz, circuits, q_unloaded, as_json,
-            plot_path) -> None:
+            as_csv, explain, plot_path) -> None:
     """Measure the passband of a preamp and how well it covers a band.
 
     Gain against frequency comes from the database (noise-source sweeps, else stations received
@@ -61,6 +65,8 @@ def command(db_path, base, test, points_path, target, band, source, bin_khz, cir
     stations outside the passband and a maximally flat stagger tuning that would cover the
     target are printed.
     """
+    if as_json and as_csv:
+        raise click.UsageError("choose one of --json and --csv")
     if (db_path is None) == (points_path is None):
         raise click.UsageError("give either --db PATH with --base and --test, or --points FILE.csv (not both)")
     if db_path is not None and (not base or not test):
@@ -105,7 +111,50 @@ def command(db_path, base, test, points_path, target, band, source, bin_khz, cir
     if as_json:
         echo_json(report.to_dict())
         return
-    _print_report(report, plot_path)
+    if as_csv:
+        write_csv(curve_rows(report), CSV_FIELDS)
+        return
+    if explain:
+        _print_report(report, plot_path)
+    else:
+        _print_short(report, plot_path)
+
+
+#: CSV columns: one row per measured gain point, with the fitted model there (units in the names).
+CSV_FIELDS = ["freq_hz", "gain_db", "sigma_db", "fitted_gain_db", "in_target"]
+
+
+def curve_rows(report) -> list[dict]:
+    """One row per measured point: measured gain, its standard uncertainty, the fitted gain there."""
+    import numpy as np
+
+    curve, fit, cov = report.curve, report.fit, report.coverage
+    freqs = np.asarray(curve.freqs_hz, dtype=float)
+    fitted = np.asarray(fit.response_db(freqs), dtype=float)
+    sigma = np.asarray(curve.sigma_db, dtype=float)
+    lo, hi = cov.target_hz
+    return [{"freq_hz": float(f), "gain_db": float(g), "sigma_db": float(s),
+             "fitted_gain_db": float(m), "in_target": bool(lo <= f <= hi)}
+            for f, g, s, m in zip(freqs, curve.gain_db, sigma, fitted)]
+
+
+def _print_short(report, plot_path) -> None:
+    """The verdict, the measured edges, the stations left out, and the retune plan in one line."""
+    fit, cov, plan, curve = report.fit, report.coverage, report.plan, report.curve
+    click.echo(report.verdict())
+    rel = " (relative)" if curve.relative else ""
+    click.echo(f"peak {_mhz(fit.peak_hz, 2)} MHz, {fit.peak_gain_db:.1f} dB{rel}; -3 dB edges "
+               f"{_mhz(fit.edges_3db_hz[0], 2)}-{_mhz(fit.edges_3db_hz[1], 2)} MHz; ripple over the target "
+               f"{cov.ripple_db:.1f} dB; from {curve.source} ({plural(curve.n_points, 'point')})")
+    outside = cov.uncovered_stations_hz
+    if len(outside):
+        click.echo(f"stations outside the -3 dB edges: {', '.join(_mhz(f, 1) for f in outside)} MHz")
+    if len(outside) or not cov.target_covered:
+        click.echo(f"retune: {plural(len(plan.stages), 'circuit')} at "
+                   + ", ".join(f"{_mhz(st.f0_hz, 2)} MHz (Q {st.q:.1f})" for st in plan.stages)
+                   + " for a maximally flat passband over the target (--explain for the stagger plan)")
+    if plot_path:
+        click.echo(f"Figure: {display_path(plot_path)}")
 
 
 def _print_report(report, plot_path) -> None:

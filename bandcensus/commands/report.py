@@ -6,6 +6,7 @@ import click
 
 from analysis.report.html import write_report
 from bandcensus.commands._common import db_option, parse_mhz_range
+from bandcensus.commands._text import display_path
 from bandcensus.commands._noise_source import noise_options_from, noise_source_options
 
 
@@ -33,7 +34,7 @@ def command(db_path, base, test, out_path, target, enr_db, enr_table, cold_k, re
     options = noise_options_from(enr_db, enr_table, cold_k, receiver_nf_db)
     written = write_report(db_path, base, test, out_path, target_hz=target_hz, enr_db=options.enr_db,
                            enr_table=options.enr_table, cold_k=options.cold_k)
-    click.echo(str(written.path))
+    click.echo(f"Report: {display_path(written.path)}")
 
 
 __all__ = ["command"]
