@@ -189,6 +189,8 @@ def measure_hop(
     emissions_out: list | None = None,
     floor_out: list | None = None,
     floor_given: np.ndarray | None = None,
+    psd_out: list | None = None,
+    psd_given: tuple[np.ndarray, np.ndarray] | None = None,
 ) -> tuple[HopReading, list[ChannelReading]]:
     """Measure one hop: clipping, PSD, local noise floor and each channel's P, N and C/N.
 
@@ -220,6 +222,11 @@ def measure_hop(
     floor_given : numpy.ndarray, optional
         Floor density per bin (FS^2/Hz) to use instead of fitting one, e.g. this hop's part of
         :func:`survey.noise_floor.sweep_floors`.
+    psd_out : list, optional
+        When given, ``(offsets Hz, PSD FS^2/Hz, floor FS^2/Hz)`` of this hop is appended (copies),
+        so that a second pass over the same block need not compute them again.
+    psd_given : tuple of numpy.ndarray, optional
+        ``(offsets Hz, PSD FS^2/Hz)`` of this very block from an earlier pass (``psd_out``).
 
     Raises
     ------
@@ -232,7 +239,10 @@ def measure_hop(
     center = float(block.center_hz)
     n_samples = _native(block.raw, block.datatype).size // 2
     clipped = clip_fraction(block.raw, block.datatype)
-    offsets, psd = raw_averaged_psd(block.raw, block.datatype, fs, settings.fft_size)
+    if psd_given is not None:
+        offsets, psd = psd_given
+    else:
+        offsets, psd = raw_averaged_psd(block.raw, block.datatype, fs, settings.fft_size)
     usable = usable_bins(offsets, fs, settings.usable_fraction, settings.dc_guard_hz)
     k_eff = welch_effective_averages(n_samples, settings.fft_size)
     groups: list = []
@@ -242,6 +252,8 @@ def measure_hop(
         floor = local_noise_floor(offsets, psd, usable, effective_averages=k_eff,
                                   groups_out=groups if floor_out is not None else None)
     floor_db = _median_db(floor[usable])
+    if psd_out is not None:
+        psd_out.append((np.array(offsets), np.array(psd), np.array(floor)))
     if floor_out is not None:
         floor_out.append((center + offsets, np.asarray(ratio_to_db(floor)), usable, groups[0] if groups else None))
     if emissions_out is not None:

@@ -126,6 +126,7 @@ def run_sweep(
     )
     blocks: list[tuple[object, IQBlock]] = []
     floors: list = []
+    first_pass: list = []  # (offsets, PSD, own floor) per hop, so the second pass reuses them
     for hop in plan.hops:
         if should_stop is not None and should_stop():
             complete = False
@@ -136,7 +137,8 @@ def run_sweep(
             started = block.started_utc
         if sink is not None:
             sink.add_block(block)
-        hop_reading, _ = dsp.measure_hop(block, hop.channels_hz, settings, hop_index=hop.index, floor_out=floors)
+        hop_reading, _ = dsp.measure_hop(block, hop.channels_hz, settings, hop_index=hop.index, floor_out=floors,
+                                         psd_out=first_pass)
         blocks.append((hop, block))
         ended = dsp.block_end_utc(block)
         if on_hop is not None:
@@ -147,9 +149,11 @@ def run_sweep(
         given = sweep_floors([f[3] for f in floors], [float(b.center_hz) for _, b in blocks],
                              [f[0] - float(b.center_hz) for f, (_, b) in zip(floors, blocks)])
     for k, (hop, block) in enumerate(blocks):
+        offsets, psd, own_floor = first_pass[k]
         hop_reading, channel_readings = dsp.measure_hop(
             block, hop.channels_hz, settings, hop_index=hop.index, keep_psd=keep_psd,
-            emissions_out=emissions, floor_given=given[k],
+            emissions_out=emissions, floor_given=own_floor if given[k] is None else given[k],
+            psd_given=(offsets, psd),
         )
         hops.append(hop_reading)
         channels.extend(channel_readings)

@@ -68,7 +68,7 @@ def command(db_path, configuration, input_kind, kind, names_path, as_json, as_cs
     for label in sorted({r["configuration"] for r in rows}) or [configuration or "any configuration"]:
         block = [r for r in rows if r["configuration"] == label]
         table = Table(title=f"Stations of {label} ({input_kind}), medians over sweeps", title_justify="left")
-        columns = ("MHz", "kind", "SNR (C/N) dB", "C/I dB", "heard", "stereo", "occupied kHz", "PI", "PS",
+        columns = ("MHz", "kind", "C/N dB", "C/I dB", "heard", "stereo", "occupied kHz", "PI", "PS",
                    "RDS errors") + (("name",) if names else ())
         for col in columns:
             table.add_column(col, justify="left" if col in ("kind", "stereo", "PI", "PS", "name") else "right")
