@@ -28,7 +28,6 @@ from analysis.errors import AnalysisError
 from bandcensus import __version__
 from bandcensus.commands._common import finite_float_options
 from survey.errors import SurveyError
-from survey.store import open_error
 from survey.text import plain_text
 
 import bandcensus.commands as _commands_pkg
@@ -149,6 +148,10 @@ def _describe_failure(exc: BaseException, args: Sequence[str]) -> str:
     if isinstance(exc, (SurveyError, AnalysisError)):
         return str(exc)
     if isinstance(exc, sqlite3.DatabaseError):
+        # imported here, on the failure path only: the store package pulls in numpy, which
+        # listing the commands (--help) does not need
+        from survey.store import open_error
+
         db = Path(_db_argument(args))
         return str(open_error(exc, db))
     if isinstance(exc, RecursionError):

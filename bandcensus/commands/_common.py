@@ -7,7 +7,6 @@ import math
 from typing import Any
 
 import click
-import numpy as np
 
 db_option = click.option(
     "--db", "db_path", required=True, type=click.Path(dir_okay=False),
@@ -18,6 +17,8 @@ json_option = click.option("--json", "as_json", is_flag=True, help="Print machin
 
 def _clean(value: Any) -> Any:
     """Make numpy values and non-finite floats JSON-safe (NaN and inf become null)."""
+    import numpy as np  # on the JSON path only: listing the commands does not load numpy
+
     if isinstance(value, dict):
         return {str(k): _clean(v) for k, v in value.items()}
     if isinstance(value, (list, tuple)):
