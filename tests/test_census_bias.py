@@ -6,10 +6,13 @@ the same station measured at the same simulated time with a 20x longer dwell (th
 own-power integral are unbiased at K = 117 averages: the log-average bias is then -0.02 dB,
 ``10 log10(e) (psi(K) - ln K)``, Welch 1967 chi-square model).
 
-Measured (this file's generator, means over seeds; C/N measured minus true, dB):
-5 ms hops (K = 5): -0.2 to -0.35 dB for a station alone between 5 and 30 dB C/N, -0.5 to +0.15 dB
-with neighbours 20 dB stronger 200 kHz away (the floor under them reads high); 100 ms hops
-(K = 117): within 0.1 dB alone and 0.2 dB with neighbours. The bias is nearly the same in both
+Measured (this file's generator, means over 60 seeds at 5 ms and 12 at 100 ms; C/N measured
+minus true, dB), before -> after carriers claim their FM body in the floor fit at few averages:
+5 ms hops (K = 5), station alone, 5-30 dB C/N: -0.22..-0.34 -> -0.07..-0.23; with neighbours
+20 dB stronger 200 kHz away: -0.49..+0.14 -> -0.32..+0.23 (the floor under the station:
++1.05 -> +0.16 dB at 10 dB C/N); 100 ms hops (K = 117): within 0.08 dB alone and 0.20 dB with
+neighbours, unchanged. Below 5 dB C/N a 5 ms hop finds the station only sometimes and the hops
+that find it read high (selection on the noise). The bias is nearly the same in both
 configurations of a comparison, so the C/N *change* is unbiased to within 0.3 dB.
 """
 
@@ -55,11 +58,38 @@ def test_long_dwell_cn_is_unbiased(neighbours):
     assert abs(np.mean(errors)) < 0.25, errors
 
 
-@pytest.mark.parametrize("neighbours", [False, True])
-def test_short_dwell_cn_bias_is_bounded(neighbours):
+@pytest.mark.parametrize("neighbours, limit_db", [(False, 0.3), (True, 0.45)])
+def test_short_dwell_cn_bias_is_bounded(neighbours, limit_db):
     errors = np.array([_cn_error(10.0, 12_000, seed, neighbours=neighbours) for seed in range(40)])
     assert np.isfinite(errors).mean() >= 0.9
-    assert abs(np.nanmean(errors)) < 0.6, np.nanmean(errors)
+    assert abs(np.nanmean(errors)) < limit_db, np.nanmean(errors)
+
+
+def test_floor_under_a_station_between_strong_neighbours_with_few_averages():
+    """5 averages: the outer sidebands of the three stations must not lift the floor under them.
+
+    Truth: the generator's white-noise density ``N0``. Without the carriers' body claim the fit
+    read 1.05 dB high here (mean of these seeds); the log-average bias at K = 5 is -0.45 dB
+    (``10 log10(e) (psi(5) - ln 5)``) and is removed by the fit.
+    """
+    from survey.dsp import usable_bins, welch_effective_averages
+    from survey.noise_floor import local_noise_floor
+    from survey.psd import averaged_psd
+
+    errors = []
+    for seed in range(24):
+        rng = np.random.default_rng(seed)
+        n = 12_000
+        a = float(np.sqrt(N0 * BW * 10.0))  # 10 dB C/N
+        z = complex_noise(n, N0 * FS, rng) + fm_broadcast(n, FS, WEAK, a, rng)
+        z += fm_broadcast(n, FS, WEAK + 200e3, 10 * a, rng) + fm_broadcast(n, FS, WEAK - 200e3, 10 * a, rng)
+        offsets, psd = averaged_psd(z, FS)
+        usable = usable_bins(offsets, FS, 0.75, 20e3)
+        floor = local_noise_floor(offsets, psd, usable,
+                                  effective_averages=welch_effective_averages(n, offsets.size))
+        under = np.abs(offsets - WEAK) < BW / 2
+        errors.append(10 * np.log10(np.nanmean(floor[under]) / N0))
+    assert abs(np.mean(errors)) < 0.35, np.mean(errors)
 
 
 def test_short_dwell_cn_change_is_unbiased():
