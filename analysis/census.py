@@ -19,7 +19,8 @@ from analysis.terms import check_input, median_iqr
 from survey.errors import StoreError
 from survey.rds import RdsIdentity, RdsResult, merge_rds
 from survey.station_names import name_for
-from survey.store import (StationRow, SweepRow, count_complete_sweeps, list_sweeps, open_for_reading,
+from survey.store import (StationRow, SweepRow, count_complete_sweeps, identified_sweep_ids, list_sweeps,
+                          open_for_reading,
                           read_channel_matrix, read_station_rows,
                           upgrade_database)
 from survey.units import db_to_ratio, ratio_to_db
@@ -155,6 +156,27 @@ def _merged_identity(members: Sequence[StationRow]) -> RdsIdentity:
                      for r in members)
 
 
+def _identities_across_survey(conn: sqlite3.Connection, clusters: Sequence[_Cluster],
+                              sweep_ids: Sequence[int]) -> list[RdsIdentity | None]:
+    """Each FM station's RDS merged with the identified rows of every other sweep of the database.
+
+    Who a transmitter is does not depend on the configuration it was heard through: a long
+    identification recording (or the sweeps of another preamp) can name a station that the short
+    hops of a comparison only measure. Only rows that confirm a PI are drawn in, within
+    :data:`SAME_FM_STATION_HZ` of the station; None where no other sweep identifies it.
+    """
+    mine = set(int(i) for i in sweep_ids)
+    other = [i for i in identified_sweep_ids(conn) if i not in mine]
+    if not other or not clusters:
+        return [None] * len(clusters)
+    rows = [r for r in read_station_rows(conn, other) if r.kind == "fm" and r.rds_pi is not None]
+    out: list[RdsIdentity | None] = []
+    for c in clusters:
+        near = [r for r in rows if c.kind == "fm" and abs(r.freq_hz - c.freq_hz) <= SAME_FM_STATION_HZ]
+        out.append(_merged_identity([*c.members, *near]) if near else None)
+    return out
+
+
 def census_matrix(conn: sqlite3.Connection, sweeps: Sequence[SweepRow], kinds=("fm",),
                   names: Mapping[int, str] | None = None) -> StationMatrix:
     """Stations heard in any of ``sweeps``, one column each, one row per sweep (order kept).
@@ -184,8 +206,9 @@ def census_matrix(conn: sqlite3.Connection, sweeps: Sequence[SweepRow], kinds=("
 
     Identity: each station's RDS results (one per stored emission) are merged over all the
     given sweeps (:func:`survey.rds.merge_rds`: PI by vote among confirmed codes, PS segments
-    only from results confirming it), giving ``identities`` and ``names``; ``rds_blocks`` and
-    ``rds_block_errors`` are per sweep.
+    only from results confirming it), giving ``identities``; ``rds_blocks`` and
+    ``rds_block_errors`` are per sweep. ``names`` also draw on the identified rows of every other
+    sweep of the database (a transmitter's identity does not depend on the configuration).
     """
     ids = [int(s.id) for s in sweeps]
     margin = {int(s.id): float(s.received_margin_db) for s in sweeps}
@@ -233,6 +256,7 @@ def census_matrix(conn: sqlite3.Connection, sweeps: Sequence[SweepRow], kinds=("
             cn = np.where(fill, np.where(np.isfinite(cn_fill), cn_fill, np.nan), cn)
     started = {int(s.id): s.started_utc for s in sweeps}
     identities = tuple(_merged_identity(c.members) for c in clusters)
+    known = _identities_across_survey(conn, clusters, ids)
     user = dict(names or {})
     return StationMatrix(
         sweep_ids=np.asarray(ids, dtype=np.int64),
@@ -246,8 +270,8 @@ def census_matrix(conn: sqlite3.Connection, sweeps: Sequence[SweepRow], kinds=("
         ci_db=ci,
         detected=detected,
         stereo=stereo,
-        names=tuple(display_name(ident, name_for(user, c.freq_hz) if user else None)
-                    for ident, c in zip(identities, clusters)),
+        names=tuple(display_name(wide if wide is not None else ident, name_for(user, c.freq_hz) if user else None)
+                    for ident, wide, c in zip(identities, known, clusters)),
         rds_blocks=blocks,
         rds_block_errors=block_errors,
         identities=identities,

@@ -24,6 +24,10 @@ BANNER = (
 )
 #: Sub-folder of the bundled recordings holding the identification recording.
 IDENTIFY_FOLDER = "identify"
+#: Configuration label of the identification sweep in the demo's database: a label of its own
+#: keeps its longer dwell out of the bare sweeps' statistics, while the names it decodes name the
+#: same transmitters in every comparison (identity does not depend on the configuration).
+IDENTIFY_LABEL = "bare-identify"
 
 
 def demo_recordings_dir() -> Path:
@@ -92,7 +96,6 @@ def demo_steps(out: Path, recordings: Sequence[Path], identification: Path | Non
     """The demo's commands, in order: census, names, one comparison per preamp, noise, passbands,
     trouble, and the report last (the demo ends with where it is)."""
     db = str(out / "survey.db")
-    names_db = str(out / "identify.db")
     ident = identification if identification is not None else identification_recording()
     enr = ("--enr-db", "15")
     steps = [
@@ -100,9 +103,9 @@ def demo_steps(out: Path, recordings: Sequence[Path], identification: Path | Non
                  ("replay", *map(str, recordings), "--db", db, "--quiet")),
         DemoStep("The station census without a preamp (medians over sweeps)",
                  ("stations", "--db", db, "--config", "bare")),
-        DemoStep("A longer recording for station names (RDS)",
-                 ("replay", str(ident), "--db", names_db, "--quiet")),
-        DemoStep("Who the stations are", ("stations", "--db", names_db)),
+        DemoStep("A longer recording for station names (RDS), kept under a label of its own",
+                 ("replay", str(ident), "--db", db, "--config", IDENTIFY_LABEL, "--quiet")),
+        DemoStep("Who the stations are", ("stations", "--db", db, "--config", IDENTIFY_LABEL)),
         DemoStep("Compare preamp-staggered against bare",
                  ("compare", "--db", db, "--base", "bare", "--test", "preamp-staggered", *enr,
                   "--plot", str(out / "compare-preamp-staggered.png"))),

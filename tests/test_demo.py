@@ -41,8 +41,12 @@ def test_demo_runs_every_step_and_writes_its_outputs(tmp_path, capsys):
     assert "(common practice, no source)" not in text
     assert "SNR" not in text.split("== 5. ")[1]                    # the analyses say C/N
     # the identification recording names the strong stations (RDS PS), shown by the stations command
-    names = text.split("identify.db")[2].split("== ")[0]
+    names = text.split("--config bare-identify")[2].split("== ")[0]
     assert "VALLEYCL" in names and "HILLTOP" in names
+    # ... and the same transmitters carry those names in the comparison (102.4 and 106.1 MHz are
+    # the scene's VALLEYCL and HILLTOP: recordings_demo/quorrelby_hill.toml)
+    compared = text.split("== 5. ")[1].split("== 6. ")[0]
+    assert "VALLEYCL" in compared and "HILLTOP" in compared
     for name in ("survey.db", "report.html", "noise.png", "passband-preamp-peaked.png",
                  "passband-preamp-staggered.png", "compare-preamp-staggered.png"):
         assert (out / name).stat().st_size > 1000, name

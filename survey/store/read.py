@@ -492,3 +492,17 @@ def read_station_rows(conn: sqlite3.Connection, sweep_ids: Sequence[int]) -> lis
             ))
     out.sort(key=lambda row: (order[row.sweep_id], row.freq_hz))
     return out
+
+
+def identified_sweep_ids(conn: sqlite3.Connection) -> list[int]:
+    """Complete sweeps holding at least one station row with an RDS programme code (PI).
+
+    Empty for a database without the ``stations`` table or without its RDS columns.
+    """
+    present = {row[1] for row in conn.execute("PRAGMA table_info(stations)")}
+    if "rds_pi" not in present:
+        return []
+    return [int(r[0]) for r in conn.execute(
+        "SELECT DISTINCT t.sweep_id FROM stations t JOIN sweeps s ON s.id = t.sweep_id"
+        " WHERE t.rds_pi IS NOT NULL AND s.complete = 1 ORDER BY t.sweep_id")]
+
