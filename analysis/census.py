@@ -152,6 +152,8 @@ def display_name(identity: RdsIdentity | None, user_name: str | None = None) -> 
 
 def _merged_identity(members: Sequence[StationRow]) -> RdsIdentity:
     """One station's RDS merged over its rows: PS segments accumulate only under the confirmed PI."""
+    if not any(r.rds_pi is not None or r.rds_blocks for r in members):
+        return merge_rds(())  # nothing decoded: the empty identity, without a result per row
     return merge_rds(RdsResult.from_columns(r.rds_pi, r.rds_ps, r.rds_pty, r.rds_blocks, r.rds_block_errors)
                      for r in members)
 
@@ -227,19 +229,30 @@ def census_matrix(conn: sqlite3.Connection, sweeps: Sequence[SweepRow], kinds=("
     blocks = np.zeros(shape, dtype=np.int64)
     block_errors = np.zeros(shape, dtype=np.int64)
     row_of = {sid: i for i, sid in enumerate(ids)}
-    for j, cl in enumerate(clusters):
-        for r in cl.members:
-            blocks[row_of[r.sweep_id], j] += r.rds_blocks
-            block_errors[row_of[r.sweep_id], j] += r.rds_block_errors
-        for r in sorted(cl.members, key=lambda r: -np.nan_to_num(r.cn_db, nan=-np.inf)):
-            i = row_of[r.sweep_id]
-            if heard[i, j]:
-                continue
-            heard[i, j] = True
-            power[i, j], noise[i, j], cn[i, j] = r.power_dbfs, r.noise_dbfs, r.cn_db
-            ci[i, j] = np.nan if r.ci_db is None else r.ci_db
-            stereo[i, j] = r.stereo
-            detected[i, j] = bool(np.isfinite(r.cn_db) and r.cn_db >= margin[r.sweep_id])
+    members = [(j, r) for j, cl in enumerate(clusters) for r in cl.members]
+    if members:
+        # vectorised over every emission row: where a sweep holds two emissions of one station,
+        # the row with the higher C/N is the station's reading (NaN C/N last)
+        mi = np.fromiter((row_of[r.sweep_id] for _, r in members), dtype=np.int64, count=len(members))
+        mj = np.fromiter((j for j, _ in members), dtype=np.int64, count=len(members))
+        m_cn = np.fromiter((r.cn_db for _, r in members), dtype=np.float64, count=len(members))
+        np.add.at(blocks, (mi, mj), np.fromiter((r.rds_blocks for _, r in members), dtype=np.int64,
+                                                count=len(members)))
+        np.add.at(block_errors, (mi, mj), np.fromiter((r.rds_block_errors for _, r in members),
+                                                      dtype=np.int64, count=len(members)))
+        cell = mi * max(m, 1) + mj
+        order = np.lexsort((-np.nan_to_num(m_cn, nan=-np.inf), cell))
+        firsts = order[np.r_[True, cell[order][1:] != cell[order][:-1]]]
+        chosen = [members[k][1] for k in firsts.tolist()]
+        i, j = mi[firsts], mj[firsts]
+        heard[i, j] = True
+        power[i, j] = [r.power_dbfs for r in chosen]
+        noise[i, j] = [r.noise_dbfs for r in chosen]
+        cn[i, j] = m_cn[firsts]
+        ci[i, j] = [np.nan if r.ci_db is None else r.ci_db for r in chosen]
+        stereo[i, j] = [r.stereo for r in chosen]
+        margins = np.asarray([margin[r.sweep_id] for r in chosen], dtype=np.float64)
+        detected[i, j] = np.isfinite(m_cn[firsts]) & (m_cn[firsts] >= margins)
     chan_freqs = np.asarray([c.channel_freq_hz for c in clusters], dtype=np.int64)
     if m and (~heard).any():
         channels = read_channel_matrix(conn, ids)
