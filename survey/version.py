@@ -1,3 +1,3 @@
 """Version of the bandcensus library (capture and analysis sides); the command line re-exports it."""
 
-__version__ = "0.2.0"
+__version__ = "0.1.0"
