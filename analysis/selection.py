@@ -236,13 +236,10 @@ class Survey:
     def item_matrices(self, *groups: Sequence[SweepRow], kinds: tuple[str, ...] = ("fm",)) -> tuple:
         """Per-item matrices of several groups of sweeps from ONE read, so that every group has the
         same columns (the same stations); one matrix per group, rows in the order given."""
-        every = [s for g in groups for s in g]
+        # one canonical read (sweeps in id order) serves every grouping and order of the same sweeps
+        every = sorted({int(s.id): s for g in groups for s in g}.values(), key=lambda s: int(s.id))
         whole = self.item_matrix(every, kinds)
-        out, start = [], 0
-        for g in groups:
-            out.append(_take_rows(whole, start, start + len(g)))
-            start += len(g)
-        return tuple(out)
+        return tuple(whole.rows([int(s.id) for s in g]) for g in groups)
 
     def station_matrix(self, configuration: str, input: str = "antenna", since: str | None = None,
                        until: str | None = None, kinds: tuple[str, ...] = ("fm",)):
