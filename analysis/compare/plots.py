@@ -72,7 +72,7 @@ def plot_comparison(result: Comparison, path: str | Path, dpi: int = 120) -> Pat
     listen = result.summary["listenable"]
     for level, what, style in ((listen["mono_cn_db"], "mono", ":"), (listen["stereo_cn_db"], "stereo", "--")):
         ax1.axhline(level, color=_GREY, linestyle=style, linewidth=1,
-                    label=f"listenable {what} from {level:g} dB ({listen['source']})")
+                    label=f"listenable {what} from {level:g} dB")
     gained = np.asarray([v == "gained" for v in verdicts])
     lost = np.asarray([v == "lost" for v in verdicts])
     if gained.any():

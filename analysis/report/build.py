@@ -42,7 +42,7 @@ from survey.version import __version__
 SECTIONS = (
     ("summary", "Summary"),
     ("trouble", "Trouble found"),
-    ("channels", "Per-channel comparison"),
+    ("channels", "Per-station comparison"),
     ("passband", "Passband"),
     ("noise", "Noise figure and outside noise"),
     ("overnight", "Overnight"),
