@@ -15,7 +15,7 @@ precision of ``1/sqrt(B tau) = 1/sqrt(200e3 * 0.020) = 1.6 %`` (0.069 dB) per re
 (Dicke 1946) for an ideal filter; measured on simulated IQ, 0.094 dB (the Hann window's cost in a
 band integral; see the README, "Aligning a preamp").
 
-Stopping: :class:`StopFlag` is a :class:`threading.Event` that SIGINT/SIGTERM set (the handler
+Stopping: :class:`StopFlag` (the capture session's :class:`survey.session.StopRequest`) is a :class:`threading.Event` that SIGINT/SIGTERM set (the handler
 does nothing else); the loop checks it between hops and ends the session cleanly, storing
 nothing partial. It has the shape of the stop request of the survey schedule, so the two can
 be folded into one later.
@@ -23,16 +23,15 @@ be folded into one later.
 
 from __future__ import annotations
 
-import signal
 import threading
 import time
-from contextlib import contextmanager
 from dataclasses import dataclass, replace
-from typing import Callable, Iterator, Sequence
+from typing import Callable
 
 from survey.bandplan import custom_band, plan_hops
 from survey.errors import PlanError
 from survey.records import HopPlan, RunInfo, SweepResult, SweepSettings
+from survey.session import StopRequest
 from survey.sources.base import IQSource
 from survey.store import SurveyStore
 from survey.sweep import run_sweep
@@ -47,26 +46,8 @@ DEFAULT_FFT_SIZE = 512
 DEFAULT_SETTLE_S = 32_768 / 2.4e6
 
 
-class StopFlag(threading.Event):
-    """Set by SIGINT/SIGTERM (the handler only records the signal's name and sets the flag)."""
-
-    def __init__(self) -> None:
-        super().__init__()
-        self.signal_name: str | None = None
-
-    def _handler(self, signum, frame) -> None:
-        self.signal_name = signal.Signals(signum).name
-        self.set()
-
-    @contextmanager
-    def installed(self, signals: Sequence[int] = (signal.SIGINT, signal.SIGTERM)) -> Iterator["StopFlag"]:
-        """Install the handlers for the duration of a ``with`` block (main thread only)."""
-        previous = {s: signal.signal(s, self._handler) for s in signals}
-        try:
-            yield self
-        finally:
-            for s, h in previous.items():
-                signal.signal(s, h)
+#: The tuning loop stops as every capture command does: SIGINT/SIGTERM only set this flag.
+StopFlag = StopRequest
 
 
 def tuning_settings(sample_rate_hz: float = 2.4e6, dwell_s: float = DEFAULT_DWELL_S,
