@@ -108,3 +108,33 @@ def test_driven_by_the_sweep_engine():
     assert n > 1
     assert f"sweep 1 of 2 [bare, terminated] hop {n} of {n}" in text
     assert f"sweep 2 of 2 [bare, terminated] hop 1 of {n}" in text
+
+
+def test_report_steps_on_a_terminal_and_silence_elsewhere(tmp_path):
+    # the report's library steps (analysis.report.build.REPORT_STEPS, then the page) drive the line
+    from analysis.report.build import REPORT_STEPS
+    from bandcensus.commands._progress import step_progress
+
+    console, buffer = _terminal()
+    with step_progress(console=console, auto_refresh=False) as on_step:
+        for k, what in enumerate((*REPORT_STEPS, "figures and page")):
+            on_step(what, k, len(REPORT_STEPS) + 1)
+    text = _ESCAPES.sub("", buffer.getvalue())
+    assert "step 1 of 4: overnight series" in text and "step 4 of 4: figures and page" in text
+    for console_kw, quiet in (({"force_terminal": False}, False), ({"force_terminal": True}, True)):
+        quiet_buffer = io.StringIO()
+        with step_progress(quiet, console=Console(file=quiet_buffer, width=120, **console_kw)) as on_step:
+            on_step("passband", 2, 4)
+        assert quiet_buffer.getvalue() == ""
+
+
+def test_report_library_tells_each_step_in_order(tmp_path):
+    from analysis.report.html import write_report
+    from report_fixtures import HOSTILE_BASE, HOSTILE_TEST, hostile_db
+
+    db = hostile_db(tmp_path / "truth.db")
+    steps = []
+    write_report(db, HOSTILE_BASE, HOSTILE_TEST, tmp_path / "r.html",
+                 on_step=lambda what, k, n: steps.append((what, k, n)))
+    assert [k for _, k, _ in steps] == [0, 1, 2, 3] and {n for _, _, n in steps} == {4}
+    assert steps[0][0] == "overnight series" and steps[-1][0] == "figures and page"

@@ -22,6 +22,7 @@ from __future__ import annotations
 import time
 from dataclasses import dataclass, field
 from pathlib import Path
+from typing import Callable
 
 import numpy as np
 
@@ -356,6 +357,10 @@ def _assumptions(cmp_, pb, nr, diag) -> list[tuple[str, tuple[str, ...]]]:
     return out
 
 
+#: The steps :func:`build_report` reports through ``on_step`` (the page's figures come after).
+REPORT_STEPS = ("overnight series", "comparison, noise and diagnosis", "passband")
+
+
 def build_report(
     source: Survey | str | Path,
     base: str,
@@ -367,6 +372,7 @@ def build_report(
     cold_k: float = 290.0,
     input: str = "antenna",
     seed: int = 0,
+    on_step: Callable[[str, int, int], None] | None = None,
 ) -> Report:
     """Run every analysis the database supports for ``test`` against ``base``.
 
@@ -387,6 +393,9 @@ def build_report(
         ENR table instead of ``enr_db``; physical temperature of the termination, K.
     seed : int
         Seed of the fits.
+    on_step : callable, optional
+        Progress: called as ``on_step(what, k, n)`` before each of the :data:`REPORT_STEPS`
+        steps (the library never prints).
 
     Raises
     ------
@@ -399,6 +408,11 @@ def build_report(
         The database cannot be read.
     """
     started = time.monotonic()
+
+    def step(what: str) -> None:
+        if on_step is not None:
+            on_step(what, REPORT_STEPS.index(what), len(REPORT_STEPS))
+
     if base == test:
         raise BadParameterError(f"--base and --test are both {base!r}; give the label without and the label with the preamp")
     if target_hz is not None:
@@ -410,6 +424,7 @@ def build_report(
         all_rows = {lab: list(survey.find_sweeps(lab)) for lab in (base, test)}
         settings = read_settings(survey, all_rows[base] + all_rows[test])
         unavailable: dict[str, str] = {}
+        step("overnight series")
         try:
             series = read_overnight(survey, [r for r in all_rows[base] if r.input == input],
                                     [r for r in all_rows[test] if r.input == input])
@@ -417,6 +432,7 @@ def build_report(
             series, unavailable["overnight"] = None, _not_available(exc)
         options = NoiseOptions(enr_db=enr_db, enr_table=enr_table, cold_k=cold_k)
         cmp_ = pb = nr = diag = assessment = None
+        step("comparison, noise and diagnosis")
         try:
             assessment = assess(survey, base, test, options=options, seed=seed, input=input, target_hz=target_hz)
             cmp_, nr, diag = assessment.comparison, assessment.noise, assessment.diagnosis
@@ -436,6 +452,7 @@ def build_report(
                                     + (": " + "; ".join(why) if why else ""))
             nr = None
         target_note = "target band as given"
+        step("passband")
         curve, why = gain_curve_for(survey, base, test)
         if target_hz is None:
             target_hz, target_note = default_target_hz(all_rows[base] + all_rows[test], cmp_,

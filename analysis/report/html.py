@@ -16,11 +16,11 @@ import os
 import time
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Iterable, Mapping
+from typing import Callable, Iterable, Mapping
 
 from analysis.diagnose.core import summarise_findings
 from analysis.errors import BadParameterError
-from analysis.report.build import SECTIONS, Report, build_report
+from analysis.report.build import REPORT_STEPS, SECTIONS, Report, build_report
 from survey.text import html_label
 
 _CSS = """
@@ -401,8 +401,12 @@ def write_report(
     cold_k: float = 290.0,
     input: str = "antenna",
     seed: int = 0,
+    on_step: Callable[[str, int, int], None] | None = None,
 ) -> WrittenReport:
     """Build the report and write it to ``out_path`` (an ``.html`` file, replaced atomically).
+
+    ``on_step(what, k, n)`` is told of each step: those of
+    :func:`analysis.report.build.build_report`, then ``"figures and page"``.
 
     Raises :class:`BadParameterError` for an output name that is not ``.html``/``.htm``, and
     whatever :func:`analysis.report.build.build_report` raises.
@@ -415,8 +419,12 @@ def write_report(
     if out.is_dir():
         raise BadParameterError(f"{out} is a folder; give a file name such as report.html")
     started = time.monotonic()
+    n_steps = len(REPORT_STEPS) + 1
     report = build_report(db_path, base, test, target_hz=target_hz, enr_db=enr_db, enr_table=enr_table,
-                          cold_k=cold_k, input=input, seed=seed)
+                          cold_k=cold_k, input=input, seed=seed,
+                          on_step=None if on_step is None else (lambda what, k, n: on_step(what, k, n_steps)))
+    if on_step is not None:
+        on_step("figures and page", n_steps - 1, n_steps)
     page = render_html(report, render_figures(report))
     out.parent.mkdir(parents=True, exist_ok=True)
     tmp = out.with_name(out.name + ".part")

@@ -189,3 +189,26 @@ def sweep_progress(total_sweeps: int | None, quiet: bool = False, *, console: Co
                             auto_refresh=auto_refresh)
     with display:
         yield display
+
+
+@contextmanager
+def step_progress(quiet: bool = False, *, console: Console | None = None,
+                  auto_refresh: bool = True) -> Iterator[Callable[[str, int, int], None]]:
+    """A progress line for a job told of its steps as ``on_step(what, k, n)`` (e.g. the report:
+    ``step 2 of 4: comparison, noise and diagnosis``), on standard error, shown only on a
+    terminal and without ``quiet``; yields the callback (a no-op when not shown)."""
+    out = console if console is not None else Console(stderr=True)
+    if quiet or not out.is_terminal:
+        yield lambda what, k, n: None
+        return
+    bar = Progress(TextColumn("{task.description}"), BarColumn(), _ElapsedColumn(), _LeftColumn(),
+                   console=out, transient=True, auto_refresh=auto_refresh)
+    task = bar.add_task("", total=None)
+
+    def on_step(what: str, k: int, n: int) -> None:
+        bar.update(task, description=f"step {k + 1} of {n}: {what}", total=n, completed=k)
+        if not auto_refresh:
+            bar.refresh()
+
+    with bar:
+        yield on_step

@@ -6,6 +6,7 @@ import click
 
 from analysis.report.html import write_report
 from bandcensus.commands._common import db_option, parse_mhz_range
+from bandcensus.commands._progress import step_progress
 from bandcensus.commands._text import display_path
 from bandcensus.commands._noise_source import noise_options_from, noise_source_options
 
@@ -19,7 +20,8 @@ from bandcensus.commands._noise_source import noise_options_from, noise_source_o
 @click.option("--target", default=None,
               help="Band the preamp should cover, START-STOP in MHz (default: the band plan's edges).")
 @noise_source_options
-def command(db_path, base, test, out_path, target, enr_db, enr_table, cold_k, receiver_nf_db) -> None:
+@click.option("--quiet", is_flag=True, help="Print only errors and the final line (no progress line).")
+def command(db_path, base, test, out_path, target, enr_db, enr_table, cold_k, receiver_nf_db, quiet) -> None:
     """Write one HTML page summing up TEST against BASE: what the preamp did per station,
     its passband, its noise figure, the site's noise, any trouble found and how things moved
     overnight.
@@ -32,8 +34,9 @@ def command(db_path, base, test, out_path, target, enr_db, enr_table, cold_k, re
         raise click.UsageError("--base and --test name the same configuration; give two different labels")
     target_hz = parse_mhz_range(target, "--target") if target is not None else None
     options = noise_options_from(enr_db, enr_table, cold_k, receiver_nf_db)
-    written = write_report(db_path, base, test, out_path, target_hz=target_hz, enr_db=options.enr_db,
-                           enr_table=options.enr_table, cold_k=options.cold_k)
+    with step_progress(quiet) as on_step:
+        written = write_report(db_path, base, test, out_path, target_hz=target_hz, enr_db=options.enr_db,
+                               enr_table=options.enr_table, cold_k=options.cold_k, on_step=on_step)
     click.echo(f"Report: {display_path(written.path)}")
 
 
