@@ -50,3 +50,24 @@ def test_usage_and_one_line_errors(db, tmp_path, capsys):
     assert code == 1 and len(err) == 1
     assert err[0].startswith("Error: no complete generator sweeps of configuration 'preamp'")
     assert not (tmp_path / "c.json").exists()
+
+
+def test_stations_in_dbm_at_a_known_level(db, tmp_path, capsys):
+    # a CW tone of known level at the receiver input (the bench's own full-scale model) read back
+    # through the census with the generator calibration: P = C + N in dBm within 0.2 dB of the
+    # level given (the tone is 40 dB above the floor, so N adds under 0.001 dB); dBuV = dBm + 106.99
+    # across 50 ohm (P = V^2 / R)
+    cal = tmp_path / "cal.json"
+    assert main(["calibrate", "--db", str(db), "--config", "bare", "--level-dbm", "-75", "--out", str(cal)]) == 0
+    bench.record(db, "bare", "antenna", [(99.5e6, -90.0)], seed=9)  # at a calibration point
+    capsys.readouterr()
+    assert main(["stations", "--db", str(db), "--config", "bare", "--kind", "narrow",
+                 "--calibration", str(cal), "--json"]) == 0
+    rows = json.loads(capsys.readouterr().out)["stations"]
+    tone = [r for r in rows if abs(r["freq_hz"] - 99.5e6) < 5e3]
+    assert len(tone) == 1
+    assert tone[0]["power_dbm"] == pytest.approx(-90.0, abs=0.2)
+    assert tone[0]["power_dbuv"] == pytest.approx(tone[0]["power_dbm"] + 106.99, abs=0.01)
+    # without a calibration the same rows carry dBFS only
+    assert main(["stations", "--db", str(db), "--config", "bare", "--kind", "narrow", "--json"]) == 0
+    assert "power_dbm" not in json.loads(capsys.readouterr().out)["stations"][0]

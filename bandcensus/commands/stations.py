@@ -10,9 +10,14 @@ from rich.table import Table
 from analysis.census import kinds_from_option, station_census
 from bandcensus.commands._common import db_option, echo_json
 from bandcensus.commands._csv import write_csv
+from bandcensus.commands._levels import calibration_option, load_optional, with_levels
 from bandcensus.commands._tables import print_table
 from survey.records import INPUT_KINDS
 from survey.station_names import read_station_names
+from survey.store import list_sweeps, open_for_reading
+
+#: Absolute-level columns a calibration adds (dBm and dBuV across 50 ohm at the receiver input).
+_LEVEL_FIELDS = ["power_dbm", "power_dbuv", "noise_dbm", "noise_dbuv", "calibrated"]
 
 _FIELDS = ["configuration", "input", "freq_hz", "kind", "cn_db", "ci_db", "power_dbfs", "noise_dbfs",
            "occupied_bw_hz", "stereo", "heard_sweeps", "sweeps", "channel_freq_hz",
@@ -39,9 +44,10 @@ def _num(value, fmt: str, missing: str = "-") -> str:
               help="fm: broadcast stations; narrow: carriers, spurs, supply lines; all: both.")
 @click.option("--names", "names_path", type=click.Path(dir_okay=False),
               help="CSV of freq_mhz,name rows naming stations whose RDS gives no name.")
+@calibration_option
 @click.option("--json", "as_json", is_flag=True, help="Print machine-readable JSON.")
 @click.option("--csv", "as_csv", is_flag=True, help="Print CSV.")
-def command(db_path, configuration, input_kind, kind, names_path, as_json, as_csv):
+def command(db_path, configuration, input_kind, kind, names_path, calibration_path, as_json, as_csv):
     """Per station (transmitter, not raster channel): C/N, C/I, how often heard, stereo, bandwidth.
 
     A station is every emission within a few kHz of the same carrier across sweeps. C/N is its
@@ -59,17 +65,21 @@ def command(db_path, configuration, input_kind, kind, names_path, as_json, as_cs
     for note in notes:
         click.echo(f"Note: {note}", err=True)
     rows = [_row(s) for s in stations]
+    cal = load_optional(calibration_path)
+    if cal is not None:
+        rows = _with_absolute_levels(db_path, rows, cal, input_kind)
+    fields = _FIELDS + (_LEVEL_FIELDS if cal is not None else [])
     if as_json:
         echo_json({"stations": rows})
         return
     if as_csv:
-        write_csv(rows, _FIELDS)
+        write_csv(rows, fields)
         return
     for label in sorted({r["configuration"] for r in rows}) or [configuration or "any configuration"]:
         block = [r for r in rows if r["configuration"] == label]
         table = Table(title=f"Stations of {label} ({input_kind}), medians over sweeps", title_justify="left")
         columns = ("MHz", "kind", "C/N dB", "C/I dB", "heard", "stereo", "occupied kHz", "PI", "PS",
-                   "RDS errors") + (("name",) if names else ())
+                   "RDS errors") + (("C dBm", "N dBm") if cal is not None else ()) + (("name",) if names else ())
         for col in columns:
             table.add_column(col, justify="left" if col in ("kind", "stereo", "PI", "PS", "name") else "right")
         for r in block:
@@ -79,6 +89,23 @@ def command(db_path, configuration, input_kind, kind, names_path, as_json, as_cs
                 "yes" if r["stereo"] else "no", _num(None if r["occupied_bw_hz"] is None else r["occupied_bw_hz"] / 1e3, ".0f"),
                 r["rds_pi"] or "-", r["rds_ps"] or "-",
                 "-" if r["rds_block_error_rate"] is None else f"{100 * r['rds_block_error_rate']:.0f} %",
+                *((_num(r["power_dbm"], ".1f"), _num(r["noise_dbm"], ".1f")) if cal is not None else ()),
                 *((r["name"] or "-",) if names else ()),
             )
         print_table(table)
+
+
+def _with_absolute_levels(db_path, rows: list[dict], cal, input_kind: str) -> list[dict]:
+    """Rows with dBm/dBuV beside P and N, per configuration at its sweeps' receiver gain (a
+    calibration holds at one gain only: another gain is refused with one line)."""
+    conn = open_for_reading(db_path)
+    try:
+        gains = {label: next((s.gain_db for s in list_sweeps(conn, configuration=label, input=input_kind)), None)
+                 for label in {r["configuration"] for r in rows}}
+    finally:
+        conn.close()
+    out = []
+    for label, gain in gains.items():
+        out.extend(with_levels([r for r in rows if r["configuration"] == label], cal, gain))
+    return sorted(out, key=lambda r: (r["configuration"], r["freq_hz"]))
+
