@@ -71,3 +71,18 @@ def test_stations_in_dbm_at_a_known_level(db, tmp_path, capsys):
     # without a calibration the same rows carry dBFS only
     assert main(["stations", "--db", str(db), "--config", "bare", "--kind", "narrow", "--json"]) == 0
     assert "power_dbm" not in json.loads(capsys.readouterr().out)["stations"][0]
+
+
+def test_channels_in_dbm_beside_dbfs(db, tmp_path, capsys):
+    # the same calibration on the raster table: every P and N gains dBm and dBuV, offset by the
+    # calibration's own dBm - dBFS at that frequency (the tone's channel reads its known level)
+    cal = tmp_path / "cal.json"
+    assert main(["calibrate", "--db", str(db), "--config", "bare", "--level-dbm", "-75", "--out", str(cal)]) == 0
+    bench.record(db, "bare", "antenna", [(99.5e6, -90.0)], seed=10)  # the tone at a calibration point
+    capsys.readouterr()
+    assert main(["channels", "--db", str(db), "--config", "bare", "--calibration", str(cal), "--json"]) == 0
+    rows = json.loads(capsys.readouterr().out)["channels"]
+    assert rows and all(r["power_dbm"] - r["power_dbfs"] == pytest.approx(r["noise_dbm"] - r["noise_dbfs"])
+                        for r in rows if r["power_dbm"] is not None and r["noise_dbm"] is not None)
+    at_tone = [r for r in rows if r["freq_hz"] == 99_500_000]
+    assert at_tone and at_tone[0]["power_dbm"] == pytest.approx(-90.0, abs=0.2)

@@ -9,6 +9,7 @@ from analysis.errors import NoDataError
 from analysis.selection import Survey
 from bandcensus.commands._common import db_option, echo_json
 from bandcensus.commands._csv import write_csv
+from bandcensus.commands._levels import calibration_option, load_optional, with_levels
 from bandcensus.commands._tables import channel_rows_table, print_table
 from survey.records import INPUT_KINDS
 
@@ -22,9 +23,10 @@ _CSV_FIELDS = ["freq_hz", "power_dbfs", "noise_dbfs", "cn_db", "received", "rece
               help="Input label of the sweeps to summarise.")
 @click.option("--since", help="Only sweeps started at or after this UTC time (ISO 8601).")
 @click.option("--until", help="Only sweeps started before this UTC time (ISO 8601).")
+@calibration_option
 @click.option("--json", "as_json", is_flag=True, help="Print machine-readable JSON.")
 @click.option("--csv", "as_csv", is_flag=True, help="Print CSV.")
-def command(db_path, configuration, input_kind, since, until, as_json, as_csv):
+def command(db_path, configuration, input_kind, since, until, calibration_path, as_json, as_csv):
     """Per channel: median power P, noise N, C/N (some call it SNR) over sweeps, and how often it was detected.
 
     P is signal plus noise in the channel bandwidth (dBFS); N is the local noise floor times
@@ -48,6 +50,10 @@ def command(db_path, configuration, input_kind, since, until, as_json, as_csv):
                     continue  # no sweeps of this label in the time range
             if not blocks:
                 survey.sweeps(None, input_kind, since, until)
+        cal = load_optional(calibration_path)
+        if cal is not None:  # dBm / dBuV beside P and N, at each configuration's receiver gain
+            blocks = [(label, with_levels(rows, cal, survey.sweeps(label, input_kind, since, until)[0].gain_db))
+                      for label, rows in blocks]
     if as_json:
         if configuration is not None:
             echo_json({"configuration": configuration, "input": input_kind, "channels": blocks[0][1]})
@@ -56,6 +62,8 @@ def command(db_path, configuration, input_kind, since, until, as_json, as_csv):
                        "configurations": [{"configuration": label, "channels": rows} for label, rows in blocks]})
     elif as_csv:
         fields = _CSV_FIELDS + ([] if configuration is not None else ["configuration"])
+        if cal is not None:
+            fields += ["power_dbm", "power_dbuv", "noise_dbm", "noise_dbuv", "calibrated"]
         write_csv(({**r, "configuration": label} for label, rows in blocks for r in rows), fields)
     else:
         for label, rows in blocks:
