@@ -9,56 +9,22 @@ from __future__ import annotations
 
 import io
 import json
-import os
-import sys
 from pathlib import Path
 
 import numpy as np
 import pytest
 
 from analysis.report.build import SECTIONS
+from headless_browser import require_browser, start_browser
 from analysis.report.html import write_report
 from report_fixtures import (ENR_DB, HOSTILE_BASE, HOSTILE_DEVICE, HOSTILE_TEST, hostile_db, match_to_scene,
                              scene_carriers_hz, simulated_db)
 
 pytestmark = pytest.mark.browser
 
-CHROMIUM = Path("/usr/bin/chromium")
-CHROMEDRIVER = Path("/usr/bin/chromedriver")
-BROWSER_ARGS = ("--headless=new", "--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",
-                "--disable-background-networking", "--disable-component-update", "--disable-sync",
-                "--disable-default-apps", "--window-size=1200,1400")
-
-
-def _require_browser() -> None:
-    missing = [str(p) for p in (CHROMIUM, CHROMEDRIVER) if not p.exists()]
-    try:
-        import selenium  # noqa: F401
-    except ImportError:
-        missing.append("the selenium package (pip install '.[test]')")
-    if not missing:
-        return
-    reason = "headless browser test needs " + " and ".join(missing)
-    if os.environ.get("BANDCENSUS_REQUIRE_BROWSER") == "1":
-        pytest.fail(reason + " (BANDCENSUS_REQUIRE_BROWSER=1 makes the browser mandatory)")
-    pytest.skip(reason)
-
-
 @pytest.fixture(scope="module")
 def browser(tmp_path_factory):
-    _require_browser()
-    from selenium import webdriver
-    from selenium.webdriver.chrome.options import Options
-    from selenium.webdriver.chrome.service import Service
-
-    options = Options()
-    options.binary_location = str(CHROMIUM)
-    for arg in BROWSER_ARGS:
-        options.add_argument(arg)
-    options.add_argument(f"--user-data-dir={tmp_path_factory.mktemp('chromium-profile')}")
-    options.set_capability("goog:loggingPrefs", {"browser": "ALL", "performance": "ALL"})
-    driver = webdriver.Chrome(service=Service(executable_path=str(CHROMEDRIVER)), options=options)
-    driver.set_page_load_timeout(20)
+    driver = start_browser(tmp_path_factory.mktemp("chromium-profile"), "1200,1400")
     driver.get("about:blank")
     try:
         yield driver
@@ -157,13 +123,12 @@ def test_hostile_text_is_shown_as_text(browser, pages):
 
 
 def test_missing_browser_skips_or_fails_as_configured(monkeypatch, tmp_path):
-    monkeypatch.setattr(sys.modules[__name__], "CHROMIUM", tmp_path / "no-chromium")
     monkeypatch.delenv("BANDCENSUS_REQUIRE_BROWSER", raising=False)
     with pytest.raises(pytest.skip.Exception, match="no-chromium"):
-        _require_browser()
+        require_browser(chromium=tmp_path / "no-chromium")
     monkeypatch.setenv("BANDCENSUS_REQUIRE_BROWSER", "1")
     with pytest.raises(pytest.fail.Exception, match="BANDCENSUS_REQUIRE_BROWSER=1"):
-        _require_browser()
+        require_browser(chromium=tmp_path / "no-chromium")
 
 
 def test_print_layout_keeps_everything(browser, pages):

@@ -9,9 +9,7 @@ given the driver's path, so it never downloads anything. The page is served from
 from __future__ import annotations
 
 import json
-import os
 import urllib.request
-from pathlib import Path
 
 import numpy as np
 import pytest
@@ -21,47 +19,17 @@ from analysis.tuning.reference import reference_from_channels
 from analysis.tuning.tracker import TuneTracker
 from bandcensus.commands._common import _clean
 from bandcensus.commands._tune_page import CSP, TunePageServer
+from headless_browser import start_browser
 
 pytestmark = pytest.mark.browser
 
-CHROMIUM = Path("/usr/bin/chromium")
-CHROMEDRIVER = Path("/usr/bin/chromedriver")
-BROWSER_ARGS = ("--headless=new", "--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",
-                "--disable-background-networking", "--disable-component-update", "--disable-sync",
-                "--disable-default-apps", "--window-size=1000,900")
 F = np.arange(86.8e6, 101.2e6 + 1, 200e3)
 TARGET = (88e6, 100e6)
 
 
-def _require_browser() -> None:
-    missing = [str(p) for p in (CHROMIUM, CHROMEDRIVER) if not p.exists()]
-    try:
-        import selenium  # noqa: F401
-    except ImportError:
-        missing.append("the selenium package (pip install '.[test]')")
-    if not missing:
-        return
-    reason = "headless browser test needs " + " and ".join(missing)
-    if os.environ.get("BANDCENSUS_REQUIRE_BROWSER") == "1":
-        pytest.fail(reason + " (BANDCENSUS_REQUIRE_BROWSER=1 makes the browser mandatory)")
-    pytest.skip(reason)
-
-
 @pytest.fixture(scope="module")
 def browser(tmp_path_factory):
-    _require_browser()
-    from selenium import webdriver
-    from selenium.webdriver.chrome.options import Options
-    from selenium.webdriver.chrome.service import Service
-
-    options = Options()
-    options.binary_location = str(CHROMIUM)
-    for arg in BROWSER_ARGS:
-        options.add_argument(arg)
-    options.add_argument(f"--user-data-dir={tmp_path_factory.mktemp('chromium-profile')}")
-    options.set_capability("goog:loggingPrefs", {"browser": "ALL", "performance": "ALL"})
-    driver = webdriver.Chrome(service=Service(executable_path=str(CHROMEDRIVER)), options=options)
-    driver.set_page_load_timeout(20)
+    driver = start_browser(tmp_path_factory.mktemp("chromium-profile"), "1000,900")
     try:
         yield driver
     finally:
