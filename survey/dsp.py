@@ -4,18 +4,8 @@ The conversion and the averaged periodogram live in :mod:`survey.psd` (re-export
 accumulations that subtract nearly equal numbers (cumulative channel integrals) run in double
 precision.
 
-Full-scale convention
----------------------
-Samples are normalised so that a complex exponential of amplitude 1.0 is 0 dBFS (power 1.0):
-
-============  ======================  =====================================================
-datatype      raw storage             normalisation
-============  ======================  =====================================================
-``cu8``       uint8 I,Q interleaved   ``(b - 127.5) / 127.5`` (the receiver's own offset)
-``ci8``       int8 I,Q interleaved    ``b / 128``
-``ci16_le``   int16 little-endian     ``b / 32768``
-``cf32_le``   float32 little-endian   as stored
-============  ======================  =====================================================
+Levels are in dBFS: a complex exponential of amplitude 1.0 is 0 dBFS (the datatypes' scaling
+is tabulated in :mod:`survey.psd`).
 
 Pipeline of :func:`measure_hop`
 -------------------------------

@@ -39,8 +39,38 @@ MISSING_CHAR = "_"
 RUN_BLOCKS = 4
 
 
+class _IdentityViews:
+    """Views shared by a result and a merged identity: the block error rate, the PS (whole or
+    partial) and the PI in hex, from ``pi``, ``ps_segments`` and the block counts."""
+
+    pi: int | None
+    ps_segments: tuple[tuple[int, str], ...]
+    blocks_received: int
+    blocks_errored: int
+
+    @property
+    def block_error_rate(self) -> float | None:
+        """Failed over received block slots, None when none were received (no synchronisation)."""
+        return self.blocks_errored / self.blocks_received if self.blocks_received else None
+
+    @property
+    def ps(self) -> str | None:
+        """The whole 8-character PS name, None unless all four segments are known."""
+        return _ps_whole(dict(self.ps_segments))
+
+    @property
+    def ps_partial(self) -> str | None:
+        """PS with ``_`` for unknown characters; None when no segment is known."""
+        return _ps_partial(dict(self.ps_segments))
+
+    @property
+    def pi_hex(self) -> str | None:
+        """PI as four upper-case hex digits, or None."""
+        return None if self.pi is None else f"{self.pi:04X}"
+
+
 @dataclass(frozen=True)
-class RdsResult:
+class RdsResult(_IdentityViews):
     """What one block of IQ says about one station.
 
     Attributes
@@ -66,26 +96,6 @@ class RdsResult:
     blocks_errored: int
     pilot_locked: bool = False
 
-    @property
-    def block_error_rate(self) -> float | None:
-        """Share of block slots that failed their check, None without synchronisation."""
-        return self.blocks_errored / self.blocks_received if self.blocks_received else None
-
-    @property
-    def ps(self) -> str | None:
-        """The whole 8-character PS name, None unless all four segments are known."""
-        return _ps_whole(dict(self.ps_segments))
-
-    @property
-    def ps_partial(self) -> str | None:
-        """PS with ``_`` for unknown characters; None when no segment is known."""
-        return _ps_partial(dict(self.ps_segments))
-
-    @property
-    def pi_hex(self) -> str | None:
-        """PI as four upper-case hex digits, or None."""
-        return None if self.pi is None else f"{self.pi:04X}"
-
     @classmethod
     def from_columns(cls, rds_pi: int | None, rds_ps: str | None, rds_pty: int | None, rds_blocks: int,
                      rds_block_errors: int) -> "RdsResult":
@@ -94,7 +104,7 @@ class RdsResult:
 
 
 @dataclass(frozen=True)
-class RdsIdentity:
+class RdsIdentity(_IdentityViews):
     """A station's identity merged over many results (sweeps); see :func:`merge_rds`.
 
     ``results`` merged, ``results_with_pi`` of them confirming ``pi``, ``conflicts`` confirming
@@ -109,26 +119,6 @@ class RdsIdentity:
     conflicts: int
     blocks_received: int
     blocks_errored: int
-
-    @property
-    def block_error_rate(self) -> float | None:
-        """Summed errored over summed received blocks, None when none were received."""
-        return self.blocks_errored / self.blocks_received if self.blocks_received else None
-
-    @property
-    def ps(self) -> str | None:
-        """The whole PS name, None unless all four segments are known."""
-        return _ps_whole(dict(self.ps_segments))
-
-    @property
-    def ps_partial(self) -> str | None:
-        """PS with ``_`` for unknown characters; None when no segment is known."""
-        return _ps_partial(dict(self.ps_segments))
-
-    @property
-    def pi_hex(self) -> str | None:
-        """PI as four upper-case hex digits, or None."""
-        return None if self.pi is None else f"{self.pi:04X}"
 
 
 def _ps_whole(segments: dict[int, str]) -> str | None:
