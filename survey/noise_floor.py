@@ -28,6 +28,7 @@ import scipy.ndimage
 import scipy.special
 
 from survey.errors import PlanError
+from survey.floor_shape import FloorShape, fit_floor_shape
 from survey.units import db_to_ratio, ratio_to_db
 
 _DB_PER_NEPER = 10.0 / np.log(10.0)  # 10 log10(e): converts a natural-log variance/mean to dB
@@ -427,7 +428,9 @@ def local_noise_floor(
 
 def sweep_floors(groups: list[HopGroups], centers_hz: list[float], offsets_hz: list[np.ndarray], *,
                  smooth_hz: float = 150_000.0, tension_hz: float = 80_000.0, core_sigma: float = 4.0,
-                 skirt_sigma: float = 1.0, rounds: int = 4, support_hz: float = 300_000.0) -> list[np.ndarray]:
+                 skirt_sigma: float = 1.0, rounds: int = 4, support_hz: float = 300_000.0,
+                 shape_prior: bool = True, bridge_hz: float = 600_000.0,
+                 all_hops_agree: bool = True, shape_everywhere: bool = False) -> list[np.ndarray]:
     """One floor for the whole sweep, fitted on absolute frequency to every hop's free groups.
 
     Within the usable span the receiver's own response is flat (its anti-alias roll-off lies
@@ -462,20 +465,29 @@ def sweep_floors(groups: list[HopGroups], centers_hz: list[float], offsets_hz: l
                          *g.occupancy_args)
         free.append(~busy & g.has_data)
     fit = None
+    shape = None
     for _ in range(rounds):
         total = np.zeros(n)
         weight = np.zeros(n)
+        busy_any = np.zeros(n, dtype=bool)  # a signal seen by any hop (e.g. a carrier beyond another's edge)
+        if all_hops_agree:
+            for g, idx, f in zip(groups, index, free):
+                busy_any[idx[g.has_data & ~f]] = True
         for g, idx, f in zip(groups, index, free):
-            w = g.weight * f
+            w = g.weight * (f & ~busy_any[idx])
             np.add.at(total, idx, w * (g.y - g.bias_db))
             np.add.at(weight, idx, w)
         if not weight.any() or n < 4:
             return [local_floor_from_db(off, g, g.fit_db) for off, g in zip(offsets_hz, groups)]
         y = np.where(weight > 0, total / np.maximum(weight, 1e-300), 0.0)
         fit = _whittaker(y, weight, penalty)
+        adjust = None
+        if shape_prior:
+            fit, adjust, shape = _shaped(grid, y, weight, fit, penalty, groups, absolute, index, free, busy_any,
+                                         bridge_hz, shape)
         changed = False
         for k, (g, a) in enumerate(zip(groups, absolute)):
-            hop_fit = np.interp(a, grid, fit)
+            hop_fit = np.interp(a, grid, fit) + (0.0 if adjust is None else adjust[k])
             busy = _occupied(g.y - (hop_fit + g.bias_db), g.sigma_db, g.has_data, core_sigma, skirt_sigma,
                              *g.occupancy_args)
             now = ~busy & g.has_data
@@ -487,14 +499,60 @@ def sweep_floors(groups: list[HopGroups], centers_hz: list[float], offsets_hz: l
     hi_all = [float(a.max()) for a in absolute]
     out = []
     for k, (off, g, a) in enumerate(zip(offsets_hz, groups, absolute)):
-        sweep_db = np.interp(a, grid, fit)
+        sweep_db = np.interp(a, grid, fit) + (0.0 if adjust is None else adjust[k])
         own_free = free[k] & ~_occupied(g.y - (g.fit_db + g.bias_db), g.sigma_db, g.has_data, core_sigma,
                                         skirt_sigma, *g.occupancy_args)  # free by both fits
         beyond_lo = any(lo < lo_all[k] for j, lo in enumerate(lo_all) if j != k)
         beyond_hi = any(hi > hi_all[k] for j, hi in enumerate(hi_all) if j != k)
         supported = _supported(a, own_free, support_hz, beyond_lo, beyond_hi)
+        if adjust is not None and shape_everywhere:
+            supported &= own_free
         out.append(local_floor_from_db(off, g, np.where(supported, g.fit_db, sweep_db)))
     return out
+
+
+def _shaped(grid: np.ndarray, y: np.ndarray, weight: np.ndarray, fit: np.ndarray, penalty: np.ndarray,
+            groups: list[HopGroups], absolute: list[np.ndarray], index: list[np.ndarray],
+            free: list[np.ndarray], busy_any: np.ndarray, bridge_hz: float,
+            start: FloorShape | None, outlier_db: float = 0.5) -> tuple[np.ndarray, list | None, FloorShape | None]:
+    """The sweep fit on a tuned-preamp floor model (:mod:`survey.floor_shape`), where the free
+    floor has a gap longer than ``bridge_hz``: the model plus a smoother fitted to the residuals
+    of the free groups, so a long occupied stretch is bridged along the model's curve. A free
+    group more than ``outlier_db`` + 3 sigma above the model, or free alone between occupied
+    ones, is left out of that smoother (the skirts of two stations meeting between them; signals
+    only add power).
+
+    Returns the grid fit, per hop the model's offset from its mean flat term (dB, on the hop's
+    groups) and the model (``start``: the previous round's, to start from), or ``(fit, None,
+    None)`` unchanged where no gap is that long or the model does not fit the free groups
+    within their uncertainty.
+    """
+    step = float(grid[1] - grid[0])
+    where = np.flatnonzero(weight > 0)
+    if where.size < 2 or np.max(np.diff(where)) * step <= bridge_hz:
+        return fit, None, None
+    floor_db, sigma_db, upper_db = [], [], []
+    for g, idx, f in zip(groups, index, free):
+        use = f & ~busy_any[idx]
+        floor_db.append(np.where(use, g.y - g.bias_db, np.nan))
+        sigma_db.append(g.sigma_db / np.sqrt(np.maximum(g.weight, 1e-6)))
+        upper_db.append(np.where(g.has_data & ~f, g.y - g.bias_db, np.nan))
+    shape = fit_floor_shape(absolute, floor_db, sigma_db, upper_db, grid, fit, start=start)
+    if shape is None:
+        return fit, None, None
+    common = [shape.db(a) for a in absolute]
+    adjust = [shape.db(a, k) - c for k, (a, c) in enumerate(zip(absolute, common))]
+    total = np.zeros(grid.size)
+    resid_w = np.zeros(grid.size)
+    for g, idx, fl, sd, c, d in zip(groups, index, floor_db, sigma_db, common, adjust):
+        resid = np.where(np.isfinite(fl), fl - c - d, np.inf)
+        use = resid <= outlier_db + 3.0 * sd  # far above the model: a skirt, not floor (signals add power)
+        use[1:-1] &= use[:-2] | use[2:]  # a lone free group between signals: the saddle of two skirts
+        w = g.weight * use
+        np.add.at(total, idx, w * np.where(use, resid, 0.0))
+        np.add.at(resid_w, idx, w)
+    r = np.where(resid_w > 0, total / np.maximum(resid_w, 1e-300), 0.0)
+    return shape.db(grid) + _whittaker(r, resid_w, penalty), adjust, shape
 
 
 def _supported(centers_hz: np.ndarray, free: np.ndarray, reach_hz: float, beyond_lo: bool,
