@@ -211,7 +211,7 @@ def _worst_window(freq_hz: np.ndarray, resid_db: np.ndarray, sigma_db: np.ndarra
     if freq_hz.size == 0:
         return 0.0
     w = 1.0 / sigma_db**2
-    bins = np.floor((freq_hz - freq_hz[0]) / window_hz).astype(np.int64)
+    bins = np.floor((freq_hz - freq_hz.min()) / window_hz).astype(np.int64)
     sw = np.bincount(bins, w)
     has = sw > 0
     mean = np.bincount(bins, w * resid_db)[has] / sw[has]

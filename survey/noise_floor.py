@@ -429,17 +429,27 @@ def local_noise_floor(
 def sweep_floors(groups: list[HopGroups], centers_hz: list[float], offsets_hz: list[np.ndarray], *,
                  smooth_hz: float = 150_000.0, tension_hz: float = 80_000.0, core_sigma: float = 4.0,
                  skirt_sigma: float = 1.0, rounds: int = 4, support_hz: float = 300_000.0,
-                 shape_prior: bool = True, bridge_hz: float = 600_000.0,
-                 all_hops_agree: bool = True, shape_everywhere: bool = False) -> list[np.ndarray]:
+                 shape_prior: bool = True, bridge_hz: float = 600_000.0) -> list[np.ndarray]:
     """One floor for the whole sweep, fitted on absolute frequency to every hop's free groups.
 
     Within the usable span the receiver's own response is flat (its anti-alias roll-off lies
     beyond it), so the floor is a function of absolute frequency alone, the same in every hop.
     The hops' group means (bias removed) go on one grid of the group step; the same smoother as
     :func:`local_noise_floor` (curvature on ``smooth_hz``, slope on ``tension_hz``) is fitted to
-    the groups no hop marks as holding signal, and each hop's groups are classified again
-    against the sweep fit, ``rounds`` times at most. A hop edge crowded with stations is then
-    bridged between the free stretches of both neighbouring hops instead of extrapolated.
+    the groups no hop marks as holding signal (a station just beyond one hop's usable edge
+    raises that hop's edge groups with its skirt; the neighbouring hop sees its carrier), and
+    each hop's groups are classified again against the sweep fit, ``rounds`` times at most. A
+    hop edge crowded with stations is then bridged between the free stretches of both
+    neighbouring hops instead of extrapolated.
+
+    With ``shape_prior``, where the free floor of the whole sweep has a gap longer than
+    ``bridge_hz`` (several consecutive channels occupied: 70-90 % of a band), the sweep fit is
+    built on a tuned-preamp floor model (:mod:`survey.floor_shape`: receiver noise plus antenna
+    and preamp noise through 1-3 identical tuned circuits, one flat term per hop for the 8-bit
+    quantisation noise), fitted to the free groups with the occupied groups as upper bounds,
+    and used only when it fits the free groups within their uncertainty (otherwise the plain
+    smoother, as without it). A smoother bridging a resonance peak from its tails comes out
+    several dB low; the model follows the peak.
 
     Each hop keeps its own floor (:func:`local_noise_floor`) where that is interpolated: where
     it has a free group of its own within ``support_hz`` on each side (a side beyond which no
@@ -470,9 +480,8 @@ def sweep_floors(groups: list[HopGroups], centers_hz: list[float], offsets_hz: l
         total = np.zeros(n)
         weight = np.zeros(n)
         busy_any = np.zeros(n, dtype=bool)  # a signal seen by any hop (e.g. a carrier beyond another's edge)
-        if all_hops_agree:
-            for g, idx, f in zip(groups, index, free):
-                busy_any[idx[g.has_data & ~f]] = True
+        for g, idx, f in zip(groups, index, free):
+            busy_any[idx[g.has_data & ~f]] = True
         for g, idx, f in zip(groups, index, free):
             w = g.weight * (f & ~busy_any[idx])
             np.add.at(total, idx, w * (g.y - g.bias_db))
@@ -505,8 +514,6 @@ def sweep_floors(groups: list[HopGroups], centers_hz: list[float], offsets_hz: l
         beyond_lo = any(lo < lo_all[k] for j, lo in enumerate(lo_all) if j != k)
         beyond_hi = any(hi > hi_all[k] for j, hi in enumerate(hi_all) if j != k)
         supported = _supported(a, own_free, support_hz, beyond_lo, beyond_hi)
-        if adjust is not None and shape_everywhere:
-            supported &= own_free
         out.append(local_floor_from_db(off, g, np.where(supported, g.fit_db, sweep_db)))
     return out
 
@@ -514,7 +521,8 @@ def sweep_floors(groups: list[HopGroups], centers_hz: list[float], offsets_hz: l
 def _shaped(grid: np.ndarray, y: np.ndarray, weight: np.ndarray, fit: np.ndarray, penalty: np.ndarray,
             groups: list[HopGroups], absolute: list[np.ndarray], index: list[np.ndarray],
             free: list[np.ndarray], busy_any: np.ndarray, bridge_hz: float,
-            start: FloorShape | None, outlier_db: float = 0.5) -> tuple[np.ndarray, list | None, FloorShape | None]:
+            start: FloorShape | None, outlier_db: float = 0.5,
+            residual_smooth_hz: float = 1_000_000.0) -> tuple[np.ndarray, list | None, FloorShape | None]:
     """The sweep fit on a tuned-preamp floor model (:mod:`survey.floor_shape`), where the free
     floor has a gap longer than ``bridge_hz``: the model plus a smoother fitted to the residuals
     of the free groups, so a long occupied stretch is bridged along the model's curve. A free
@@ -552,7 +560,10 @@ def _shaped(grid: np.ndarray, y: np.ndarray, weight: np.ndarray, fit: np.ndarray
         np.add.at(total, idx, w * np.where(use, resid, 0.0))
         np.add.at(resid_w, idx, w)
     r = np.where(resid_w > 0, total / np.maximum(resid_w, 1e-300), 0.0)
-    return shape.db(grid) + _whittaker(r, resid_w, penalty), adjust, shape
+    n = grid.size
+    curve = _stiffness(residual_smooth_hz, step)
+    stiff = _penalty_bands(np.full(n - 2, curve), np.full(n - 1, curve * (step / residual_smooth_hz) ** 2))
+    return shape.db(grid) + _whittaker(r, resid_w, stiff), adjust, shape
 
 
 def _supported(centers_hz: np.ndarray, free: np.ndarray, reach_hz: float, beyond_lo: bool,
