@@ -11,16 +11,18 @@ falls as a power of frequency over the band (ITU-R P.372 [3]_: ``Fa = c - d log1
 
     N(f) = 10^(flat/10) + 10^(peak/10) (f/f0)^p |H(f)|^(2n)
 
-with six parameters (``flat``, ``peak``, ``f0``, ``Q``, ``p`` and the integer ``n``) describes a
-floor over several MHz where a smoother, bridging a peak from its tails, comes out low.
-Staggered circuits are not in the model; :func:`fit_floor_shape` then finds no acceptable fit
-and says so (``None``), and the caller keeps its smoother.
+with a few parameters (``peak``, ``f0``, ``Q``, ``p``, the integer ``n``, and ``flat`` once per
+hop: an 8-bit receiver adds quantisation noise whose level, like the converter's effective gain,
+depends on each hop's total power) describes a floor over several MHz where a smoother, bridging
+a peak from its tails, comes out low. Staggered circuits are not in the model;
+:func:`fit_floor_shape` then finds no acceptable fit and says so (``None``), and the caller keeps
+its smoother.
 
 References
 ----------
 .. [1] H. T. Friis, "Noise figures of radio receivers," Proc. IRE, vol. 32, no. 7,
    pp. 419-422, 1944.
-.. [2] F. E. Terman, Radio Engineers' Handbook, McGraw-Hill, 1943, sec. 3 (universal resonance
+.. [2] F. E. Terman, Radio Engineers' Handbook, McGraw-Hill, 1943 (universal resonance
    curve of a single tuned circuit).
 .. [3] ITU-R Recommendation P.372, "Radio noise" (external noise figure ``Fa`` versus
    frequency for man-made and galactic noise).

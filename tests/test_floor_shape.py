@@ -1,7 +1,7 @@
 """The tuned-preamp floor model of survey/floor_shape.py against the textbook resonance curve.
 
 Universal resonance curve of a single tuned circuit (F. E. Terman, Radio Engineers' Handbook,
-1943, sec. 3): ``|H|^2 = 1 / (1 + Q^2 (f/f0 - f0/f)^2)``, unity at ``f0`` and one half where
+1943): ``|H|^2 = 1 / (1 + Q^2 (f/f0 - f0/f)^2)``, unity at ``f0`` and one half where
 ``Q (f/f0 - f0/f) = +-1``, i.e. at ``f = f0 (sqrt(1 + 1/(4 Q^2)) +- 1/(2 Q))``: the -3 dB
 points lie ``f0 / Q`` apart (exactly, not only for large Q).
 """
