@@ -19,10 +19,10 @@ from analysis.terms import check_input, median_iqr
 from survey.errors import StoreError
 from survey.rds import RdsIdentity, RdsResult, merge_rds
 from survey.station_names import name_for
-from survey.store import (StationRow, SweepRow, count_complete_sweeps, identified_sweep_ids, list_sweeps,
-                          open_for_reading,
-                          read_channel_matrix, read_station_rows,
-                          upgrade_database)
+from analysis.station_clusters import Clusters, cluster_columns
+from survey.store import (ChannelMatrix, StationColumns, SweepRow, count_complete_sweeps, identified_sweep_ids,
+                          list_sweeps, open_for_reading, read_channel_matrix, read_station_columns,
+                          read_station_rows, upgrade_database)
 from survey.units import db_to_ratio, ratio_to_db
 
 #: Narrow emissions of different sweeps within this distance (Hz) of each other are one line.
@@ -101,40 +101,6 @@ class StationMatrix:
         )
 
 
-@dataclass(frozen=True)
-class _Cluster:
-    freq_hz: float
-    kind: str
-    channel_freq_hz: int
-    members: tuple[StationRow, ...]
-
-
-def _cluster(rows: list[StationRow]) -> list[_Cluster]:
-    """Clusters of emissions: single linkage along frequency, FM and narrow emissions apart.
-
-    A gap larger than :data:`SAME_FM_STATION_HZ` (FM) or :data:`SAME_STATION_HZ` (narrow) splits.
-    """
-    out: list[_Cluster] = []
-    for kind, tolerance in (("fm", SAME_FM_STATION_HZ), ("narrow", SAME_STATION_HZ)):
-        out.extend(_cluster_one_kind([r for r in rows if r.kind == kind], tolerance))
-    return sorted(out, key=lambda c: c.freq_hz)
-
-
-def _cluster_one_kind(rows: list[StationRow], tolerance_hz: float) -> list[_Cluster]:
-    if not rows:
-        return []
-    ordered = sorted(rows, key=lambda r: r.freq_hz)
-    freqs = np.asarray([r.freq_hz for r in ordered])
-    breaks = np.flatnonzero(np.diff(freqs) > tolerance_hz) + 1
-    out = []
-    for part in np.split(np.arange(len(ordered)), breaks):
-        members = tuple(ordered[i] for i in part.tolist())
-        kind = members[0].kind
-        chans = [m.channel_freq_hz for m in members]
-        out.append(_Cluster(float(np.median(freqs[part])), kind, max(set(chans), key=chans.count), members))
-    return out
-
-
 def display_name(identity: RdsIdentity | None, user_name: str | None = None) -> str | None:
     """A station's name for display: ``"PS (PI XXXX)"`` when RDS gave the whole PS name.
 
@@ -150,15 +116,34 @@ def display_name(identity: RdsIdentity | None, user_name: str | None = None) -> 
     return f"PI {pi}" if pi is not None else None
 
 
-def _merged_identity(members: Sequence[StationRow]) -> RdsIdentity:
-    """One station's RDS merged over its rows: PS segments accumulate only under the confirmed PI."""
-    if not any(r.rds_pi is not None or r.rds_blocks for r in members):
-        return merge_rds(())  # nothing decoded: the empty identity, without a result per row
-    return merge_rds(RdsResult.from_columns(r.rds_pi, r.rds_ps, r.rds_pty, r.rds_blocks, r.rds_block_errors)
-                     for r in members)
+#: The identity of a station of which nothing was decoded (the same for every such station).
+_NO_IDENTITY = merge_rds(())
 
 
-def _identities_across_survey(conn: sqlite3.Connection, clusters: Sequence[_Cluster],
+def _results(cols: StationColumns, index) -> list[RdsResult]:
+    """The RDS result of each emission ``index`` of ``cols`` (in that order)."""
+    return [RdsResult.from_columns(None if pi < 0 else pi, ps, None if pty < 0 else pty, blocks, errors)
+            for pi, ps, pty, blocks, errors in zip(cols.rds_pi[index].tolist(), cols.rds_ps[index].tolist(),
+                                                   cols.rds_pty[index].tolist(), cols.rds_blocks[index].tolist(),
+                                                   cols.rds_block_errors[index].tolist())]
+
+
+def _with_rds(cols: StationColumns) -> np.ndarray:
+    """Emissions carrying a confirmed PI or RDS block counts (what an identity is merged from)."""
+    return (cols.rds_pi >= 0) | (cols.rds_blocks != 0)
+
+
+def _identities(cols: StationColumns, clusters: Clusters) -> list[RdsIdentity]:
+    """Each station's RDS merged over its emissions: PS segments accumulate only under the
+    confirmed PI; a station of which nothing was decoded gets the empty identity."""
+    decoded = np.bincount(clusters.member_station[_with_rds(cols)[clusters.members]], minlength=clusters.n)
+    out = [_NO_IDENTITY] * clusters.n
+    for j in np.flatnonzero(decoded).tolist():
+        out[j] = merge_rds(_results(cols, clusters.members[clusters.bounds[j]:clusters.bounds[j + 1]]))
+    return out
+
+
+def _identities_across_survey(conn: sqlite3.Connection, cols: StationColumns, clusters: Clusters,
                               sweep_ids: Sequence[int]) -> list[RdsIdentity | None]:
     """Each FM station's RDS merged with the identified rows of every other sweep of the database.
 
@@ -169,18 +154,31 @@ def _identities_across_survey(conn: sqlite3.Connection, clusters: Sequence[_Clus
     """
     mine = set(int(i) for i in sweep_ids)
     other = [i for i in identified_sweep_ids(conn) if i not in mine]
-    if not other or not clusters:
-        return [None] * len(clusters)
-    rows = [r for r in read_station_rows(conn, other) if r.kind == "fm" and r.rds_pi is not None]
+    if not other or not clusters.n:
+        return [None] * clusters.n
+    known = read_station_columns(conn, other)
+    known = known.take(known.is_kind("fm") & (known.rds_pi >= 0))
     out: list[RdsIdentity | None] = []
-    for c in clusters:
-        near = [r for r in rows if c.kind == "fm" and abs(r.freq_hz - c.freq_hz) <= SAME_FM_STATION_HZ]
-        out.append(_merged_identity([*c.members, *near]) if near else None)
+    for j, (f, kind) in enumerate(zip(clusters.freq_hz.tolist(), clusters.kinds)):
+        near = np.flatnonzero(np.abs(known.freq_hz - f) <= SAME_FM_STATION_HZ) if kind == "fm" else []
+        if len(near):
+            own = clusters.members[clusters.bounds[j]:clusters.bounds[j + 1]]
+            out.append(merge_rds(_results(cols, own) + _results(known, near)))
+        else:
+            out.append(None)
     return out
 
 
+def cluster_stations(cols: StationColumns) -> Clusters:
+    """The census's stations among the emissions ``cols``: single linkage along frequency, FM
+    within :data:`SAME_FM_STATION_HZ`, narrow within :data:`SAME_STATION_HZ`
+    (:func:`analysis.station_clusters.cluster_columns`)."""
+    return cluster_columns(cols, {"fm": SAME_FM_STATION_HZ, "narrow": SAME_STATION_HZ})
+
+
 def census_matrix(conn: sqlite3.Connection, sweeps: Sequence[SweepRow], kinds=("fm",),
-                  names: Mapping[int, str] | None = None) -> StationMatrix:
+                  names: Mapping[int, str] | None = None,
+                  channels: ChannelMatrix | None = None) -> StationMatrix:
     """Stations heard in any of ``sweeps``, one column each, one row per sweep (order kept).
 
     Emissions (the ``stations`` table) of all the given sweeps are grouped into stations: an
@@ -195,7 +193,7 @@ def census_matrix(conn: sqlite3.Connection, sweeps: Sequence[SweepRow], kinds=("
     Parameters
     ----------
     conn : sqlite3.Connection
-        An open survey database of schema 2 (:func:`survey.store.open_for_reading`).
+        An open survey database of schema 2 or later (:func:`survey.store.open_for_reading`).
     sweeps : sequence of SweepRow
         Sweeps to include, e.g. base and test sweeps of a comparison; split the result with
         :meth:`StationMatrix.rows`.
@@ -205,6 +203,9 @@ def census_matrix(conn: sqlite3.Connection, sweeps: Sequence[SweepRow], kinds=("
         User-supplied names ``{freq_hz: name}`` (:func:`survey.station_names.read_station_names`),
         matched within 50 kHz; they name stations whose RDS gives no whole PS
         (:func:`display_name`).
+    channels : ChannelMatrix, optional
+        The raster channels of the same ``sweeps`` (rows in the same order) when already read
+        (:func:`survey.store.read_sweep_matrix`); read here otherwise.
 
     Identity: each station's RDS results (one per stored emission) are merged over all the
     given sweeps (:func:`survey.rds.merge_rds`: PI by vote among confirmed codes, PS segments
@@ -214,10 +215,10 @@ def census_matrix(conn: sqlite3.Connection, sweeps: Sequence[SweepRow], kinds=("
     """
     ids = [int(s.id) for s in sweeps]
     margin = {int(s.id): float(s.received_margin_db) for s in sweeps}
-    keep = set(kinds)
-    rows = [r for r in read_station_rows(conn, ids) if r.kind in keep]
-    clusters = _cluster(rows)
-    n, m = len(ids), len(clusters)
+    cols = read_station_columns(conn, ids)
+    cols = cols.take(cols.is_kind(*kinds))
+    clusters = cluster_stations(cols)
+    n, m = len(ids), clusters.n
     shape = (n, m)
     power = np.full(shape, np.nan)
     noise = np.full(shape, np.nan)
@@ -228,34 +229,37 @@ def census_matrix(conn: sqlite3.Connection, sweeps: Sequence[SweepRow], kinds=("
     heard = np.zeros(shape, dtype=bool)
     blocks = np.zeros(shape, dtype=np.int64)
     block_errors = np.zeros(shape, dtype=np.int64)
-    row_of = {sid: i for i, sid in enumerate(ids)}
-    members = [(j, r) for j, cl in enumerate(clusters) for r in cl.members]
-    if members:
-        # vectorised over every emission row: where a sweep holds two emissions of one station,
-        # the row with the higher C/N is the station's reading (NaN C/N last)
-        mi = np.fromiter((row_of[r.sweep_id] for _, r in members), dtype=np.int64, count=len(members))
-        mj = np.fromiter((j for j, _ in members), dtype=np.int64, count=len(members))
-        m_cn = np.fromiter((r.cn_db for _, r in members), dtype=np.float64, count=len(members))
-        np.add.at(blocks, (mi, mj), np.fromiter((r.rds_blocks for _, r in members), dtype=np.int64,
-                                                count=len(members)))
-        np.add.at(block_errors, (mi, mj), np.fromiter((r.rds_block_errors for _, r in members),
-                                                      dtype=np.int64, count=len(members)))
+    members = clusters.members
+    if members.size:
+        # every emission row at once: where a sweep holds two emissions of one station, the row
+        # with the higher C/N is the station's reading (NaN C/N last; ties: the first member)
+        row_of = {sid: i for i, sid in enumerate(ids)}
+        sid = cols.sweep_id[members]
+        # rows come grouped by sweep: look each sweep up once
+        change = np.flatnonzero(np.r_[True, sid[1:] != sid[:-1]])
+        runs = np.diff(np.r_[change, sid.size])
+        mi = np.repeat(np.fromiter((row_of[s] for s in sid[change].tolist()), np.int64, count=change.size), runs)
+        mj = clusters.member_station
+        m_cn = cols.cn_db[members]
+        np.add.at(blocks, (mi, mj), cols.rds_blocks[members])
+        np.add.at(block_errors, (mi, mj), cols.rds_block_errors[members])
         cell = mi * max(m, 1) + mj
         order = np.lexsort((-np.nan_to_num(m_cn, nan=-np.inf), cell))
         firsts = order[np.r_[True, cell[order][1:] != cell[order][:-1]]]
-        chosen = [members[k][1] for k in firsts.tolist()]
+        chosen = members[firsts]
         i, j = mi[firsts], mj[firsts]
         heard[i, j] = True
-        power[i, j] = [r.power_dbfs for r in chosen]
-        noise[i, j] = [r.noise_dbfs for r in chosen]
+        power[i, j] = cols.power_dbfs[chosen]
+        noise[i, j] = cols.noise_dbfs[chosen]
         cn[i, j] = m_cn[firsts]
-        ci[i, j] = [np.nan if r.ci_db is None else r.ci_db for r in chosen]
-        stereo[i, j] = [r.stereo for r in chosen]
-        margins = np.asarray([margin[r.sweep_id] for r in chosen], dtype=np.float64)
+        ci[i, j] = cols.ci_db[chosen]
+        stereo[i, j] = cols.stereo[chosen]
+        margins = np.asarray([margin[s] for s in ids], dtype=np.float64)[i]
         detected[i, j] = np.isfinite(m_cn[firsts]) & (m_cn[firsts] >= margins)
-    chan_freqs = np.asarray([c.channel_freq_hz for c in clusters], dtype=np.int64)
+    chan_freqs = clusters.channel_freq_hz.astype(np.int64)
     if m and (~heard).any():
-        channels = read_channel_matrix(conn, ids)
+        if channels is None or [int(s) for s in channels.sweep_ids.tolist()] != ids:
+            channels = read_channel_matrix(conn, ids)
         axis = channels.freqs_hz
         if axis.size:
             col = np.clip(np.searchsorted(axis, chan_freqs), 0, axis.size - 1)
@@ -268,14 +272,14 @@ def census_matrix(conn: sqlite3.Connection, sweeps: Sequence[SweepRow], kinds=("
                 cn_fill = np.asarray(ratio_to_db(np.asarray(db_to_ratio(p_fill - n_fill)) - 1.0))
             cn = np.where(fill, np.where(np.isfinite(cn_fill), cn_fill, np.nan), cn)
     started = {int(s.id): s.started_utc for s in sweeps}
-    identities = tuple(_merged_identity(c.members) for c in clusters)
-    known = _identities_across_survey(conn, clusters, ids)
+    identities = tuple(_identities(cols, clusters))
+    known = _identities_across_survey(conn, cols, clusters, ids)
     user = dict(names or {})
     return StationMatrix(
         sweep_ids=np.asarray(ids, dtype=np.int64),
         started_utc=tuple(started[i] for i in ids),
-        freqs_hz=np.asarray([c.freq_hz for c in clusters], dtype=np.float64),
-        kinds=tuple(c.kind for c in clusters),
+        freqs_hz=np.asarray(clusters.freq_hz, dtype=np.float64),
+        kinds=clusters.kinds,
         channel_freqs_hz=chan_freqs,
         power_dbfs=power,
         noise_dbfs=noise,
@@ -283,8 +287,8 @@ def census_matrix(conn: sqlite3.Connection, sweeps: Sequence[SweepRow], kinds=("
         ci_db=ci,
         detected=detected,
         stereo=stereo,
-        names=tuple(display_name(wide if wide is not None else ident, name_for(user, c.freq_hz) if user else None)
-                    for ident, wide, c in zip(identities, known, clusters)),
+        names=tuple(display_name(wide if wide is not None else ident, name_for(user, f) if user else None)
+                    for ident, wide, f in zip(identities, known, clusters.freq_hz.tolist())),
         rds_blocks=blocks,
         rds_block_errors=block_errors,
         identities=identities,
@@ -345,11 +349,12 @@ def summarise_stations(conn: sqlite3.Connection, sweeps: Sequence[SweepRow],
         return []
     configuration, input_label = next(iter(labels))
     matrix = census_matrix(conn, sweeps, kinds=kinds, names=names)
-    rows = read_station_rows(conn, [s.id for s in sweeps])
-    obw: dict[int, list[float]] = {}
+    cols = read_station_columns(conn, [s.id for s in sweeps])
+    obw: dict[int, np.ndarray] = {}
     for j, (f, kind) in enumerate(zip(matrix.freqs_hz.tolist(), matrix.kinds)):
         reach = SAME_FM_STATION_HZ if kind == "fm" else SAME_STATION_HZ
-        obw[j] = [r.occupied_bw_hz for r in rows if abs(r.freq_hz - f) <= reach and r.kind == kind]
+        near = cols.is_kind(kind) & (np.abs(cols.freq_hz - f) <= reach)
+        obw[j] = cols.occupied_bw_hz[near]
     censored = np.where(matrix.detected, matrix.cn_db, -np.inf)
     censored = np.where(np.isfinite(matrix.power_dbfs) | matrix.detected, censored, np.nan)
     cn_med, _ = median_iqr(censored)
@@ -366,7 +371,7 @@ def summarise_stations(conn: sqlite3.Connection, sweeps: Sequence[SweepRow],
             ci_db=float(np.median(ci_vals)) if ci_vals.size else None,
             power_dbfs=_finite_or_none(np.median(matrix.power_dbfs[det, j])) if det.any() else None,
             noise_dbfs=_finite_or_none(np.median(matrix.noise_dbfs[det, j])) if det.any() else None,
-            occupied_bw_hz=float(np.median(obw[j])) if obw[j] else None,
+            occupied_bw_hz=float(np.median(obw[j])) if obw[j].size else None,
             stereo=bool(det.any() and matrix.stereo[det, j].mean() >= 0.5),
             heard_sweeps=int(det.sum()),
             sweeps=int(matrix.sweep_ids.size),

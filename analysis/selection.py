@@ -61,7 +61,8 @@ def _matrix_for(survey: "Survey", sweeps: Sequence[SweepRow], kinds: tuple[str, 
     ``power_dbfs``, ``noise_dbfs``, ``cn_db``, ``detected`` and ``rows(...)``).
     """
     survey.require_census()
-    return census_matrix(survey.connection, sweeps, kinds=kinds)
+    # the raster channels fill the sweeps that did not find a station; read once, shared
+    return census_matrix(survey.connection, sweeps, kinds=kinds, channels=survey.channel_matrix(sweeps))
 
 
 def _take_rows(matrix, start: int, stop: int):

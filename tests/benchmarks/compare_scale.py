@@ -4,8 +4,9 @@ Builds a survey database under /tmp (simulated: invented stations, a sweep every
 European FM band, 87.5-108.0 MHz on the 100 kHz raster = 206 channels, labels ``bare`` and
 ``preamp-a`` alternating; 48 544 sweeps = 10.0 million channel readings for ``--rows 10e6``)
 with the schema of :mod:`survey.store`. The analyses read the columnar ``channel_vectors``
-copy, which holds every reading, and the census's ``stations`` table (one row per occupied
-channel a sweep detected); the per-row ``channels`` table is written for the first 20 sweeps
+copy, which holds every reading, and the census's station rows (one per occupied channel a
+sweep detected), written both to ``stations`` and, packed by :func:`survey.store.station_records`
+as the store packs them, to the columnar ``station_vectors`` the census reads; the per-row ``channels`` table is written for the first 20 sweeps
 only, to keep the build short (build time is not the benchmark).
 
 Each stage runs in a fresh child process so that its peak resident memory
@@ -48,7 +49,7 @@ def channel_axis_hz() -> np.ndarray:
 
 def build(path: Path, n_sweeps: int, seed: int = 0) -> dict:
     """Write the benchmark database; returns counts and the build time."""
-    from survey.store import SurveyStore
+    from survey.store import SurveyStore, station_records
 
     t0 = time.perf_counter()
     with SurveyStore(path) as store:  # schema and migrations exactly as the tool makes them
@@ -118,6 +119,16 @@ def build(path: Path, n_sweeps: int, seed: int = 0) -> dict:
             zip((k[det_i] + 1).tolist(), (freqs[det_j] + 1300.0).tolist(), (det_j // 21).tolist(),
                 power32[det_i, det_j].astype(float).tolist(), noise32[det_i, det_j].astype(float).tolist(),
                 cn[det_i, det_j].astype(float).tolist(), freqs[det_j].tolist()),
+        )
+        # and their columnar copy, packed by the store's own function (one station_vectors row per sweep)
+        per_sweep = np.cumsum(np.bincount(det_i, minlength=n))[:-1]
+        conn.executemany(
+            "INSERT INTO station_vectors (sweep_id, n_stations, n_rds, kinds, records) VALUES (?,?,0,'fm',?)",
+            [(int(s) + 1, int(j.size), station_records(
+                freqs[j] + 1300.0, power32[i, j].astype(float), noise32[i, j].astype(float), cn[i, j].astype(float),
+                np.full(j.size, np.nan), np.full(j.size, 150000.0), freqs[j], j // 21, np.zeros(j.size, np.uint8),
+                np.zeros(j.size, bool), np.ones(j.size, bool)))
+             for i, (s, j) in enumerate(zip(k.tolist(), np.split(det_j, per_sweep)))],
         )
         station_rows += int(det_i.size)
         rows_written += n * m
