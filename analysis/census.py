@@ -19,7 +19,7 @@ from analysis.terms import check_input, median_iqr
 from survey.errors import StoreError
 from survey.rds import RdsIdentity, RdsResult, merge_rds
 from survey.station_names import name_for
-from analysis.station_clusters import Clusters, cluster_columns
+from analysis.station_clusters import Clusters, cluster_columns, station_members
 from survey.store import (ChannelMatrix, StationColumns, SweepRow, count_complete_sweeps, identified_sweep_ids,
                           list_sweeps, open_for_reading, read_channel_matrix, read_station_columns,
                           read_station_rows, upgrade_database)
@@ -136,10 +136,13 @@ def _with_rds(cols: StationColumns) -> np.ndarray:
 def _identities(cols: StationColumns, clusters: Clusters) -> list[RdsIdentity]:
     """Each station's RDS merged over its emissions: PS segments accumulate only under the
     confirmed PI; a station of which nothing was decoded gets the empty identity."""
-    decoded = np.bincount(clusters.member_station[_with_rds(cols)[clusters.members]], minlength=clusters.n)
     out = [_NO_IDENTITY] * clusters.n
-    for j in np.flatnonzero(decoded).tolist():
-        out[j] = merge_rds(_results(cols, clusters.members[clusters.bounds[j]:clusters.bounds[j + 1]]))
+    if not clusters.n:
+        return out
+    with_rds = _with_rds(cols) & (clusters.station >= 0)
+    decoded = np.flatnonzero(np.bincount(clusters.station[with_rds], minlength=clusters.n))
+    for j, members in station_members(clusters, cols.freq_hz, decoded.tolist()).items():
+        out[j] = merge_rds(_results(cols, members))
     return out
 
 
@@ -158,15 +161,41 @@ def _identities_across_survey(conn: sqlite3.Connection, cols: StationColumns, cl
         return [None] * clusters.n
     known = read_station_columns(conn, other)
     known = known.take(known.is_kind("fm") & (known.rds_pi >= 0))
-    out: list[RdsIdentity | None] = []
-    for j, (f, kind) in enumerate(zip(clusters.freq_hz.tolist(), clusters.kinds)):
-        near = np.flatnonzero(np.abs(known.freq_hz - f) <= SAME_FM_STATION_HZ) if kind == "fm" else []
-        if len(near):
-            own = clusters.members[clusters.bounds[j]:clusters.bounds[j + 1]]
-            out.append(merge_rds(_results(cols, own) + _results(known, near)))
-        else:
-            out.append(None)
-    return out
+    near = {j: np.flatnonzero(np.abs(known.freq_hz - f) <= SAME_FM_STATION_HZ)
+            for j, (f, kind) in enumerate(zip(clusters.freq_hz.tolist(), clusters.kinds)) if kind == "fm"}
+    near = {j: rows for j, rows in near.items() if rows.size}
+    own = station_members(clusters, cols.freq_hz, list(near))
+    return [merge_rds(_results(cols, own[j]) + _results(known, near[j])) if j in near else None
+            for j in range(clusters.n)]
+
+
+def _sweep_rows(sweep_id: np.ndarray, ids: Sequence[int]) -> np.ndarray:
+    """Row of the census matrix (position in ``ids``) of each emission; emissions come grouped by sweep."""
+    row_of = {sid: i for i, sid in enumerate(ids)}
+    change = np.flatnonzero(np.r_[True, sweep_id[1:] != sweep_id[:-1]]) if sweep_id.size else np.zeros(0, np.int64)
+    runs = np.diff(np.r_[change, sweep_id.size])
+    first = np.fromiter((row_of[s] for s in sweep_id[change].tolist()), np.int64, count=change.size)
+    return np.repeat(first, runs)
+
+
+def _strongest_per_cell(cell: np.ndarray, cn_db: np.ndarray, freq_hz: np.ndarray, n_cells: int) -> np.ndarray:
+    """Index of the emission read for each occupied cell (``cell`` -1: none): the highest C/N
+    (NaN last); among equal C/N the first member (lowest carrier, then the first given).
+    One index per cell, in no particular order.
+
+    A cell (sweep, station) almost always holds one emission; only the cells holding several are
+    sorted.
+    """
+    valid = cell >= 0
+    count = np.bincount(cell[valid] if not valid.all() else cell, minlength=n_cells)
+    single = valid & (count[np.where(valid, cell, 0)] == 1)
+    shared = np.flatnonzero(valid & ~single)
+    if not shared.size:
+        return np.flatnonzero(single)
+    sub = cell[shared]
+    order = np.lexsort((shared, freq_hz[shared], -np.nan_to_num(cn_db[shared], nan=-np.inf), sub))
+    best = shared[order[np.r_[True, sub[order][1:] != sub[order][:-1]]]]
+    return np.concatenate([np.flatnonzero(single), best])
 
 
 def cluster_stations(cols: StationColumns) -> Clusters:
@@ -215,8 +244,10 @@ def census_matrix(conn: sqlite3.Connection, sweeps: Sequence[SweepRow], kinds=("
     """
     ids = [int(s.id) for s in sweeps]
     margin = {int(s.id): float(s.received_margin_db) for s in sweeps}
-    cols = read_station_columns(conn, ids)
-    cols = cols.take(cols.is_kind(*kinds))
+    cols = read_station_columns(conn, ids, detail=False)
+    wanted = cols.is_kind(*kinds)
+    if not wanted.all():
+        cols = cols.take(wanted)
     clusters = cluster_stations(cols)
     n, m = len(ids), clusters.n
     shape = (n, m)
@@ -229,33 +260,33 @@ def census_matrix(conn: sqlite3.Connection, sweeps: Sequence[SweepRow], kinds=("
     heard = np.zeros(shape, dtype=bool)
     blocks = np.zeros(shape, dtype=np.int64)
     block_errors = np.zeros(shape, dtype=np.int64)
-    members = clusters.members
-    if members.size:
-        # every emission row at once: where a sweep holds two emissions of one station, the row
-        # with the higher C/N is the station's reading (NaN C/N last; ties: the first member)
-        row_of = {sid: i for i, sid in enumerate(ids)}
-        sid = cols.sweep_id[members]
-        # rows come grouped by sweep: look each sweep up once
-        change = np.flatnonzero(np.r_[True, sid[1:] != sid[:-1]])
-        runs = np.diff(np.r_[change, sid.size])
-        mi = np.repeat(np.fromiter((row_of[s] for s in sid[change].tolist()), np.int64, count=change.size), runs)
-        mj = clusters.member_station
-        m_cn = cols.cn_db[members]
-        np.add.at(blocks, (mi, mj), cols.rds_blocks[members])
-        np.add.at(block_errors, (mi, mj), cols.rds_block_errors[members])
-        cell = mi * max(m, 1) + mj
-        order = np.lexsort((-np.nan_to_num(m_cn, nan=-np.inf), cell))
-        firsts = order[np.r_[True, cell[order][1:] != cell[order][:-1]]]
-        chosen = members[firsts]
-        i, j = mi[firsts], mj[firsts]
-        heard[i, j] = True
-        power[i, j] = cols.power_dbfs[chosen]
-        noise[i, j] = cols.noise_dbfs[chosen]
-        cn[i, j] = m_cn[firsts]
-        ci[i, j] = cols.ci_db[chosen]
-        stereo[i, j] = cols.stereo[chosen]
-        margins = np.asarray([margin[s] for s in ids], dtype=np.float64)[i]
-        detected[i, j] = np.isfinite(m_cn[firsts]) & (m_cn[firsts] >= margins)
+    if m:
+        # every emission at once: where a sweep holds two emissions of one station, the one
+        # with the higher C/N is the station's reading (NaN C/N last; equal C/N: the first member)
+        grouped = clusters.station >= 0
+        every = bool(grouped.all())
+        mi = _sweep_rows(cols.sweep_id, ids)
+        cell = mi * m + clusters.station              # flat index into the (n, m) matrices
+        if not every:
+            cell = np.where(grouped, cell, -1)
+        if cols.rds_blocks.any() or cols.rds_block_errors.any():
+            take = grouped if not every else slice(None)
+            blocks += np.bincount(cell[take], cols.rds_blocks[take], minlength=n * m).reshape(shape).astype(np.int64)
+            block_errors += np.bincount(cell[take], cols.rds_block_errors[take],
+                                        minlength=n * m).reshape(shape).astype(np.int64)
+        chosen = _strongest_per_cell(cell, cols.cn_db, cols.freq_hz, n * m)
+        flat = cell[chosen]
+        del cell
+        heard.ravel()[flat] = True
+        power.ravel()[flat] = cols.power_dbfs[chosen]
+        noise.ravel()[flat] = cols.noise_dbfs[chosen]
+        ci.ravel()[flat] = cols.ci_db[chosen]
+        stereo.ravel()[flat] = cols.stereo[chosen]
+        chosen_cn = cols.cn_db[chosen]
+        cn.ravel()[flat] = chosen_cn
+        margins = np.asarray([margin[s] for s in ids], dtype=np.float64)[mi[chosen]]
+        detected.ravel()[flat] = np.isfinite(chosen_cn) & (chosen_cn >= margins)
+        del mi, chosen, flat, chosen_cn, margins
     chan_freqs = clusters.channel_freq_hz.astype(np.int64)
     if m and (~heard).any():
         if channels is None or [int(s) for s in channels.sweep_ids.tolist()] != ids:
@@ -263,14 +294,14 @@ def census_matrix(conn: sqlite3.Connection, sweeps: Sequence[SweepRow], kinds=("
         axis = channels.freqs_hz
         if axis.size:
             col = np.clip(np.searchsorted(axis, chan_freqs), 0, axis.size - 1)
-            fill = ~heard & (axis[col] == chan_freqs)[np.newaxis, :]
-            p_fill = channels.power_dbfs[:, col].astype(np.float64)
-            n_fill = channels.noise_dbfs[:, col].astype(np.float64)
-            power = np.where(fill, p_fill, power)
-            noise = np.where(fill, n_fill, noise)
+            fi, fj = np.nonzero(~heard & (axis[col] == chan_freqs)[np.newaxis, :])
+            p_fill = channels.power_dbfs[fi, col[fj]].astype(np.float64)
+            n_fill = channels.noise_dbfs[fi, col[fj]].astype(np.float64)
+            power[fi, fj] = p_fill
+            noise[fi, fj] = n_fill
             with np.errstate(invalid="ignore", over="ignore"):
                 cn_fill = np.asarray(ratio_to_db(np.asarray(db_to_ratio(p_fill - n_fill)) - 1.0))
-            cn = np.where(fill, np.where(np.isfinite(cn_fill), cn_fill, np.nan), cn)
+            cn[fi, fj] = np.where(np.isfinite(cn_fill), cn_fill, np.nan)
     started = {int(s.id): s.started_utc for s in sweeps}
     identities = tuple(_identities(cols, clusters))
     known = _identities_across_survey(conn, cols, clusters, ids)

@@ -1,11 +1,17 @@
 """Grouping emissions of many sweeps into stations, vectorised over numpy columns.
 
-Single linkage along frequency, each kind apart: the emissions of one kind sorted by carrier
-frequency (stable, so emissions at the same frequency keep their sweep order) split wherever
-two neighbours lie more than the kind's tolerance apart. A station's frequency is the median
-of its emissions' carriers, its raster channel the most common channel among them. Stations
-of all kinds are then ordered by frequency (stable: FM before narrow at an equal frequency).
-This is what :mod:`analysis.census` did emission by emission in Python, done in numpy; the
+Single linkage along frequency, each kind apart: the carriers of one kind, sorted, split
+wherever two neighbours lie more than the kind's tolerance apart. A station's frequency is the
+median of its emissions' carriers, its raster channel the most common channel among them.
+Stations of all kinds are then ordered by frequency (stable: FM before narrow at an equal
+frequency). A station's *members* are its emissions ordered by carrier frequency, emissions at
+the same frequency in the order given (sweep order); that order decides the rare ties (two
+channels equally common, two emissions of one station in one sweep with equal C/N).
+
+This is what :mod:`analysis.census` did emission by emission in Python. Here only the carrier
+values are sorted (not an index array), each emission finds its station by a binary search on
+the stations' lowest carriers, and members are put in order only for the stations that need it
+(a tie, RDS to merge), so a week of sweeps is grouped in a few passes over the columns; the
 results are identical (``tests/test_census_columns.py``).
 """
 
@@ -24,17 +30,14 @@ class Clusters:
     """Stations found among the emissions of a :class:`~survey.store.StationColumns`.
 
     Per station (ordered by frequency): ``freq_hz`` (median carrier, Hz), ``kinds`` and
-    ``channel_freq_hz`` (most common raster channel). ``members`` lists the emission indices
-    station after station (within a station by carrier frequency, ties in sweep order);
-    ``member_station`` the station of each; ``bounds[j]:bounds[j + 1]`` are station j's members.
+    ``channel_freq_hz`` (most common raster channel). ``station`` gives each emission's station
+    (index into those; -1 for an emission of a kind not grouped).
     """
 
     freq_hz: np.ndarray
     kinds: tuple[str, ...]
     channel_freq_hz: np.ndarray
-    members: np.ndarray
-    member_station: np.ndarray
-    bounds: np.ndarray
+    station: np.ndarray
 
     @property
     def n(self) -> int:
@@ -42,33 +45,27 @@ class Clusters:
         return int(self.freq_hz.size)
 
 
-def _most_common(channels: np.ndarray, starts: np.ndarray) -> np.ndarray:
-    """Most common value of each run ``channels[starts[k]:starts[k + 1]]`` (int64).
-
-    A tie is resolved as ``max(set(values), key=values.count)`` on the run's values in order
-    (the rule the census has always used), which only ties ever reach.
-    """
-    n_runs = starts.size - 1
-    out = np.zeros(n_runs, np.int64)
-    if n_runs == 0:
-        return out
-    run = np.repeat(np.arange(n_runs), np.diff(starts))
-    order = np.lexsort((channels, run))
-    r_sorted, c_sorted = run[order], channels[order]
-    new = np.r_[True, (r_sorted[1:] != r_sorted[:-1]) | (c_sorted[1:] != c_sorted[:-1])]
-    first = np.flatnonzero(new)
-    counts = np.diff(np.r_[first, r_sorted.size])
-    group_run, group_chan = r_sorted[first], c_sorted[first]
-    best = np.zeros(n_runs, np.int64)
-    np.maximum.at(best, group_run, counts)
-    at_best = counts == best[group_run]
-    n_best = np.bincount(group_run[at_best], minlength=n_runs)
-    unique_best = at_best & (n_best[group_run] == 1)
-    out[group_run[unique_best]] = group_chan[unique_best]
-    for k in np.flatnonzero(n_best > 1).tolist():
-        values = channels[starts[k]:starts[k + 1]].tolist()
-        out[k] = max(set(values), key=values.count)
+def station_members(clusters: Clusters, freq_hz: np.ndarray, which) -> dict[int, np.ndarray]:
+    """Members of the stations ``which``: emission indices by carrier frequency, equal
+    frequencies in the order given (the census's member order)."""
+    wanted = [int(j) for j in which]
+    if not wanted:
+        return {}
+    index = np.flatnonzero(np.isin(clusters.station, np.asarray(wanted)))
+    grouped = index[np.argsort(clusters.station[index], kind="stable")]
+    order = sorted(set(wanted))
+    edges = np.searchsorted(clusters.station[grouped], np.asarray(order + [order[-1] + 1]))
+    out = {}
+    for k, j in enumerate(order):
+        part = grouped[edges[k]:edges[k + 1]]
+        out[j] = part[np.argsort(freq_hz[part], kind="stable")]
     return out
+
+
+def _most_common_by_rule(values: list[int]) -> int:
+    """The census's rule for the raster channel of a station: ``max(set(values), key=values.count)``
+    over the channels of its members in member order (ties: the set's iteration order)."""
+    return max(set(values), key=values.count)
 
 
 def cluster_columns(cols: StationColumns, tolerance_hz: Mapping[str, float]) -> Clusters:
@@ -78,34 +75,54 @@ def cluster_columns(cols: StationColumns, tolerance_hz: Mapping[str, float]) -> 
     one station, e.g. ``{"fm": 25e3, "narrow": 5e3}``; kinds are grouped in its order (which
     decides the order of stations of different kinds at exactly the same frequency).
     """
-    freqs_parts, kinds_parts, chan_parts, member_parts, station_parts = [], [], [], [], []
+    station_dtype = np.int32
+    station = np.full(cols.size, -1, station_dtype)
+    freqs_parts, kinds_parts = [], []
     offset = 0
     for kind, tolerance in tolerance_hz.items():
-        idx = np.flatnonzero(cols.is_kind(kind))
-        if idx.size == 0:
+        mask = cols.is_kind(kind)
+        if not mask.any():
             continue
-        ordered = idx[np.argsort(cols.freq_hz[idx], kind="stable")]
-        f = cols.freq_hz[ordered]
-        starts = np.r_[0, np.flatnonzero(np.diff(f) > tolerance) + 1, f.size]
-        count = np.diff(starts)
-        lo, hi = f[starts[:-1] + (count - 1) // 2], f[starts[:-1] + count // 2]
+        every = bool(mask.all())
+        carriers = cols.freq_hz if every else cols.freq_hz[mask]
+        ordered = np.sort(carriers)
+        starts = np.r_[0, np.flatnonzero(np.diff(ordered) > tolerance) + 1]
+        count = np.diff(np.r_[starts, ordered.size])
+        lo, hi = ordered[starts + (count - 1) // 2], ordered[starts + count // 2]
         freqs_parts.append(np.where(count % 2 == 1, lo, (lo + hi) / 2.0))  # np.median of each run
         kinds_parts.extend([kind] * count.size)
-        chan_parts.append(_most_common(cols.channel_freq_hz[ordered], starts))
-        member_parts.append(ordered)
-        station_parts.append(offset + np.repeat(np.arange(count.size), count))
+        first = ordered[starts]
+        del ordered
+        local = (np.searchsorted(first, carriers, side="right") - 1 + offset).astype(station_dtype)
+        if every:
+            station = local
+        else:
+            station[mask] = local
         offset += count.size
     if not freqs_parts:
-        empty = np.zeros(0, np.int64)
-        return Clusters(np.zeros(0), (), empty, empty, empty, np.zeros(1, np.int64))
+        return Clusters(np.zeros(0), (), np.zeros(0, np.int64), station)
     freqs = np.concatenate(freqs_parts)
     rank = np.argsort(freqs, kind="stable")          # final order of the stations
-    position = np.empty_like(rank)
-    position[rank] = np.arange(rank.size)
-    member_station = position[np.concatenate(station_parts)]
-    regroup = np.argsort(member_station, kind="stable")
-    member_station = member_station[regroup]
-    members = np.concatenate(member_parts)[regroup]
-    bounds = np.r_[0, np.cumsum(np.bincount(member_station, minlength=rank.size))]
-    return Clusters(freqs[rank], tuple(kinds_parts[i] for i in rank.tolist()),
-                    np.concatenate(chan_parts)[rank], members, member_station, bounds)
+    if not np.array_equal(rank, np.arange(rank.size)):
+        position = np.empty(rank.size + 1, station_dtype)
+        position[rank] = np.arange(rank.size, dtype=station_dtype)
+        position[-1] = -1                            # station -1 (not grouped) stays -1
+        station = position[station]
+    freqs, kinds = freqs[rank], tuple(kinds_parts[i] for i in rank.tolist())
+    clusters = Clusters(freqs, kinds, np.zeros(freqs.size, np.int64), station)
+    return Clusters(freqs, kinds, _channels(cols, clusters), station)
+
+
+def _channels(cols: StationColumns, clusters: Clusters) -> np.ndarray:
+    """Most common raster channel of each station (the census's rule, ties included)."""
+    grouped = clusters.station >= 0
+    every = bool(grouped.all())
+    station = clusters.station if every else clusters.station[grouped]
+    channel = cols.channel_freq_hz if every else cols.channel_freq_hz[grouped]
+    ref = np.zeros(clusters.n, np.int64)
+    ref[station] = channel                           # some member's channel
+    mixed = np.flatnonzero(np.bincount(station[channel != ref[station]], minlength=clusters.n))
+    members = station_members(clusters, cols.freq_hz, mixed.tolist())
+    for j in mixed.tolist():
+        ref[j] = _most_common_by_rule(cols.channel_freq_hz[members[j]].tolist())
+    return ref

@@ -16,7 +16,6 @@ import numpy as np
 import pytest
 
 from analysis.census import SAME_FM_STATION_HZ, SAME_STATION_HZ, census_matrix, display_name
-from analysis.station_clusters import _most_common
 from bandcensus.cli import main
 from bandcensus.demo import demo_recordings
 from survey.rds import RdsResult, merge_rds
@@ -224,14 +223,6 @@ def test_vectorised_census_equals_the_row_by_row_census(random_db, kinds):
     for chosen in (sweeps, sweeps[::2], sweeps[5:9]):
         _assert_same(census_matrix(conn, chosen, kinds=kinds), reference_census(conn, chosen, kinds))
     conn.close()
-
-
-def test_most_common_channel_breaks_ties_as_the_row_census_did():
-    rng = np.random.default_rng(5)
-    for _ in range(200):
-        values = rng.choice([88_000_000, 88_100_000, 88_200_000], int(rng.integers(1, 9)))
-        want = max(set(values.tolist()), key=values.tolist().count)
-        assert _most_common(values.astype(np.int64), np.array([0, values.size]))[0] == want
 
 
 def test_a_schema_2_database_gives_the_same_census_read_only_and_after_migrating(tmp_path):

@@ -134,7 +134,16 @@ CREATE TABLE IF NOT EXISTS station_vectors (
     n_stations INTEGER NOT NULL,
     n_rds INTEGER NOT NULL,
     kinds TEXT NOT NULL,
-    records BLOB NOT NULL
+    freq_hz BLOB NOT NULL,
+    power_dbfs BLOB NOT NULL,
+    noise_dbfs BLOB NOT NULL,
+    cn_db BLOB NOT NULL,
+    ci_db BLOB NOT NULL,
+    channel_freq_hz BLOB NOT NULL,
+    kind BLOB NOT NULL,
+    flags BLOB NOT NULL,
+    occupied_bw_hz BLOB NOT NULL,
+    hop_index BLOB NOT NULL
 ) STRICT;
 CREATE INDEX IF NOT EXISTS stations_identified ON stations(sweep_id) WHERE rds_pi IS NOT NULL;
 """

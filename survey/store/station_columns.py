@@ -3,15 +3,14 @@
 ``stations`` holds one row per emission per sweep (every column, for SQL users, the RDS text
 and the census's rebuild of older databases). Reading it one Python record per row costs about
 3.5 µs a row, which at a week of sweeps is most of a comparison. ``station_vectors`` holds the
-same emissions of one sweep as one blob of little-endian fixed-size records
-(:data:`STATION_RECORD`), written in the same transaction as the rows, in the same order
-(frequency ascending); :func:`read_station_columns` decodes every asked sweep at once into
-numpy columns (:class:`StationColumns`).
+same emissions of one sweep as one little-endian blob per column (:data:`STATION_VECTOR_FIELDS`),
+written in the same transaction as the rows, in the same order (frequency ascending);
+:func:`read_station_columns` joins the blobs of every asked sweep and decodes each column once
+into numpy (:class:`StationColumns`).
 
-The RDS columns are not in the records: a sweep with any RDS data in its rows (``n_rds`` > 0)
-is read from ``stations`` (the PS name is text), as is a sweep without a ``station_vectors``
-row (a database written before schema 3 and opened read-only). Both paths give the same
-columns.
+The RDS columns are not in the blobs: a sweep with any RDS data in its rows (``n_rds`` > 0) is
+read from ``stations`` (the PS name is text), as is a sweep without a ``station_vectors`` row
+(a database written before schema 3 and opened read-only). Both paths give the same columns.
 """
 
 from __future__ import annotations
@@ -22,14 +21,14 @@ from typing import Iterable, Sequence
 
 import numpy as np
 
-#: One emission in a ``station_vectors.records`` blob (little-endian, packed, 62 bytes).
-#: Levels in dBFS and dB, NaN where the ``stations`` column is NULL; ``flags`` bit 0 stereo,
-#: bit 1 separable; ``kind`` indexes the row's comma-separated ``kinds`` vocabulary.
-STATION_RECORD = np.dtype([
-    ("freq_hz", "<f8"), ("power_dbfs", "<f8"), ("noise_dbfs", "<f8"), ("cn_db", "<f8"),
-    ("ci_db", "<f8"), ("occupied_bw_hz", "<f8"), ("channel_freq_hz", "<i8"), ("hop_index", "<i4"),
-    ("kind", "u1"), ("flags", "u1"),
-])
+#: Blob columns of ``station_vectors`` and their little-endian element types, one element per
+#: emission. Levels in dBFS and dB, NaN where the ``stations`` column is NULL; ``flags`` bit 0
+#: stereo, bit 1 separable; ``kind`` indexes the row's comma-separated ``kinds`` vocabulary.
+STATION_VECTOR_FIELDS: tuple[tuple[str, str], ...] = (
+    ("freq_hz", "<f8"), ("power_dbfs", "<f8"), ("noise_dbfs", "<f8"), ("cn_db", "<f8"), ("ci_db", "<f8"),
+    ("channel_freq_hz", "<i8"), ("kind", "u1"), ("flags", "u1"), ("occupied_bw_hz", "<f8"), ("hop_index", "<i4"),
+)
+_FIELD_NAMES = tuple(name for name, _ in STATION_VECTOR_FIELDS)
 
 _STEREO, _SEPARABLE = 1, 2
 
@@ -48,25 +47,24 @@ def has_rds(e) -> bool:
             or bool(e.rds_blocks) or bool(e.rds_block_errors))
 
 
-def station_records(freq_hz, power_dbfs, noise_dbfs, cn_db, ci_db, occupied_bw_hz, channel_freq_hz, hop_index,
-                    kind, stereo, separable) -> bytes:
-    """One ``station_vectors.records`` blob from equal-length columns (one element per emission,
-    frequency ascending): levels NaN where missing, ``kind`` the codes into the row's ``kinds``."""
-    rec = np.zeros(np.size(freq_hz), STATION_RECORD)
-    rec["freq_hz"] = freq_hz
-    for name, values in (("power_dbfs", power_dbfs), ("noise_dbfs", noise_dbfs), ("cn_db", cn_db), ("ci_db", ci_db)):
+def station_blobs(freq_hz, power_dbfs, noise_dbfs, cn_db, ci_db, occupied_bw_hz, channel_freq_hz, hop_index,
+                  kind, stereo, separable) -> dict[str, bytes]:
+    """The blobs of one ``station_vectors`` row (name -> bytes, :data:`STATION_VECTOR_FIELDS`)
+    from equal-length columns, one element per emission in frequency order: levels NaN where
+    missing, ``kind`` the codes into the row's ``kinds``."""
+    def levels(values) -> np.ndarray:
         v = np.asarray(values, np.float64)
-        rec[name] = np.where(np.isfinite(v), v, np.nan)  # as a REAL column reads back: NULL -> NaN
-    rec["occupied_bw_hz"] = occupied_bw_hz
-    rec["channel_freq_hz"] = channel_freq_hz
-    rec["hop_index"] = hop_index
-    rec["kind"] = kind
-    rec["flags"] = np.where(np.asarray(stereo, bool), _STEREO, 0) | np.where(np.asarray(separable, bool), _SEPARABLE, 0)
-    return rec.tobytes()
+        return np.where(np.isfinite(v), v, np.nan)  # as a REAL column reads back: NULL -> NaN
+
+    flags = (np.where(np.asarray(stereo, bool), _STEREO, 0) | np.where(np.asarray(separable, bool), _SEPARABLE, 0))
+    values = {"freq_hz": freq_hz, "power_dbfs": levels(power_dbfs), "noise_dbfs": levels(noise_dbfs),
+              "cn_db": levels(cn_db), "ci_db": levels(ci_db), "channel_freq_hz": channel_freq_hz, "kind": kind,
+              "flags": flags, "occupied_bw_hz": occupied_bw_hz, "hop_index": hop_index}
+    return {name: np.asarray(values[name]).astype(dtype).tobytes() for name, dtype in STATION_VECTOR_FIELDS}
 
 
-def pack_station_vector(emissions: Iterable) -> tuple[int, int, str, bytes]:
-    """``(n_stations, n_rds, kinds, records)`` of one sweep's ``station_vectors`` row.
+def pack_station_vector(emissions: Iterable) -> tuple[int, int, str, dict[str, bytes]]:
+    """``(n_stations, n_rds, kinds, blobs)`` of one sweep's ``station_vectors`` row.
 
     ``emissions`` are :class:`survey.records.EmissionReading` or
     :class:`survey.store.read.StationRow` (the same attributes), in the order their
@@ -78,19 +76,23 @@ def pack_station_vector(emissions: Iterable) -> tuple[int, int, str, bytes]:
     if len(kinds) > 255:
         raise ValueError("more than 255 emission kinds in one sweep")
     code = {k: i for i, k in enumerate(kinds)}
-    blob = station_records(
+    blobs = station_blobs(
         [float(e.freq_hz) for e in rows], [_real(e.power_dbfs) for e in rows], [_real(e.noise_dbfs) for e in rows],
         [_real(e.cn_db) for e in rows], [_real(e.ci_db) for e in rows], [float(e.occupied_bw_hz) for e in rows],
         [int(e.channel_freq_hz) for e in rows], [int(e.hop_index) for e in rows], [code[str(e.kind)] for e in rows],
         [bool(e.stereo) for e in rows], [bool(e.separable) for e in rows])
-    return len(rows), sum(1 for e in rows if has_rds(e)), ",".join(kinds), blob
+    return len(rows), sum(1 for e in rows if has_rds(e)), ",".join(kinds), blobs
+
+
+#: The INSERT of one ``station_vectors`` row (parameters: sweep id, n_stations, n_rds, kinds, blobs).
+INSERT_STATION_VECTOR = (f"INSERT INTO station_vectors (sweep_id, n_stations, n_rds, kinds, {', '.join(_FIELD_NAMES)})"
+                         f" VALUES ({', '.join('?' * (4 + len(_FIELD_NAMES)))})")
 
 
 def insert_station_vector(c: sqlite3.Connection, sweep_id: int, emissions: Iterable) -> None:
     """Write one sweep's ``station_vectors`` row (inside the caller's transaction)."""
-    n, n_rds, kinds, blob = pack_station_vector(emissions)
-    c.execute("INSERT INTO station_vectors (sweep_id, n_stations, n_rds, kinds, records) VALUES (?,?,?,?,?)",
-              (int(sweep_id), n, n_rds, kinds, blob))
+    n, n_rds, kinds, blobs = pack_station_vector(emissions)
+    c.execute(INSERT_STATION_VECTOR, (int(sweep_id), n, n_rds, kinds, *(blobs[f] for f in _FIELD_NAMES)))
 
 
 @dataclass(frozen=True)
@@ -99,10 +101,11 @@ class StationColumns:
 
     Ordered by sweep (as asked) then frequency, as :func:`survey.store.read_station_rows`.
     Units and meaning as :class:`survey.records.EmissionReading`: ``freq_hz``,
-    ``occupied_bw_hz`` Hz (float64); ``power_dbfs``, ``noise_dbfs``, ``cn_db`` and ``ci_db``
+    ``occupied_bw_hz`` Hz (float64); ``hop_index`` int32; ``power_dbfs``, ``noise_dbfs``, ``cn_db`` and ``ci_db``
     float64, NaN where not measured (``ci_db`` NaN: no neighbour power); ``kind`` codes into
-    ``kind_names``; ``rds_pi`` and ``rds_pty`` -1 where None, ``rds_ps`` an object array
-    (None where not read).
+    ``kind_names``; ``rds_pi`` (int32) and ``rds_pty`` (int16) -1 where None, ``rds_ps`` an
+    object array (None where not read), ``rds_blocks`` and ``rds_block_errors`` int32; without
+    any RDS data these five are read-only views of one value.
     """
 
     sweep_id: np.ndarray
@@ -144,16 +147,16 @@ def _has_table(conn: sqlite3.Connection, name: str) -> bool:
     return conn.execute("SELECT 1 FROM sqlite_master WHERE type='table' AND name=?", (name,)).fetchone() is not None
 
 
-def _rows_piece(rows: Sequence) -> tuple[bytes, str, list]:
-    """Records, vocabulary and RDS values of station rows read from ``stations``."""
-    _, _, kinds, blob = pack_station_vector(rows)
-    rds = [(r.rds_pi, r.rds_ps, r.rds_pty, r.rds_blocks, r.rds_block_errors) for r in rows]
-    return blob, kinds, rds
+#: Columns that :func:`read_station_columns` leaves out without ``detail``.
+_DETAIL_FIELDS = ("occupied_bw_hz", "hop_index")
 
 
-def read_station_columns(conn: sqlite3.Connection, sweep_ids: Sequence[int]) -> StationColumns:
+def read_station_columns(conn: sqlite3.Connection, sweep_ids: Sequence[int], detail: bool = True) -> StationColumns:
     """Station rows of the given sweeps as :class:`StationColumns` (same rows and order as
     :func:`survey.store.read_station_rows`).
+
+    ``detail=False`` leaves out ``occupied_bw_hz`` and ``hop_index`` (read-only views of NaN
+    and -1; the census does not use them), which saves a fifth of the memory.
 
     Sweeps with a ``station_vectors`` row and no RDS data are decoded from their blobs; the
     others (RDS text, or no columnar copy) are read row by row from ``stations``. Raises
@@ -164,67 +167,90 @@ def read_station_columns(conn: sqlite3.Connection, sweep_ids: Sequence[int]) -> 
     ids = [int(i) for i in sweep_ids]
     order = {sid: k for k, sid in enumerate(ids)}
     unique = sorted(order, key=order.__getitem__)
-    vectors: dict[int, tuple[int, str, bytes]] = {}
-    if _has_table(conn, "station_vectors"):
-        for start in range(0, len(unique), 900):
-            chunk = unique[start:start + 900]
-            marks = ",".join("?" * len(chunk))
-            for sid, n, n_rds, kinds, blob in conn.execute(
-                f"SELECT sweep_id, n_stations, n_rds, kinds, records FROM station_vectors WHERE sweep_id IN ({marks})",
-                chunk,
-            ):
-                if not n_rds:
-                    vectors[int(sid)] = (int(n), kinds, blob)
-    by_rows = [sid for sid in unique if sid not in vectors]
-    rows_of: dict[int, list] = {}
-    for r in read_station_rows(conn, by_rows):  # also raises the schema-1 error
-        rows_of.setdefault(r.sweep_id, []).append(r)
-    blobs, counts, vocab_of_sweep, rds_pieces = [], [], [], []
+    with_vectors = _has_table(conn, "station_vectors")
+    # read in chunks of the asked order, appending each column's blobs as they come: the
+    # blobs fetched are held one chunk at a time
+    fields = [(k, name, dtype) for k, (name, dtype) in enumerate(STATION_VECTOR_FIELDS)
+              if detail or name not in _DETAIL_FIELDS]
+    joined = [bytearray() for _ in fields]
+    counts, vocab_of_sweep, rds_pieces = [], [], []
     vocabularies: dict[str, int] = {}
     offset = 0
-    for sid in unique:
-        if sid in vectors:
-            n, kinds, blob = vectors[sid]
-        else:
-            rows = rows_of.get(sid, [])
-            blob, kinds, rds = _rows_piece(rows)
-            n = len(rows)
-            rds_pieces.append((offset, rds))
-        blobs.append(blob)
-        counts.append(n)
-        vocab_of_sweep.append(vocabularies.setdefault(kinds, len(vocabularies)))
-        offset += n
-    rec = np.frombuffer(b"".join(blobs), STATION_RECORD)
+    for start in range(0, len(unique), 900):
+        chunk = unique[start:start + 900]
+        vectors: dict[int, tuple] = {}
+        if with_vectors:
+            marks = ",".join("?" * len(chunk))
+            for row in conn.execute(
+                f"SELECT sweep_id, n_stations, n_rds, kinds, {', '.join(f[1] for f in fields)} FROM station_vectors"
+                f" WHERE sweep_id IN ({marks})", chunk,
+            ):
+                if not row[2]:
+                    vectors[int(row[0])] = row
+        rows_of: dict[int, list] = {}
+        for r in read_station_rows(conn, [sid for sid in chunk if sid not in vectors]):  # and the schema-1 error
+            rows_of.setdefault(r.sweep_id, []).append(r)
+        pieces = []
+        for sid in chunk:
+            if sid in vectors:
+                row = vectors[sid]
+                n, kinds, blobs = int(row[1]), row[3], row[4:]
+            else:
+                rows = rows_of.get(sid, [])
+                n, _, kinds, packed = pack_station_vector(rows)
+                blobs = tuple(packed[f[1]] for f in fields)
+                rds_pieces.append((offset, [(r.rds_pi, r.rds_ps, r.rds_pty, r.rds_blocks, r.rds_block_errors)
+                                            for r in rows]))
+            pieces.append(blobs)
+            counts.append(n)
+            vocab_of_sweep.append(vocabularies.setdefault(kinds, len(vocabularies)))
+            offset += n
+        for k, acc in enumerate(joined):
+            acc += b"".join(p[k] for p in pieces)
+        del vectors, pieces, rows_of
+    column = {name: np.frombuffer(acc, dtype) for acc, (_, name, dtype) in zip(joined, fields)}
+    if not detail:
+        column["occupied_bw_hz"] = np.broadcast_to(np.float64(np.nan), (offset,))
+        column["hop_index"] = np.broadcast_to(np.int32(-1), (offset,))
     names = sorted({k for text in vocabularies for k in text.split(",") if k})
-    remap = np.zeros((max(len(vocabularies), 1), 256), np.uint8)
-    for text, v in vocabularies.items():
-        for local, k in enumerate(k for k in text.split(",") if k):
-            remap[v, local] = names.index(k)
     counts_arr = np.asarray(counts, np.int64)
-    kind = remap[np.repeat(np.asarray(vocab_of_sweep, np.int64), counts_arr), rec["kind"]]
-    total = rec.size
-    rds_pi = np.full(total, -1, np.int64)
-    rds_pty = np.full(total, -1, np.int64)
-    rds_blocks = np.zeros(total, np.int64)
-    rds_errors = np.zeros(total, np.int64)
-    rds_ps = np.full(total, None, dtype=object)
-    for start, rds in rds_pieces:
-        for k, (pi, ps, pty, blocks, errors) in enumerate(rds):
-            rds_pi[start + k] = -1 if pi is None else int(pi)
-            rds_ps[start + k] = ps
-            rds_pty[start + k] = -1 if pty is None else int(pty)
-            rds_blocks[start + k] = int(blocks or 0)
-            rds_errors[start + k] = int(errors or 0)
-    flags = rec["flags"]
+    kind = column["kind"]
+    if len(vocabularies) > 1 or any(text.split(",") != names for text in vocabularies if text):
+        remap = np.zeros((len(vocabularies), 256), np.uint8)
+        for text, v in vocabularies.items():
+            for local, k in enumerate(k for k in text.split(",") if k):
+                remap[v, local] = names.index(k)
+        kind = remap[np.repeat(np.asarray(vocab_of_sweep, np.int64), counts_arr), kind]
+    flags = column["flags"]
     return StationColumns(
-        sweep_id=np.repeat(np.asarray(unique, np.int64), counts_arr),
-        freq_hz=rec["freq_hz"].copy(), hop_index=rec["hop_index"].astype(np.int64),
-        kind=kind, kind_names=tuple(names), occupied_bw_hz=rec["occupied_bw_hz"].copy(),
-        power_dbfs=rec["power_dbfs"].copy(), noise_dbfs=rec["noise_dbfs"].copy(), cn_db=rec["cn_db"].copy(),
-        ci_db=rec["ci_db"].copy(), stereo=(flags & _STEREO).astype(bool),
-        channel_freq_hz=rec["channel_freq_hz"].copy(), separable=(flags & _SEPARABLE).astype(bool),
-        rds_pi=rds_pi, rds_ps=rds_ps, rds_pty=rds_pty, rds_blocks=rds_blocks, rds_block_errors=rds_errors,
+        sweep_id=np.repeat(np.asarray(unique, np.int64), counts_arr), freq_hz=column["freq_hz"],
+        hop_index=column["hop_index"], kind=kind, kind_names=tuple(names),
+        occupied_bw_hz=column["occupied_bw_hz"], power_dbfs=column["power_dbfs"], noise_dbfs=column["noise_dbfs"],
+        cn_db=column["cn_db"], ci_db=column["ci_db"], stereo=(flags & _STEREO).astype(bool),
+        channel_freq_hz=column["channel_freq_hz"], separable=(flags & _SEPARABLE).astype(bool),
+        **_rds_columns(offset, rds_pieces),
     )
+
+
+def _rds_columns(total: int, pieces: list[tuple[int, list]]) -> dict[str, np.ndarray]:
+    """The RDS columns of :class:`StationColumns` from the rows read from ``stations``.
+
+    Without any RDS data they are read-only views of one value (no memory per emission).
+    """
+    pi, ps, pty, blocks, errors = (np.full(1, -1, np.int32), np.full(1, None, object), np.full(1, -1, np.int16),
+                                   np.zeros(1, np.int32), np.zeros(1, np.int32))
+    if any(any(v not in (None, 0) for item in rds for v in item) for _, rds in pieces):
+        pi, ps, pty, blocks, errors = (np.repeat(a, total) for a in (pi, ps, pty, blocks, errors))
+        for start, rds in pieces:
+            for k, (r_pi, r_ps, r_pty, r_blocks, r_errors) in enumerate(rds):
+                pi[start + k] = -1 if r_pi is None else int(r_pi)
+                ps[start + k] = r_ps
+                pty[start + k] = -1 if r_pty is None else int(r_pty)
+                blocks[start + k] = int(r_blocks or 0)
+                errors[start + k] = int(r_errors or 0)
+    else:
+        pi, ps, pty, blocks, errors = (np.broadcast_to(a, (total,)) for a in (pi, ps, pty, blocks, errors))
+    return {"rds_pi": pi, "rds_ps": ps, "rds_pty": pty, "rds_blocks": blocks, "rds_block_errors": errors}
 
 
 def build_missing_station_vectors(c: sqlite3.Connection) -> int:

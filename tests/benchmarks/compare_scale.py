@@ -5,7 +5,7 @@ European FM band, 87.5-108.0 MHz on the 100 kHz raster = 206 channels, labels ``
 ``preamp-a`` alternating; 48 544 sweeps = 10.0 million channel readings for ``--rows 10e6``)
 with the schema of :mod:`survey.store`. The analyses read the columnar ``channel_vectors``
 copy, which holds every reading, and the census's station rows (one per occupied channel a
-sweep detected), written both to ``stations`` and, packed by :func:`survey.store.station_records`
+sweep detected), written both to ``stations`` and, packed by :func:`survey.store.station_blobs`
 as the store packs them, to the columnar ``station_vectors`` the census reads; the per-row ``channels`` table is written for the first 20 sweeps
 only, to keep the build short (build time is not the benchmark).
 
@@ -49,7 +49,8 @@ def channel_axis_hz() -> np.ndarray:
 
 def build(path: Path, n_sweeps: int, seed: int = 0) -> dict:
     """Write the benchmark database; returns counts and the build time."""
-    from survey.store import SurveyStore, station_records
+    from survey.store import STATION_VECTOR_FIELDS, SurveyStore, station_blobs
+    from survey.store.station_columns import INSERT_STATION_VECTOR
 
     t0 = time.perf_counter()
     with SurveyStore(path) as store:  # schema and migrations exactly as the tool makes them
@@ -122,14 +123,14 @@ def build(path: Path, n_sweeps: int, seed: int = 0) -> dict:
         )
         # and their columnar copy, packed by the store's own function (one station_vectors row per sweep)
         per_sweep = np.cumsum(np.bincount(det_i, minlength=n))[:-1]
-        conn.executemany(
-            "INSERT INTO station_vectors (sweep_id, n_stations, n_rds, kinds, records) VALUES (?,?,0,'fm',?)",
-            [(int(s) + 1, int(j.size), station_records(
+        vectors = []
+        for i, (s, j) in enumerate(zip(k.tolist(), np.split(det_j, per_sweep))):
+            blobs = station_blobs(
                 freqs[j] + 1300.0, power32[i, j].astype(float), noise32[i, j].astype(float), cn[i, j].astype(float),
                 np.full(j.size, np.nan), np.full(j.size, 150000.0), freqs[j], j // 21, np.zeros(j.size, np.uint8),
-                np.zeros(j.size, bool), np.ones(j.size, bool)))
-             for i, (s, j) in enumerate(zip(k.tolist(), np.split(det_j, per_sweep)))],
-        )
+                np.zeros(j.size, bool), np.ones(j.size, bool))
+            vectors.append((int(s) + 1, int(j.size), 0, "fm", *(blobs[f] for f, _ in STATION_VECTOR_FIELDS)))
+        conn.executemany(INSERT_STATION_VECTOR, vectors)
         station_rows += int(det_i.size)
         rows_written += n * m
         if c0 > 0:
