@@ -80,8 +80,13 @@ class StationMatrix:
 
     def rows(self, sweep_ids) -> "StationMatrix":
         """The same stations for a subset of the sweeps (in the order given)."""
-        index = {int(s): i for i, s in enumerate(self.sweep_ids.tolist())}
-        take = np.asarray([index[int(s)] for s in sweep_ids], dtype=np.int64)
+        wanted = np.asarray([int(s) for s in sweep_ids], dtype=np.int64)
+        order = np.argsort(self.sweep_ids, kind="stable")
+        pos = np.searchsorted(self.sweep_ids, wanted, sorter=order) if self.sweep_ids.size else wanted
+        if wanted.size and (np.any(pos >= self.sweep_ids.size) or
+                            np.any(self.sweep_ids[order[np.minimum(pos, self.sweep_ids.size - 1)]] != wanted)):
+            raise KeyError("a sweep asked for is not a row of this station matrix")
+        take = order[pos] if wanted.size else np.zeros(0, np.int64)
         return StationMatrix(
             sweep_ids=self.sweep_ids[take],
             started_utc=tuple(self.started_utc[i] for i in take.tolist()),

@@ -240,7 +240,13 @@ class Survey:
         # one canonical read (sweeps in id order) serves every grouping and order of the same sweeps
         every = sorted({int(s.id): s for g in groups for s in g}.values(), key=lambda s: int(s.id))
         whole = self.item_matrix(every, kinds)
-        return tuple(whole.rows([int(s.id) for s in g]) for g in groups)
+        key = tuple(int(s.id) for s in every)
+
+        def rows_of(group) -> object:
+            ids = tuple(int(s.id) for s in group)
+            return whole if ids == key else self.memo(("item_rows", key, ids, tuple(kinds)),
+                                                      lambda: whole.rows(list(ids)))
+        return tuple(rows_of(g) for g in groups)
 
     def station_matrix(self, configuration: str, input: str = "antenna", since: str | None = None,
                        until: str | None = None, kinds: tuple[str, ...] = ("fm",)):

@@ -19,6 +19,8 @@ reason being the message of the :class:`~analysis.errors.AnalysisError` the anal
 
 from __future__ import annotations
 
+from operator import attrgetter
+
 import time
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -218,7 +220,7 @@ def read_settings(survey: Survey, sweeps: list[SweepRow]) -> RunSettings:
     runs = [r for r in survey.runs() if r.id in run_ids]
     pairs = []
     for name, what, unit in _SWEEP_FIELDS:
-        values = sorted({getattr(s, name) for s in sweeps}, key=lambda v: (v is None, str(v)))
+        values = sorted(set(map(attrgetter(name), sweeps)), key=lambda v: (v is None, str(v)))
         scale = _SCALE.get(name)
         shown = [_fmt_value(v * scale if scale and v is not None else v) + ("" if v is None else unit)
                  for v in values]
