@@ -192,8 +192,12 @@ def _strongest_per_cell(cell: np.ndarray, cn_db: np.ndarray, freq_hz: np.ndarray
     sorted.
     """
     valid = cell >= 0
-    count = np.bincount(cell[valid] if not valid.all() else cell, minlength=n_cells)
-    single = valid & (count[np.where(valid, cell, 0)] == 1)
+    every = bool(valid.all())
+    count = np.bincount(cell if every else cell[valid], minlength=n_cells)
+    single = count[cell if every else np.where(valid, cell, 0)] == 1
+    del count
+    if not every:
+        single &= valid
     shared = np.flatnonzero(valid & ~single)
     if not shared.size:
         return np.flatnonzero(single)
@@ -270,8 +274,9 @@ def census_matrix(conn: sqlite3.Connection, sweeps: Sequence[SweepRow], kinds=("
         # with the higher C/N is the station's reading (NaN C/N last; equal C/N: the first member)
         grouped = clusters.station >= 0
         every = bool(grouped.all())
-        mi = _sweep_rows(cols.sweep_id, ids)
-        cell = mi * m + clusters.station              # flat index into the (n, m) matrices
+        cell = _sweep_rows(cols.sweep_id, ids)
+        cell *= m
+        cell += clusters.station                      # flat index into the (n, m) matrices
         if not every:
             cell = np.where(grouped, cell, -1)
         if cols.rds_blocks.any() or cols.rds_block_errors.any():
@@ -289,9 +294,9 @@ def census_matrix(conn: sqlite3.Connection, sweeps: Sequence[SweepRow], kinds=("
         stereo.ravel()[flat] = cols.stereo[chosen]
         chosen_cn = cols.cn_db[chosen]
         cn.ravel()[flat] = chosen_cn
-        margins = np.asarray([margin[s] for s in ids], dtype=np.float64)[mi[chosen]]
+        margins = np.asarray([margin[s] for s in ids], dtype=np.float64)[flat // m]
         detected.ravel()[flat] = np.isfinite(chosen_cn) & (chosen_cn >= margins)
-        del mi, chosen, flat, chosen_cn, margins
+        del chosen, flat, chosen_cn, margins
     chan_freqs = clusters.channel_freq_hz.astype(np.int64)
     if m and (~heard).any():
         if channels is None or [int(s) for s in channels.sweep_ids.tolist()] != ids:

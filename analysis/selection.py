@@ -212,6 +212,13 @@ class Survey:
         return self.memo(("channel_matrix", ids), lambda: self._rows_from_read(ids) or
                          self._remember(read_sweep_matrix(self._conn, list(sweeps))))
 
+    def channel_matrices(self, *groups: Sequence[SweepRow]) -> tuple[ChannelMatrix, ...]:
+        """Raster-channel matrices of several groups of sweeps from ONE read of all of them (in id
+        order, the read :func:`_matrix_for` shares); one matrix per group, rows in the order given."""
+        every = sorted({int(s.id): s for g in groups for s in g}.values(), key=lambda s: int(s.id))
+        self.channel_matrix(every)
+        return tuple(self.channel_matrix(g) for g in groups)
+
     def _remember(self, matrix: ChannelMatrix) -> ChannelMatrix:
         self._read.append(matrix)
         return matrix

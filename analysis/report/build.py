@@ -247,9 +247,7 @@ def read_overnight(survey: Survey, base_rows: list[SweepRow], test_rows: list[Sw
         lack = [r for r, rows in (("base", base_rows), ("test", test_rows)) if not rows]
         raise NoDataError(f"no antenna sweeps of the {' and '.join(lack)} configuration to follow over time; "
                           "record antenna sweeps of both")
-    survey.channel_matrix(list(base_rows) + list(test_rows))  # one read; the two below are slices of it
-    mat_b = survey.channel_matrix(base_rows)
-    mat_t = survey.channel_matrix(test_rows)
+    mat_b, mat_t = survey.channel_matrices(base_rows, test_rows)  # one read, shared with the census
     label = {r.id: r.configuration for r in base_rows + test_rows}
     hops = [(h, label[h.sweep_id]) for h in survey.hops(list(label))]
     strongest = weakest = None
