@@ -5,9 +5,10 @@ European FM band, 87.5-108.0 MHz on the 100 kHz raster = 206 channels, labels ``
 ``preamp-a`` alternating; 48 544 sweeps = 10.0 million channel readings for ``--rows 10e6``)
 with the schema of :mod:`survey.store`. The analyses read the columnar ``channel_vectors``
 copy, which holds every reading, and the census's station rows (one per occupied channel a
-sweep detected), written both to ``stations`` and, packed by :func:`survey.store.station_blobs`
-as the store packs them, to the columnar ``station_vectors`` the census reads; the per-row ``channels`` table is written for the first 20 sweeps
-only, to keep the build short (build time is not the benchmark).
+sweep detected, 0.39 per channel reading), written both to ``stations`` and, packed by
+:func:`survey.store.station_blobs` as the store's writer packs them, to the columnar
+``station_vectors`` the census reads. The per-row ``channels`` table is written for the first
+20 sweeps only, to keep the build short (build time is not the benchmark).
 
 Each stage runs in a fresh child process so that its peak resident memory
 (``resource.getrusage(RUSAGE_SELF).ru_maxrss``) is its own. In the same child the plain
