@@ -4,6 +4,9 @@ An emission (see :class:`survey.records.EmissionReading`) found in different swe
 kHz of the same carrier is the same station. Analyses consume a :class:`StationMatrix`: the same
 shape of data as :class:`survey.store.ChannelMatrix`, with stations as columns instead of raster
 channels, so every count and verdict is per transmitter.
+
+The emissions are read as numpy columns (:func:`survey.store.read_station_columns`, the
+columnar ``station_vectors`` copy) and grouped in numpy (:mod:`analysis.station_clusters`).
 """
 
 from __future__ import annotations

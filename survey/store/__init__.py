@@ -2,7 +2,8 @@
 
 ``schema`` holds the tables, the schema version and the migrations and opens files (refusing
 files that are not ours); ``writer`` holds :class:`SurveyStore`, which writes runs, events and
-sweeps (one transaction per sweep); ``read`` holds the typed read helpers the analyses use.
+sweeps (one transaction per sweep); ``read`` holds the typed read helpers the analyses use;
+``station_columns`` the columnar copy of the station rows (``station_vectors``) and its reader.
 Everything public is importable from ``survey.store`` itself.
 """
 
