@@ -4,6 +4,9 @@ An emission (see :class:`survey.records.EmissionReading`) found in different swe
 kHz of the same carrier is the same station. Analyses consume a :class:`StationMatrix`: the same
 shape of data as :class:`survey.store.ChannelMatrix`, with stations as columns instead of raster
 channels, so every count and verdict is per transmitter.
+
+The emissions are read as numpy columns (:func:`survey.store.read_station_columns`, the
+columnar ``station_vectors`` copy) and grouped in numpy (:mod:`analysis.station_clusters`).
 """
 
 from __future__ import annotations
@@ -19,10 +22,10 @@ from analysis.terms import check_input, median_iqr
 from survey.errors import StoreError
 from survey.rds import RdsIdentity, RdsResult, merge_rds
 from survey.station_names import name_for
-from survey.store import (StationRow, SweepRow, count_complete_sweeps, identified_sweep_ids, list_sweeps,
-                          open_for_reading,
-                          read_channel_matrix, read_station_rows,
-                          upgrade_database)
+from analysis.station_clusters import Clusters, cluster_columns, station_members
+from survey.store import (ChannelMatrix, StationColumns, SweepRow, count_complete_sweeps, identified_sweep_ids,
+                          list_sweeps, open_for_reading, read_channel_matrix, read_station_columns,
+                          read_station_rows, upgrade_database)
 from survey.units import db_to_ratio, ratio_to_db
 
 #: Narrow emissions of different sweeps within this distance (Hz) of each other are one line.
@@ -80,8 +83,13 @@ class StationMatrix:
 
     def rows(self, sweep_ids) -> "StationMatrix":
         """The same stations for a subset of the sweeps (in the order given)."""
-        index = {int(s): i for i, s in enumerate(self.sweep_ids.tolist())}
-        take = np.asarray([index[int(s)] for s in sweep_ids], dtype=np.int64)
+        wanted = np.asarray([int(s) for s in sweep_ids], dtype=np.int64)
+        order = np.argsort(self.sweep_ids, kind="stable")
+        pos = np.searchsorted(self.sweep_ids, wanted, sorter=order) if self.sweep_ids.size else wanted
+        if wanted.size and (np.any(pos >= self.sweep_ids.size) or
+                            np.any(self.sweep_ids[order[np.minimum(pos, self.sweep_ids.size - 1)]] != wanted)):
+            raise KeyError("a sweep asked for is not a row of this station matrix")
+        take = order[pos] if wanted.size else np.zeros(0, np.int64)
         return StationMatrix(
             sweep_ids=self.sweep_ids[take],
             started_utc=tuple(self.started_utc[i] for i in take.tolist()),
@@ -101,40 +109,6 @@ class StationMatrix:
         )
 
 
-@dataclass(frozen=True)
-class _Cluster:
-    freq_hz: float
-    kind: str
-    channel_freq_hz: int
-    members: tuple[StationRow, ...]
-
-
-def _cluster(rows: list[StationRow]) -> list[_Cluster]:
-    """Clusters of emissions: single linkage along frequency, FM and narrow emissions apart.
-
-    A gap larger than :data:`SAME_FM_STATION_HZ` (FM) or :data:`SAME_STATION_HZ` (narrow) splits.
-    """
-    out: list[_Cluster] = []
-    for kind, tolerance in (("fm", SAME_FM_STATION_HZ), ("narrow", SAME_STATION_HZ)):
-        out.extend(_cluster_one_kind([r for r in rows if r.kind == kind], tolerance))
-    return sorted(out, key=lambda c: c.freq_hz)
-
-
-def _cluster_one_kind(rows: list[StationRow], tolerance_hz: float) -> list[_Cluster]:
-    if not rows:
-        return []
-    ordered = sorted(rows, key=lambda r: r.freq_hz)
-    freqs = np.asarray([r.freq_hz for r in ordered])
-    breaks = np.flatnonzero(np.diff(freqs) > tolerance_hz) + 1
-    out = []
-    for part in np.split(np.arange(len(ordered)), breaks):
-        members = tuple(ordered[i] for i in part.tolist())
-        kind = members[0].kind
-        chans = [m.channel_freq_hz for m in members]
-        out.append(_Cluster(float(np.median(freqs[part])), kind, max(set(chans), key=chans.count), members))
-    return out
-
-
 def display_name(identity: RdsIdentity | None, user_name: str | None = None) -> str | None:
     """A station's name for display: ``"PS (PI XXXX)"`` when RDS gave the whole PS name.
 
@@ -150,15 +124,37 @@ def display_name(identity: RdsIdentity | None, user_name: str | None = None) -> 
     return f"PI {pi}" if pi is not None else None
 
 
-def _merged_identity(members: Sequence[StationRow]) -> RdsIdentity:
-    """One station's RDS merged over its rows: PS segments accumulate only under the confirmed PI."""
-    if not any(r.rds_pi is not None or r.rds_blocks for r in members):
-        return merge_rds(())  # nothing decoded: the empty identity, without a result per row
-    return merge_rds(RdsResult.from_columns(r.rds_pi, r.rds_ps, r.rds_pty, r.rds_blocks, r.rds_block_errors)
-                     for r in members)
+#: The identity of a station of which nothing was decoded (the same for every such station).
+_NO_IDENTITY = merge_rds(())
 
 
-def _identities_across_survey(conn: sqlite3.Connection, clusters: Sequence[_Cluster],
+def _results(cols: StationColumns, index) -> list[RdsResult]:
+    """The RDS result of each emission ``index`` of ``cols`` (in that order)."""
+    return [RdsResult.from_columns(None if pi < 0 else pi, ps, None if pty < 0 else pty, blocks, errors)
+            for pi, ps, pty, blocks, errors in zip(cols.rds_pi[index].tolist(), cols.rds_ps[index].tolist(),
+                                                   cols.rds_pty[index].tolist(), cols.rds_blocks[index].tolist(),
+                                                   cols.rds_block_errors[index].tolist())]
+
+
+def _with_rds(cols: StationColumns) -> np.ndarray:
+    """Emissions carrying a confirmed PI or RDS block counts (what an identity is merged from)."""
+    return (cols.rds_pi >= 0) | (cols.rds_blocks != 0)
+
+
+def _identities(cols: StationColumns, clusters: Clusters) -> list[RdsIdentity]:
+    """Each station's RDS merged over its emissions: PS segments accumulate only under the
+    confirmed PI; a station of which nothing was decoded gets the empty identity."""
+    out = [_NO_IDENTITY] * clusters.n
+    if not clusters.n:
+        return out
+    with_rds = _with_rds(cols) & (clusters.station >= 0)
+    decoded = np.flatnonzero(np.bincount(clusters.station[with_rds], minlength=clusters.n))
+    for j, members in station_members(clusters, cols.freq_hz, decoded.tolist()).items():
+        out[j] = merge_rds(_results(cols, members))
+    return out
+
+
+def _identities_across_survey(conn: sqlite3.Connection, cols: StationColumns, clusters: Clusters,
                               sweep_ids: Sequence[int]) -> list[RdsIdentity | None]:
     """Each FM station's RDS merged with the identified rows of every other sweep of the database.
 
@@ -169,18 +165,61 @@ def _identities_across_survey(conn: sqlite3.Connection, clusters: Sequence[_Clus
     """
     mine = set(int(i) for i in sweep_ids)
     other = [i for i in identified_sweep_ids(conn) if i not in mine]
-    if not other or not clusters:
-        return [None] * len(clusters)
-    rows = [r for r in read_station_rows(conn, other) if r.kind == "fm" and r.rds_pi is not None]
-    out: list[RdsIdentity | None] = []
-    for c in clusters:
-        near = [r for r in rows if c.kind == "fm" and abs(r.freq_hz - c.freq_hz) <= SAME_FM_STATION_HZ]
-        out.append(_merged_identity([*c.members, *near]) if near else None)
-    return out
+    if not other or not clusters.n:
+        return [None] * clusters.n
+    known = read_station_columns(conn, other)
+    known = known.take(known.is_kind("fm") & (known.rds_pi >= 0))
+    near = {j: np.flatnonzero(np.abs(known.freq_hz - f) <= SAME_FM_STATION_HZ)
+            for j, (f, kind) in enumerate(zip(clusters.freq_hz.tolist(), clusters.kinds)) if kind == "fm"}
+    near = {j: rows for j, rows in near.items() if rows.size}
+    own = station_members(clusters, cols.freq_hz, list(near))
+    return [merge_rds(_results(cols, own[j]) + _results(known, near[j])) if j in near else None
+            for j in range(clusters.n)]
+
+
+def _sweep_rows(sweep_id: np.ndarray, ids: Sequence[int]) -> np.ndarray:
+    """Row of the census matrix (position in ``ids``) of each emission; emissions come grouped by sweep."""
+    row_of = {sid: i for i, sid in enumerate(ids)}
+    change = np.flatnonzero(np.r_[True, sweep_id[1:] != sweep_id[:-1]]) if sweep_id.size else np.zeros(0, np.int64)
+    runs = np.diff(np.r_[change, sweep_id.size])
+    first = np.fromiter((row_of[s] for s in sweep_id[change].tolist()), np.int64, count=change.size)
+    return np.repeat(first, runs)
+
+
+def _strongest_per_cell(cell: np.ndarray, cn_db: np.ndarray, freq_hz: np.ndarray, n_cells: int) -> np.ndarray:
+    """Index of the emission read for each occupied cell (``cell`` -1: none): the highest C/N
+    (NaN last); among equal C/N the first member (lowest carrier, then the first given).
+    One index per cell, in no particular order.
+
+    A cell (sweep, station) almost always holds one emission; only the cells holding several are
+    sorted.
+    """
+    valid = cell >= 0
+    every = bool(valid.all())
+    count = np.bincount(cell if every else cell[valid], minlength=n_cells)
+    single = count[cell if every else np.where(valid, cell, 0)] == 1
+    del count
+    if not every:
+        single &= valid
+    shared = np.flatnonzero(valid & ~single)
+    if not shared.size:
+        return np.flatnonzero(single)
+    sub = cell[shared]
+    order = np.lexsort((shared, freq_hz[shared], -np.nan_to_num(cn_db[shared], nan=-np.inf), sub))
+    best = shared[order[np.r_[True, sub[order][1:] != sub[order][:-1]]]]
+    return np.concatenate([np.flatnonzero(single), best])
+
+
+def cluster_stations(cols: StationColumns) -> Clusters:
+    """The census's stations among the emissions ``cols``: single linkage along frequency, FM
+    within :data:`SAME_FM_STATION_HZ`, narrow within :data:`SAME_STATION_HZ`
+    (:func:`analysis.station_clusters.cluster_columns`)."""
+    return cluster_columns(cols, {"fm": SAME_FM_STATION_HZ, "narrow": SAME_STATION_HZ})
 
 
 def census_matrix(conn: sqlite3.Connection, sweeps: Sequence[SweepRow], kinds=("fm",),
-                  names: Mapping[int, str] | None = None) -> StationMatrix:
+                  names: Mapping[int, str] | None = None,
+                  channels: ChannelMatrix | None = None) -> StationMatrix:
     """Stations heard in any of ``sweeps``, one column each, one row per sweep (order kept).
 
     Emissions (the ``stations`` table) of all the given sweeps are grouped into stations: an
@@ -195,7 +234,7 @@ def census_matrix(conn: sqlite3.Connection, sweeps: Sequence[SweepRow], kinds=("
     Parameters
     ----------
     conn : sqlite3.Connection
-        An open survey database of schema 2 (:func:`survey.store.open_for_reading`).
+        An open survey database of schema 2 or later (:func:`survey.store.open_for_reading`).
     sweeps : sequence of SweepRow
         Sweeps to include, e.g. base and test sweeps of a comparison; split the result with
         :meth:`StationMatrix.rows`.
@@ -205,6 +244,9 @@ def census_matrix(conn: sqlite3.Connection, sweeps: Sequence[SweepRow], kinds=("
         User-supplied names ``{freq_hz: name}`` (:func:`survey.station_names.read_station_names`),
         matched within 50 kHz; they name stations whose RDS gives no whole PS
         (:func:`display_name`).
+    channels : ChannelMatrix, optional
+        The raster channels of the same ``sweeps`` (rows in the same order) when already read
+        (:func:`survey.store.read_sweep_matrix`); read here otherwise.
 
     Identity: each station's RDS results (one per stored emission) are merged over all the
     given sweeps (:func:`survey.rds.merge_rds`: PI by vote among confirmed codes, PS segments
@@ -214,10 +256,12 @@ def census_matrix(conn: sqlite3.Connection, sweeps: Sequence[SweepRow], kinds=("
     """
     ids = [int(s.id) for s in sweeps]
     margin = {int(s.id): float(s.received_margin_db) for s in sweeps}
-    keep = set(kinds)
-    rows = [r for r in read_station_rows(conn, ids) if r.kind in keep]
-    clusters = _cluster(rows)
-    n, m = len(ids), len(clusters)
+    cols = read_station_columns(conn, ids, detail=False)
+    wanted = cols.is_kind(*kinds)
+    if not wanted.all():
+        cols = cols.take(wanted)
+    clusters = cluster_stations(cols)
+    n, m = len(ids), clusters.n
     shape = (n, m)
     power = np.full(shape, np.nan)
     noise = np.full(shape, np.nan)
@@ -228,54 +272,58 @@ def census_matrix(conn: sqlite3.Connection, sweeps: Sequence[SweepRow], kinds=("
     heard = np.zeros(shape, dtype=bool)
     blocks = np.zeros(shape, dtype=np.int64)
     block_errors = np.zeros(shape, dtype=np.int64)
-    row_of = {sid: i for i, sid in enumerate(ids)}
-    members = [(j, r) for j, cl in enumerate(clusters) for r in cl.members]
-    if members:
-        # vectorised over every emission row: where a sweep holds two emissions of one station,
-        # the row with the higher C/N is the station's reading (NaN C/N last)
-        mi = np.fromiter((row_of[r.sweep_id] for _, r in members), dtype=np.int64, count=len(members))
-        mj = np.fromiter((j for j, _ in members), dtype=np.int64, count=len(members))
-        m_cn = np.fromiter((r.cn_db for _, r in members), dtype=np.float64, count=len(members))
-        np.add.at(blocks, (mi, mj), np.fromiter((r.rds_blocks for _, r in members), dtype=np.int64,
-                                                count=len(members)))
-        np.add.at(block_errors, (mi, mj), np.fromiter((r.rds_block_errors for _, r in members),
-                                                      dtype=np.int64, count=len(members)))
-        cell = mi * max(m, 1) + mj
-        order = np.lexsort((-np.nan_to_num(m_cn, nan=-np.inf), cell))
-        firsts = order[np.r_[True, cell[order][1:] != cell[order][:-1]]]
-        chosen = [members[k][1] for k in firsts.tolist()]
-        i, j = mi[firsts], mj[firsts]
-        heard[i, j] = True
-        power[i, j] = [r.power_dbfs for r in chosen]
-        noise[i, j] = [r.noise_dbfs for r in chosen]
-        cn[i, j] = m_cn[firsts]
-        ci[i, j] = [np.nan if r.ci_db is None else r.ci_db for r in chosen]
-        stereo[i, j] = [r.stereo for r in chosen]
-        margins = np.asarray([margin[r.sweep_id] for r in chosen], dtype=np.float64)
-        detected[i, j] = np.isfinite(m_cn[firsts]) & (m_cn[firsts] >= margins)
-    chan_freqs = np.asarray([c.channel_freq_hz for c in clusters], dtype=np.int64)
+    if m:
+        # every emission at once: where a sweep holds two emissions of one station, the one
+        # with the higher C/N is the station's reading (NaN C/N last; equal C/N: the first member)
+        grouped = clusters.station >= 0
+        every = bool(grouped.all())
+        cell = _sweep_rows(cols.sweep_id, ids)
+        cell *= m
+        cell += clusters.station                      # flat index into the (n, m) matrices
+        if not every:
+            cell = np.where(grouped, cell, -1)
+        if cols.rds_blocks.any() or cols.rds_block_errors.any():
+            take = grouped if not every else slice(None)
+            blocks += np.bincount(cell[take], cols.rds_blocks[take], minlength=n * m).reshape(shape).astype(np.int64)
+            block_errors += np.bincount(cell[take], cols.rds_block_errors[take],
+                                        minlength=n * m).reshape(shape).astype(np.int64)
+        chosen = _strongest_per_cell(cell, cols.cn_db, cols.freq_hz, n * m)
+        flat = cell[chosen]
+        del cell
+        heard.ravel()[flat] = True
+        power.ravel()[flat] = cols.power_dbfs[chosen]
+        noise.ravel()[flat] = cols.noise_dbfs[chosen]
+        ci.ravel()[flat] = cols.ci_db[chosen]
+        stereo.ravel()[flat] = cols.stereo[chosen]
+        chosen_cn = cols.cn_db[chosen]
+        cn.ravel()[flat] = chosen_cn
+        margins = np.asarray([margin[s] for s in ids], dtype=np.float64)[flat // m]
+        detected.ravel()[flat] = np.isfinite(chosen_cn) & (chosen_cn >= margins)
+        del chosen, flat, chosen_cn, margins
+    chan_freqs = clusters.channel_freq_hz.astype(np.int64)
     if m and (~heard).any():
-        channels = read_channel_matrix(conn, ids)
+        if channels is None or [int(s) for s in channels.sweep_ids.tolist()] != ids:
+            channels = read_channel_matrix(conn, ids)
         axis = channels.freqs_hz
         if axis.size:
             col = np.clip(np.searchsorted(axis, chan_freqs), 0, axis.size - 1)
-            fill = ~heard & (axis[col] == chan_freqs)[np.newaxis, :]
-            p_fill = channels.power_dbfs[:, col].astype(np.float64)
-            n_fill = channels.noise_dbfs[:, col].astype(np.float64)
-            power = np.where(fill, p_fill, power)
-            noise = np.where(fill, n_fill, noise)
+            fi, fj = np.nonzero(~heard & (axis[col] == chan_freqs)[np.newaxis, :])
+            p_fill = channels.power_dbfs[fi, col[fj]].astype(np.float64)
+            n_fill = channels.noise_dbfs[fi, col[fj]].astype(np.float64)
+            power[fi, fj] = p_fill
+            noise[fi, fj] = n_fill
             with np.errstate(invalid="ignore", over="ignore"):
                 cn_fill = np.asarray(ratio_to_db(np.asarray(db_to_ratio(p_fill - n_fill)) - 1.0))
-            cn = np.where(fill, np.where(np.isfinite(cn_fill), cn_fill, np.nan), cn)
+            cn[fi, fj] = np.where(np.isfinite(cn_fill), cn_fill, np.nan)
     started = {int(s.id): s.started_utc for s in sweeps}
-    identities = tuple(_merged_identity(c.members) for c in clusters)
-    known = _identities_across_survey(conn, clusters, ids)
+    identities = tuple(_identities(cols, clusters))
+    known = _identities_across_survey(conn, cols, clusters, ids)
     user = dict(names or {})
     return StationMatrix(
         sweep_ids=np.asarray(ids, dtype=np.int64),
         started_utc=tuple(started[i] for i in ids),
-        freqs_hz=np.asarray([c.freq_hz for c in clusters], dtype=np.float64),
-        kinds=tuple(c.kind for c in clusters),
+        freqs_hz=np.asarray(clusters.freq_hz, dtype=np.float64),
+        kinds=clusters.kinds,
         channel_freqs_hz=chan_freqs,
         power_dbfs=power,
         noise_dbfs=noise,
@@ -283,8 +331,8 @@ def census_matrix(conn: sqlite3.Connection, sweeps: Sequence[SweepRow], kinds=("
         ci_db=ci,
         detected=detected,
         stereo=stereo,
-        names=tuple(display_name(wide if wide is not None else ident, name_for(user, c.freq_hz) if user else None)
-                    for ident, wide, c in zip(identities, known, clusters)),
+        names=tuple(display_name(wide if wide is not None else ident, name_for(user, f) if user else None)
+                    for ident, wide, f in zip(identities, known, clusters.freq_hz.tolist())),
         rds_blocks=blocks,
         rds_block_errors=block_errors,
         identities=identities,
@@ -345,11 +393,12 @@ def summarise_stations(conn: sqlite3.Connection, sweeps: Sequence[SweepRow],
         return []
     configuration, input_label = next(iter(labels))
     matrix = census_matrix(conn, sweeps, kinds=kinds, names=names)
-    rows = read_station_rows(conn, [s.id for s in sweeps])
-    obw: dict[int, list[float]] = {}
+    cols = read_station_columns(conn, [s.id for s in sweeps])
+    obw: dict[int, np.ndarray] = {}
     for j, (f, kind) in enumerate(zip(matrix.freqs_hz.tolist(), matrix.kinds)):
         reach = SAME_FM_STATION_HZ if kind == "fm" else SAME_STATION_HZ
-        obw[j] = [r.occupied_bw_hz for r in rows if abs(r.freq_hz - f) <= reach and r.kind == kind]
+        near = cols.is_kind(kind) & (np.abs(cols.freq_hz - f) <= reach)
+        obw[j] = cols.occupied_bw_hz[near]
     censored = np.where(matrix.detected, matrix.cn_db, -np.inf)
     censored = np.where(np.isfinite(matrix.power_dbfs) | matrix.detected, censored, np.nan)
     cn_med, _ = median_iqr(censored)
@@ -366,7 +415,7 @@ def summarise_stations(conn: sqlite3.Connection, sweeps: Sequence[SweepRow],
             ci_db=float(np.median(ci_vals)) if ci_vals.size else None,
             power_dbfs=_finite_or_none(np.median(matrix.power_dbfs[det, j])) if det.any() else None,
             noise_dbfs=_finite_or_none(np.median(matrix.noise_dbfs[det, j])) if det.any() else None,
-            occupied_bw_hz=float(np.median(obw[j])) if obw[j] else None,
+            occupied_bw_hz=float(np.median(obw[j])) if obw[j].size else None,
             stereo=bool(det.any() and matrix.stereo[det, j].mean() >= 0.5),
             heard_sweeps=int(det.sum()),
             sweeps=int(matrix.sweep_ids.size),

@@ -61,7 +61,8 @@ def _matrix_for(survey: "Survey", sweeps: Sequence[SweepRow], kinds: tuple[str, 
     ``power_dbfs``, ``noise_dbfs``, ``cn_db``, ``detected`` and ``rows(...)``).
     """
     survey.require_census()
-    return census_matrix(survey.connection, sweeps, kinds=kinds)
+    # the raster channels fill the sweeps that did not find a station; read once, shared
+    return census_matrix(survey.connection, sweeps, kinds=kinds, channels=survey.channel_matrix(sweeps))
 
 
 def _take_rows(matrix, start: int, stop: int):
@@ -211,6 +212,13 @@ class Survey:
         return self.memo(("channel_matrix", ids), lambda: self._rows_from_read(ids) or
                          self._remember(read_sweep_matrix(self._conn, list(sweeps))))
 
+    def channel_matrices(self, *groups: Sequence[SweepRow]) -> tuple[ChannelMatrix, ...]:
+        """Raster-channel matrices of several groups of sweeps from ONE read of all of them (in id
+        order, the read :func:`_matrix_for` shares); one matrix per group, rows in the order given."""
+        every = sorted({int(s.id): s for g in groups for s in g}.values(), key=lambda s: int(s.id))
+        self.channel_matrix(every)
+        return tuple(self.channel_matrix(g) for g in groups)
+
     def _remember(self, matrix: ChannelMatrix) -> ChannelMatrix:
         self._read.append(matrix)
         return matrix
@@ -239,7 +247,13 @@ class Survey:
         # one canonical read (sweeps in id order) serves every grouping and order of the same sweeps
         every = sorted({int(s.id): s for g in groups for s in g}.values(), key=lambda s: int(s.id))
         whole = self.item_matrix(every, kinds)
-        return tuple(whole.rows([int(s.id) for s in g]) for g in groups)
+        key = tuple(int(s.id) for s in every)
+
+        def rows_of(group) -> object:
+            ids = tuple(int(s.id) for s in group)
+            return whole if ids == key else self.memo(("item_rows", key, ids, tuple(kinds)),
+                                                      lambda: whole.rows(list(ids)))
+        return tuple(rows_of(g) for g in groups)
 
     def station_matrix(self, configuration: str, input: str = "antenna", since: str | None = None,
                        until: str | None = None, kinds: tuple[str, ...] = ("fm",)):

@@ -16,7 +16,7 @@ from pathlib import Path
 import numpy as np
 
 from analysis.compare.core import Comparison, compare_configurations
-from analysis.diagnose.core import Diagnosis, diagnose
+from analysis.diagnose.core import Diagnosis, diagnose, summarise_findings
 from analysis.errors import AnalysisError, BadParameterError
 from analysis.findings import Finding
 from analysis.headline import headline_lines
@@ -165,6 +165,25 @@ def passband_coverage(survey: Survey, base: str, test: str, target_hz: tuple[flo
         f"passband coverage: -3 dB edges {e_lo / 1e6:.2f}-{e_hi / 1e6:.2f} MHz (fitted to the {pb.curve.source} gain curve) "
         f"cover {len(cov.covered_stations_hz)} of {len(cov.stations_in_target_hz)} stations heard in "
         f"{lo / 1e6:g}-{hi / 1e6:g} MHz")
+
+
+def added_noise_for(survey: Survey, base: str, test: str, options: NoiseOptions) -> tuple[str, Finding | None]:
+    """Noise added after the preamp, as every command states it: the chain diagnosis's added-noise
+    check (:func:`analysis.diagnose.noise_checks.check_added_noise`, the fit
+    ``N_test = G N_base + a G + beta``, through :func:`diagnosis_for`), computed once.
+
+    Returns ``(line, finding)``: the finding's summary line (:func:`summarise_findings`, the
+    words ``compare`` and the report print) and the finding; without one, what the check said
+    (or why it could not run) and None.
+    """
+    try:
+        diag = diagnosis_for(survey, base, test, options)
+    except AnalysisError as exc:
+        return f"added-noise: not checked ({exc})", None
+    found = [f for f in diag.findings if f.kind == "added-noise"]
+    if found:
+        return summarise_findings(found[:1])[0], found[0]
+    return next((c for c in diag.checked if c.startswith("added-noise")), "added-noise: not checked"), None
 
 
 def comparison_for(survey: Survey, base: str, test: str, **kwargs) -> Comparison:

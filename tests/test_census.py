@@ -225,7 +225,7 @@ def test_a_schema_1_database_migrates_and_rebuilds_station_rows(tmp_path, sweeps
     path = tmp_path / "v1.db"
     _v1_database(path, sweeps[:2])
     with SurveyStore(path) as store:
-        assert store.schema_version == SCHEMA_VERSION == 2
+        assert store.schema_version == SCHEMA_VERSION == 3
         notes = store.migration_notes
     assert len(notes) == 1 and "(ids 2)" in notes[0] and "without spectra" in notes[0]
     conn = open_for_reading(path)

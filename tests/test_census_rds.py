@@ -182,6 +182,9 @@ def test_a_schema_2_table_without_the_rds_columns_reads_and_gains_them(tmp_path,
     db = tmp_path / "early.db"
     _database(db, [long_sweep])
     conn = sqlite3.connect(db)
+    conn.execute("DROP INDEX stations_identified")  # back to schema 2 as first written
+    conn.execute("DROP TABLE station_vectors")
+    conn.execute("PRAGMA user_version = 2")
     for name in ("rds_pi", "rds_ps", "rds_pty", "rds_blocks", "rds_block_errors"):
         conn.execute(f"ALTER TABLE stations DROP COLUMN {name}")
     conn.commit()

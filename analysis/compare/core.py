@@ -476,15 +476,16 @@ def broadband_noise_rise(base, test, paired: bool) -> tuple[float | None, int]:
         return None, 0
     cb = np.searchsorted(base.freqs_hz, freqs)
     ct = np.searchsorted(test.freqs_hz, freqs)
-    nb = np.asarray(base.noise_dbfs, np.float64)[:, cb]
-    nt = np.asarray(test.noise_dbfs, np.float64)[:, ct]
-    empty = ~(np.asarray(base.received)[:, cb].any(axis=0) | np.asarray(test.received)[:, ct].any(axis=0))
+    empty = ~(np.asarray(base.received).any(axis=0)[cb] | np.asarray(test.received).any(axis=0)[ct])
     if not empty.any():
         return None, 0
+    # only the empty channels' noise, in float64 (the rest is never used)
+    nb = np.asarray(base.noise_dbfs)[:, cb[empty]].astype(np.float64)
+    nt = np.asarray(test.noise_dbfs)[:, ct[empty]].astype(np.float64)
     bi, ti, _ = pair_sweeps(utc_to_epoch_s(base.started_utc), utc_to_epoch_s(test.started_utc))
     if paired and bi.size:
-        rise = column_mean_sd(nt[ti][:, empty] - nb[bi][:, empty])[0]
+        rise = column_mean_sd(nt[ti] - nb[bi])[0]
     else:
-        rise = column_mean_sd(nt[:, empty])[0] - column_mean_sd(nb[:, empty])[0]
+        rise = column_mean_sd(nt)[0] - column_mean_sd(nb)[0]
     rise = rise[np.isfinite(rise)]
     return (round(float(np.median(rise)), 4) if rise.size else None), int(empty.sum())

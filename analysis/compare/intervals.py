@@ -16,8 +16,9 @@ Unpaired (taken at different times): Welch's interval for the difference of two 
 the Welch-Satterthwaite degrees of freedom (Welch 1947, Biometrika 34, 28-35).
 
 Everything is vectorised over items (columns); NaN entries are ignored per column.
-``scipy.stats`` is imported when an interval is first computed (it is slow to import and
-only this module needs it).
+The t distribution comes from ``scipy.special`` (``stdtrit``, ``stdtr``: what ``scipy.stats.t``
+calls), so a comparison does not import ``scipy.stats``; the median interval imports it when
+first used.
 """
 
 from __future__ import annotations
@@ -42,15 +43,18 @@ class Intervals:
 
 
 def _t_quantile(level: float, dof: np.ndarray) -> np.ndarray:
-    import scipy.stats  # imported here on purpose: only the intervals need it (slow import)
+    """Student t quantile: ``scipy.special.stdtrit``, the function ``scipy.stats.t.ppf`` calls
+    (the same values, without importing ``scipy.stats``)."""
+    from scipy.special import stdtrit
 
-    return scipy.stats.t.ppf(level, np.maximum(dof, 1.0))
+    return stdtrit(np.maximum(dof, 1.0), level)
 
 
 def _t_two_sided_p(t_stat: np.ndarray, dof: np.ndarray) -> np.ndarray:
-    import scipy.stats
+    """Two-sided p-value ``2 P(T > |t|)``: ``scipy.special.stdtr`` (what ``scipy.stats.t.sf`` calls)."""
+    from scipy.special import stdtr
 
-    return 2.0 * scipy.stats.t.sf(np.abs(t_stat), np.maximum(dof, 1.0))
+    return 2.0 * stdtr(np.maximum(dof, 1.0), -np.abs(t_stat))
 
 
 def column_mean_sd(values: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:

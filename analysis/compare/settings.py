@@ -2,12 +2,14 @@
 
 from __future__ import annotations
 
+from operator import attrgetter
+
 from analysis.errors import MismatchError
 from survey.store import SweepRow
 
 
 def _values(rows: list[SweepRow], name: str) -> list:
-    return sorted({getattr(r, name) for r in rows}, key=lambda v: (v is None, v))
+    return sorted(set(map(attrgetter(name), rows)), key=lambda v: (v is None, v))
 
 
 def _fmt(values: list, unit: str = "") -> str:

@@ -470,16 +470,9 @@ def _summarise(freqs, col, g, rx_method, gain_method, nf_method, for_nf_db, assu
                 "preamp_nf_terminated_db", "predicted_benefit_db", "projected_benefit_db"):
         s[key] = _median(col[key], region)
     s["for_receiver_nf_db"] = for_nf_db
+    # the 1/G split of the preamp temperature stays a cross-check in the summary; the added noise
+    # the commands state is the chain diagnosis's one estimate (analysis.workflows.added_noise_for)
     s.update(_noise_after_gain(col["preamp_temp_k"], gain, col["preamp_nf_uncertainty_db"]))
-    ts, u_ts, tr_med = s["noise_after_gain_k"], s["noise_after_gain_uncertainty_k"], _median(col["receiver_temp_k"])
-    if ts is not None and tr_med is not None and ts > max(3 * u_ts, 0.2 * tr_med):
-        nf_in = s["preamp_nf_at_input_db"]
-        alone = f"input NF alone about {nf_in:.2f} dB" if nf_in is not None else "input NF alone not resolved"
-        assumptions.append(
-            f"noise of about {ts:.0f} ± {u_ts:.0f} K (referred to the receiver input) enters after the preamp's "
-            f"gain: the preamp NF rises as 1/G away from the peak ({alone}); check the preamp's supply and its "
-            "output stage, then repeat the noise-hot/noise-cold runs"
-        )
     # cross-check: station gains against the hot-minus-cold gain (compression, AGC, fading show here)
     s["station_minus_hot_cold_gain_db"] = (
         _median(col["preamp_gain_stations_db"] - gain) if gain_method == "y-factor" else None

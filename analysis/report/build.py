@@ -19,6 +19,8 @@ reason being the message of the :class:`~analysis.errors.AnalysisError` the anal
 
 from __future__ import annotations
 
+from operator import attrgetter
+
 import time
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -218,7 +220,7 @@ def read_settings(survey: Survey, sweeps: list[SweepRow]) -> RunSettings:
     runs = [r for r in survey.runs() if r.id in run_ids]
     pairs = []
     for name, what, unit in _SWEEP_FIELDS:
-        values = sorted({getattr(s, name) for s in sweeps}, key=lambda v: (v is None, str(v)))
+        values = sorted(set(map(attrgetter(name), sweeps)), key=lambda v: (v is None, str(v)))
         scale = _SCALE.get(name)
         shown = [_fmt_value(v * scale if scale and v is not None else v) + ("" if v is None else unit)
                  for v in values]
@@ -245,9 +247,7 @@ def read_overnight(survey: Survey, base_rows: list[SweepRow], test_rows: list[Sw
         lack = [r for r, rows in (("base", base_rows), ("test", test_rows)) if not rows]
         raise NoDataError(f"no antenna sweeps of the {' and '.join(lack)} configuration to follow over time; "
                           "record antenna sweeps of both")
-    survey.channel_matrix(list(base_rows) + list(test_rows))  # one read; the two below are slices of it
-    mat_b = survey.channel_matrix(base_rows)
-    mat_t = survey.channel_matrix(test_rows)
+    mat_b, mat_t = survey.channel_matrices(base_rows, test_rows)  # one read, shared with the census
     label = {r.id: r.configuration for r in base_rows + test_rows}
     hops = [(h, label[h.sweep_id]) for h in survey.hops(list(label))]
     strongest = weakest = None

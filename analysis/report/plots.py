@@ -114,6 +114,20 @@ class _Clock:
         return (np.asarray(epoch_s, np.float64) - self.t0) / self.scale
 
 
+def _per_sweep_medians(sweep_ids: np.ndarray, *values: np.ndarray) -> list[np.ndarray]:
+    """Median of each of ``values`` over the hops of each sweep, sweeps in ascending id order
+    (one sort, then each sweep's slice; the hop count grows with the sweeps)."""
+    order = np.argsort(sweep_ids, kind="stable")
+    ids = sweep_ids[order]
+    starts = np.flatnonzero(np.r_[True, ids[1:] != ids[:-1]]) if ids.size else np.zeros(0, np.int64)
+    bounds = np.r_[starts, ids.size]
+    out = []
+    for v in values:
+        v_sorted = np.asarray(v)[order]
+        out.append(np.asarray([np.median(v_sorted[a:b]) for a, b in zip(bounds[:-1].tolist(), bounds[1:].tolist())]))
+    return out
+
+
 def overnight_png(series: OvernightSeries, base: str, test: str) -> bytes:
     """Two panels against UTC time: hop noise floors, and C/N of the strongest / weakest station."""
     fig = _figure()(figsize=(10, 6.6), layout="constrained")
@@ -129,9 +143,7 @@ def overnight_png(series: OvernightSeries, base: str, test: str) -> bytes:
             floor = np.asarray([h.floor_dbfs_hz for h in hops], np.float64)
             ax_f.plot(t, floor, linestyle="none", marker=marker, markersize=3, color=colour,
                       markerfacecolor=face, alpha=0.6, label=f"{role}: {mpl_text(label)}, each hop")
-            sweeps = sorted({h.sweep_id for h in hops})
-            med_t = [np.median(t[[h.sweep_id == s for h in hops]]) for s in sweeps]
-            med_f = [np.median(floor[[h.sweep_id == s for h in hops]]) for s in sweeps]
+            med_t, med_f = _per_sweep_medians(np.asarray([h.sweep_id for h in hops], np.int64), t, floor)
             ax_f.plot(med_t, med_f, linestyle=dash, color=colour, linewidth=1.4,
                       label=f"{role}: median over the hops of each sweep")
     ax_f.set_ylabel("hop noise floor, dBFS/Hz")

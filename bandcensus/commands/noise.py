@@ -5,6 +5,8 @@ from __future__ import annotations
 import click
 
 from analysis.noise.workflow import analyse_noise
+from analysis.selection import Survey
+from analysis.workflows import added_noise_for
 from bandcensus.commands._common import db_option, echo_json, json_option
 from bandcensus.commands._noise_source import noise_options_from, noise_source_options
 from bandcensus.commands._csv import write_csv
@@ -33,8 +35,6 @@ _SUMMARY = (
     ("preamp_nf_uncertainty_db", "preamp NF standard uncertainty", lambda v: f"{v:.2f} dB"),
     ("preamp_nf_terminated_db", "preamp NF (terminated ratio)", lambda v: f"{v:.2f} dB"),
     ("station_minus_hot_cold_gain_db", "gain on stations minus hot-minus-cold gain", lambda v: f"{v:+.2f} dB"),
-    ("noise_after_gain_k", "noise entering after the preamp gain (fit vs 1/G)", lambda v: f"{v:.0f} K"),
-    ("preamp_nf_at_input_db", "preamp NF without it", lambda v: f"{v:.2f} dB"),
     ("antenna_temp_k", "antenna noise temperature", lambda v: f"{v:.0f} K"),
     ("outside_fa_db", "outside noise Fa", lambda v: f"{v:.1f} dB"),
     ("closest_environment", "closest P.372 environment", str),
@@ -45,8 +45,10 @@ _SUMMARY = (
 
 
 #: Summary rows shown only with --explain (cross-checks of the main figures).
-_DETAIL = frozenset({"passband_peak_gain_db", "preamp_nf_terminated_db", "station_minus_hot_cold_gain_db",
-                     "noise_after_gain_k", "preamp_nf_at_input_db"})
+_DETAIL = frozenset({"passband_peak_gain_db", "preamp_nf_terminated_db", "station_minus_hot_cold_gain_db"})
+#: The noise workflow's own 1/G split of the preamp temperature: a cross-check, not printed; the
+#: added noise after the preamp is the one estimate every command prints (added_noise_for).
+_NOT_PRINTED = ("noise_after_gain_k", "noise_after_gain_uncertainty_k", "preamp_nf_at_input_db")
 #: Short headers and drop order of the per-channel columns (in the order of ``_COLUMNS``).
 _SHORT = ("rx NF", "sys NF", "G", "NF", "±", "Ta", "Fa", "C/N+", "other")
 _DROP = (None, 3, None, None, 2, None, 1, None, 0)
@@ -86,15 +88,22 @@ def command(db_path, receiver, system, enr_db, enr_table, cold_k, receiver_nf_db
     if as_json and as_csv:
         raise click.UsageError("choose one of --json and --csv")
     options = noise_options_from(enr_db, enr_table, cold_k, receiver_nf_db)
-    result = analyse_noise(
-        db_path, receiver, system, enr_uncertainty_db=enr_uncertainty_db, for_receiver_nf_db=for_receiver_nf_db,
-        **options.workflow_kwargs(),
-    )
+    with Survey(db_path) as survey:
+        result = analyse_noise(
+            survey, receiver, system, enr_uncertainty_db=enr_uncertainty_db, for_receiver_nf_db=for_receiver_nf_db,
+            **options.workflow_kwargs(),
+        )
+        added, finding = added_noise_for(survey, receiver, system, options) if system else ("", None)
     if plot_path:
         from analysis.noise.plots import plot_noise
 
         plot_noise(result, plot_path)
     payload = result.to_dict()
+    for key in _NOT_PRINTED:
+        payload["summary"].pop(key, None)
+    if system:
+        payload["added_noise_after_preamp"] = {"line": added,
+                                               "evidence": None if finding is None else dict(finding.evidence)}
     if as_json:
         echo_json(payload)
         return
@@ -113,6 +122,8 @@ def command(db_path, receiver, system, enr_db, enr_table, cold_k, receiver_nf_db
             rows.append([label, fmt(s[key])])
     print_fitted(f"Noise of '{receiver}'{what}, {s['summary_region']}",
                  [Column("quantity", justify="left"), Column("value")], rows)
+    if system:
+        click.echo(f"Added noise after the preamp (the diagnosis's estimate): {added}")
     click.echo("Workflows: " + ", ".join(payload["workflows"]))
     n = len(payload["assumptions"])
     if explain:

@@ -166,12 +166,8 @@ def list_sweeps(
     if where:
         sql += " WHERE " + " AND ".join(where)
     sql += " ORDER BY started_utc, id"
-    rows = []
-    for r in conn.execute(sql, args):
-        d = dict(zip(_SWEEP_COLUMNS, r))
-        d["complete"] = bool(d["complete"])
-        rows.append(SweepRow(**d))
-    return rows
+    complete = _SWEEP_COLUMNS.index("complete")
+    return [SweepRow(*r[:complete], bool(r[complete]), *r[complete + 1:]) for r in conn.execute(sql, args)]
 
 
 def read_channel_matrix(conn: sqlite3.Connection, sweep_ids: Sequence[int]) -> ChannelMatrix:
@@ -401,26 +397,37 @@ def read_sweep_matrix(conn: sqlite3.Connection, sweeps: Sequence[SweepRow]) -> C
 
     Fast path for the usual case, every sweep on one frequency axis: the columnar blobs are
     joined and decoded once instead of sweep by sweep; anything else (mixed axes, a sweep
-    without its columnar copy) goes through :func:`read_channel_matrix`.
+    without its columnar copy, a sweep asked twice) goes through :func:`read_channel_matrix`.
     """
     ids = [int(r.id) for r in sweeps]
-    blobs: dict[int, tuple[bytes, bytes, bytes, bytes]] = {}
+    if not ids or len(set(ids)) != len(ids):
+        return read_channel_matrix(conn, ids)
+    # chunk by chunk in the order asked, each column appended to one writable buffer that the
+    # arrays then use in place: the blobs fetched are held one chunk at a time, copied once
+    axis: bytes | None = None
+    joined = [bytearray(), bytearray(), bytearray()]
     for start in range(0, len(ids), 900):
         chunk = ids[start:start + 900]
         marks = ",".join("?" * len(chunk))
-        for sid, fr, pw, nz, rc in conn.execute(
+        blobs = {int(sid): (fr, pw, nz, rc) for sid, fr, pw, nz, rc in conn.execute(
             f"SELECT sweep_id, freqs_hz, power_dbfs, noise_dbfs, received FROM channel_vectors"
             f" WHERE sweep_id IN ({marks})", chunk,
-        ):
-            blobs[int(sid)] = (fr, pw, nz, rc)
-    if not ids or len(blobs) != len(ids) or len({b[0] for b in blobs.values()}) != 1:
-        return read_channel_matrix(conn, ids)
-    freqs = np.frombuffer(blobs[ids[0]][0], dtype="<i8").astype(np.int64)
+        )}
+        if len(blobs) != len(chunk):
+            return read_channel_matrix(conn, ids)  # a sweep without its columnar copy
+        axis = axis if axis is not None else blobs[chunk[0]][0]
+        if any(b[0] != axis for b in blobs.values()):
+            return read_channel_matrix(conn, ids)  # mixed frequency axes
+        ordered = [blobs[i] for i in chunk]
+        for k, acc in enumerate(joined, start=1):
+            acc += b"".join(b[k] for b in ordered)
+        del blobs, ordered
+    freqs = np.frombuffer(axis, dtype="<i8").astype(np.int64)
     n, m = len(ids), freqs.size
-    ordered = [blobs[i] for i in ids]
-    power = np.frombuffer(b"".join(b[1] for b in ordered), dtype="<f4").reshape(n, m).astype(np.float32)
-    noise = np.frombuffer(b"".join(b[2] for b in ordered), dtype="<f4").reshape(n, m).astype(np.float32)
-    received = np.frombuffer(b"".join(b[3] for b in ordered), dtype=np.uint8).reshape(n, m).astype(bool)
+    power = np.frombuffer(joined[0], dtype="<f4").reshape(n, m)
+    noise = np.frombuffer(joined[1], dtype="<f4").reshape(n, m)
+    received = np.frombuffer(joined[2], dtype=np.uint8).reshape(n, m)
+    received = received.view(bool) if received.max(initial=0) <= 1 else received.astype(bool)
     return ChannelMatrix(np.asarray(ids, np.int64), tuple(r.started_utc for r in sweeps), freqs, power, noise,
                          received)
 

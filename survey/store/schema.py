@@ -17,7 +17,7 @@ from pathlib import Path
 from survey.errors import StoreError
 
 #: Version of the schema below, stored in ``PRAGMA user_version``.
-SCHEMA_VERSION = 2
+SCHEMA_VERSION = 3
 
 _SCHEMA_V1 = """
 CREATE TABLE IF NOT EXISTS runs (
@@ -128,13 +128,33 @@ CREATE TABLE IF NOT EXISTS stations (
 CREATE INDEX IF NOT EXISTS stations_by_sweep ON stations(sweep_id, freq_hz);
 """
 
+_SCHEMA_V3 = """
+CREATE TABLE IF NOT EXISTS station_vectors (
+    sweep_id INTEGER PRIMARY KEY REFERENCES sweeps(id),
+    n_stations INTEGER NOT NULL,
+    n_rds INTEGER NOT NULL,
+    kinds TEXT NOT NULL,
+    freq_hz BLOB NOT NULL,
+    power_dbfs BLOB NOT NULL,
+    noise_dbfs BLOB NOT NULL,
+    cn_db BLOB NOT NULL,
+    ci_db BLOB NOT NULL,
+    channel_freq_hz BLOB NOT NULL,
+    kind BLOB NOT NULL,
+    flags BLOB NOT NULL,
+    occupied_bw_hz BLOB NOT NULL,
+    hop_index BLOB NOT NULL
+) STRICT;
+CREATE INDEX IF NOT EXISTS stations_identified ON stations(sweep_id) WHERE rds_pi IS NOT NULL;
+"""
+
 #: RDS columns of ``stations`` with their types (as in :data:`_SCHEMA_V2`).
 _RDS_COLUMN_TYPES = (("rds_pi", "INTEGER"), ("rds_ps", "TEXT"), ("rds_pty", "INTEGER"),
                      ("rds_blocks", "INTEGER NOT NULL DEFAULT 0"),
                      ("rds_block_errors", "INTEGER NOT NULL DEFAULT 0"))
 
 #: Named migrations: version reached -> SQL. Each runs in its own transaction.
-MIGRATIONS: dict[int, str] = {1: _SCHEMA_V1, 2: _SCHEMA_V2}
+MIGRATIONS: dict[int, str] = {1: _SCHEMA_V1, 2: _SCHEMA_V2, 3: _SCHEMA_V3}
 
 
 def utc_now() -> str:

@@ -2,7 +2,8 @@
 
 One sweep is written in one transaction (``BEGIN IMMEDIATE``): a crash loses at most the sweep in
 progress, never a committed one. ``channel_vectors`` holds a columnar copy of each sweep's
-channel rows (little-endian blobs) written in the same transaction; kept spectra are written
+channel rows (little-endian blobs) and ``station_vectors`` of its station rows
+(:mod:`survey.store.station_columns`), both written in the same transaction; kept spectra are written
 through :mod:`survey.spectra_codec` (full resolution for noise inputs, thinned for antenna sweeps).
 """
 
@@ -22,6 +23,7 @@ from survey.version import __version__
 from survey.errors import StoreError
 from survey.records import EmissionReading, RunInfo, SweepResult
 from survey.store.read import read_spectra
+from survey.store.station_columns import build_missing_station_vectors, insert_station_vector
 from survey.store.schema import (
     _RDS_COLUMN_TYPES, APPLICATION_ID, MIGRATIONS, SCHEMA_VERSION, _connect, _is_busy, _is_full, check_ownership, open_error,
     utc_now,
@@ -85,6 +87,8 @@ class SurveyStore:
             )
         if self.conn.execute("PRAGMA application_id").fetchone()[0] != APPLICATION_ID:
             self.conn.execute(f"PRAGMA application_id = {APPLICATION_ID}")  # ours (checked): mark it
+        if version == 2:
+            self._add_rds_columns()  # before schema 3, whose index and columnar copy read them
         for target in sorted(MIGRATIONS):
             if target <= version:
                 continue
@@ -95,13 +99,13 @@ class SurveyStore:
                         self.conn.execute(statement)
                 if target == 2 and version >= 1:
                     self.migration_notes.extend(_rebuild_station_rows(self.conn))
+                if target == 3 and version >= 1:
+                    build_missing_station_vectors(self.conn)
                 self.conn.execute(f"PRAGMA user_version = {int(target)}")
                 self.conn.execute("COMMIT")
             except BaseException:
                 self.conn.execute("ROLLBACK")
                 raise
-        if version == 2:
-            self._add_rds_columns()
 
     def _add_rds_columns(self) -> None:
         """Add the RDS columns to a schema-2 ``stations`` table written before they existed.
@@ -261,7 +265,9 @@ class SurveyStore:
                     np.asarray([r.received for r in rows], dtype=np.uint8).tobytes(),
                 ),
             )
-            _insert_station_rows(c, sweep_id, result.emissions)
+            emissions = sorted(result.emissions, key=lambda e: e.freq_hz)
+            _insert_station_rows(c, sweep_id, emissions)
+            insert_station_vector(c, sweep_id, emissions)  # the same rows, columnar (same order)
             if keep_spectra:
                 for h in result.hops:
                     if h.psd_dbfs_hz is None or h.psd_freqs_hz is None or len(h.psd_freqs_hz) < 2:

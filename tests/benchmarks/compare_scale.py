@@ -4,9 +4,11 @@ Builds a survey database under /tmp (simulated: invented stations, a sweep every
 European FM band, 87.5-108.0 MHz on the 100 kHz raster = 206 channels, labels ``bare`` and
 ``preamp-a`` alternating; 48 544 sweeps = 10.0 million channel readings for ``--rows 10e6``)
 with the schema of :mod:`survey.store`. The analyses read the columnar ``channel_vectors``
-copy, which holds every reading, and the census's ``stations`` table (one row per occupied
-channel a sweep detected); the per-row ``channels`` table is written for the first 20 sweeps
-only, to keep the build short (build time is not the benchmark).
+copy, which holds every reading, and the census's station rows (one per occupied channel a
+sweep detected, 0.39 per channel reading), written both to ``stations`` and, packed by
+:func:`survey.store.station_blobs` as the store's writer packs them, to the columnar
+``station_vectors`` the census reads. The per-row ``channels`` table is written for the first
+20 sweeps only, to keep the build short (build time is not the benchmark).
 
 Each stage runs in a fresh child process so that its peak resident memory
 (``resource.getrusage(RUSAGE_SELF).ru_maxrss``) is its own. In the same child the plain
@@ -19,7 +21,7 @@ no test, no printing). Reported: stage time / baseline time (mean of the two bas
   prints by default (output to /dev/null); goal within 3x of the baseline, < 1 GB.
 * ``report``: ``bandcensus report ... --out report.html``; goal within 6x, < 1 GB.
 
-Run: ``PYTHONPATH=. python tests/benchmarks/compare_scale.py [--rows 10e6] [--keep]``.
+Run: ``PYTHONPATH=. python tests/benchmarks/compare_scale.py [--rows 1e6 10e6] [--keep]``.
 """
 
 from __future__ import annotations
@@ -48,7 +50,8 @@ def channel_axis_hz() -> np.ndarray:
 
 def build(path: Path, n_sweeps: int, seed: int = 0) -> dict:
     """Write the benchmark database; returns counts and the build time."""
-    from survey.store import SurveyStore
+    from survey.store import STATION_VECTOR_FIELDS, SurveyStore, station_blobs
+    from survey.store.station_columns import INSERT_STATION_VECTOR
 
     t0 = time.perf_counter()
     with SurveyStore(path) as store:  # schema and migrations exactly as the tool makes them
@@ -119,6 +122,16 @@ def build(path: Path, n_sweeps: int, seed: int = 0) -> dict:
                 power32[det_i, det_j].astype(float).tolist(), noise32[det_i, det_j].astype(float).tolist(),
                 cn[det_i, det_j].astype(float).tolist(), freqs[det_j].tolist()),
         )
+        # and their columnar copy, packed by the store's own function (one station_vectors row per sweep)
+        per_sweep = np.cumsum(np.bincount(det_i, minlength=n))[:-1]
+        vectors = []
+        for i, (s, j) in enumerate(zip(k.tolist(), np.split(det_j, per_sweep))):
+            blobs = station_blobs(
+                freqs[j] + 1300.0, power32[i, j].astype(float), noise32[i, j].astype(float), cn[i, j].astype(float),
+                np.full(j.size, np.nan), np.full(j.size, 150000.0), freqs[j], j // 21, np.zeros(j.size, np.uint8),
+                np.zeros(j.size, bool), np.ones(j.size, bool))
+            vectors.append((int(s) + 1, int(j.size), 0, "fm", *(blobs[f] for f, _ in STATION_VECTOR_FIELDS)))
+        conn.executemany(INSERT_STATION_VECTOR, vectors)
         station_rows += int(det_i.size)
         rows_written += n * m
         if c0 > 0:
@@ -199,9 +212,25 @@ def _child(stage: str, path: Path) -> dict:
     return json.loads(out.stdout)
 
 
+def _time_database(path: Path) -> dict:
+    """Both stages on one database; prints one line each and returns their results."""
+    out = {}
+    for stage, goal in (("compare", 3.0), ("report", 6.0)):
+        r = _child(stage, path)
+        r["ratio"] = r["seconds"] / r["baseline_s"]
+        print(f"{stage}: exit {r['code']}, {r['seconds']:.2f} s wall ({r['cpu_s']:.2f} s CPU), plain numpy pass "
+              f"{r['baseline_s']:.2f} s: ratio {r['ratio']:.2f}x (goal {goal:g}x); peak RSS {r['peak_rss_mb']:.0f} MB "
+              f"(goal < 1024 MB); printed {r['printed_lines']} lines")
+        print(f"  first line: {r['first_line']}")
+        out[stage] = r
+    return out
+
+
 def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    ap.add_argument("--rows", type=float, default=10e6, help="channel readings to build (206 per sweep)")
+    ap.add_argument("--rows", type=float, nargs="+", default=[10e6],
+                    help="channel readings to build (206 per sweep); several sizes (e.g. 1e6 10e6) are timed in "
+                         "turn and their growth printed")
     ap.add_argument("--keep", action="store_true")
     ap.add_argument("--stage", choices=["compare", "report"])
     ap.add_argument("--db", help="time an existing database (e.g. one kept with --keep) instead of building one")
@@ -209,30 +238,33 @@ def main() -> None:
     if args.stage:
         print(json.dumps(run_stage(args.stage, args.db)))
         return
-    reuse = args.db is not None
-    folder = Path(args.db).parent if reuse else Path(tempfile.mkdtemp(prefix="bandcensus-bench-", dir="/tmp"))
-    path = Path(args.db) if reuse else folder / "week.db"
-    try:
-        if reuse:
-            print(f"timing the existing database {path} ({path.stat().st_size / 1e9:.2f} GB)")
-        else:
-            info = build(path, int(round(args.rows / N_CHANNELS)))
-            print(f"built {info['sweeps']} sweeps, {info['channel_rows']:,} channel readings, {info['station_rows']:,} station rows, "
-                  f"{info['db_bytes'] / 1e9:.2f} GB in {info['build_s']:.0f} s (not the benchmark)")
-        for stage, goal in (("compare", 3.0), ("report", 6.0)):
-            r = _child(stage, path)
-            ratio = r["seconds"] / r["baseline_s"]
-            print(f"{stage}: exit {r['code']}, {r['seconds']:.2f} s wall ({r['cpu_s']:.2f} s CPU), plain numpy pass "
-                  f"{r['baseline_s']:.2f} s: ratio {ratio:.2f}x (goal {goal:g}x); peak RSS {r['peak_rss_mb']:.0f} MB "
-                  f"(goal < 1024 MB); printed {r['printed_lines']} lines")
-            print(f"  first line: {r['first_line']}")
-    finally:
-        if not args.keep and not reuse:
-            for p in folder.glob("*"):
-                p.unlink()
-            folder.rmdir()
-        elif not reuse:
-            print(f"kept {path}")
+    if args.db is not None:
+        path = Path(args.db)
+        print(f"timing the existing database {path} ({path.stat().st_size / 1e9:.2f} GB)")
+        _time_database(path)
+        return
+    results = []
+    for rows in args.rows:
+        folder = Path(tempfile.mkdtemp(prefix="bandcensus-bench-", dir="/tmp"))
+        path = folder / "week.db"
+        try:
+            info = build(path, int(round(rows / N_CHANNELS)))
+            print(f"built {info['sweeps']} sweeps, {info['channel_rows']:,} channel readings, "
+                  f"{info['station_rows']:,} station rows, {info['db_bytes'] / 1e9:.2f} GB in {info['build_s']:.0f} s "
+                  "(not the benchmark)")
+            results.append((info["channel_rows"], _time_database(path)))
+        finally:
+            if not args.keep:
+                for p in folder.glob("*"):
+                    p.unlink()
+                folder.rmdir()
+            else:
+                print(f"kept {path}")
+    for (n0, r0), (n1, r1) in zip(results, results[1:]):
+        for stage in ("compare", "report"):
+            print(f"growth {n0:,} -> {n1:,} readings ({n1 / n0:.1f}x): {stage} {r1[stage]['seconds'] / r0[stage]['seconds']:.1f}x "
+                  f"wall, {r1[stage]['cpu_s'] / r0[stage]['cpu_s']:.1f}x CPU; baseline "
+                  f"{r1[stage]['baseline_s'] / r0[stage]['baseline_s']:.1f}x")
 
 
 if __name__ == "__main__":
