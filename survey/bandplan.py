@@ -348,12 +348,14 @@ def _assign(freqs: np.ndarray, centers: np.ndarray, limits: tuple) -> np.ndarray
     """
     d_min, d_max, inner, outer = limits
     owner = np.full(freqs.size, -1, dtype=np.int64)
-    for i, f in enumerate(freqs.tolist()):
+    distance = np.abs(np.subtract.outer(np.asarray(freqs, dtype=np.int64), np.asarray(centers, dtype=np.int64)))
+    fits = (distance >= d_min) & (distance <= d_max)  # whole hertz: exact in int64
+    center_list = centers.tolist()
+    for i in np.flatnonzero(fits.any(axis=1)).tolist():
+        f = int(freqs[i])
         best = None
-        for j, c in enumerate(centers.tolist()):
-            if not d_min <= abs(f - c) <= d_max:
-                continue
-            m = channel_margin_hz(f, c, inner, outer)
+        for j in np.flatnonzero(fits[i]).tolist():  # ascending: ties go to the lowest hop index
+            m = channel_margin_hz(f, center_list[j], inner, outer)
             if best is None or m > best:
                 best, owner[i] = m, j
     return owner

@@ -114,14 +114,43 @@ def _boxcar(x: np.ndarray, width: int) -> np.ndarray:
     if width <= 1:
         return x.copy()
     known = np.isfinite(x)
-    vals = np.where(known, x, 0.0)
-    kernel = np.ones(width)
-    total = np.convolve(vals, kernel, mode="same")
-    count = np.convolve(known.astype(np.float64), kernel, mode="same")
-    with np.errstate(invalid="ignore", divide="ignore"):
-        out = total / count
-    out[count == 0] = np.nan
-    return out
+    return _RunningMean(known, width).of(np.where(known, x, 0.0))
+
+
+@lru_cache(maxsize=64)
+def _window_ends(n: int, half: int) -> tuple[np.ndarray, np.ndarray]:
+    """Indices into a cumulative sum (with a leading zero) of each window's end and start."""
+    i = np.arange(n)
+    upper, lower = np.minimum(i + half + 1, n), np.maximum(i - half, 0)
+    for a in (upper, lower):
+        a.setflags(write=False)
+    return upper, lower
+
+
+class _RunningMean:
+    """Running mean over ``width`` bins (odd) of arrays known on the same bins ``known``.
+
+    The count of known bins in each window is fixed, so each mean costs one cumulative sum
+    (double precision; the windows' sums are differences of it) instead of a convolution.
+    """
+
+    def __init__(self, known: np.ndarray, width: int) -> None:
+        self.upper, self.lower = _window_ends(known.size, width // 2)
+        c = np.zeros(known.size + 1, dtype=np.int64)
+        np.cumsum(known, out=c[1:])
+        count = (c[self.upper] - c[self.lower]).astype(np.float64)
+        self.empty = count == 0
+        count[self.empty] = np.nan
+        self.count = count
+        self._cum = np.zeros(known.size + 1)
+
+    def of(self, values: np.ndarray) -> np.ndarray:
+        """Running mean of ``values`` (zero on the unknown bins), NaN where a window holds none."""
+        np.cumsum(values, out=self._cum[1:])
+        out = self._cum[self.upper]
+        out -= self._cum[self.lower]
+        out /= self.count
+        return out
 
 
 def _odd(n: float) -> int:
@@ -281,42 +310,47 @@ def find_emissions(
     if not known.any():
         return []
     excess = np.where(known, psd64 - n0, np.nan)
-    residual = _boxcar(excess, _odd(tuning.smooth_hz / step))
+    residual = _RunningMean(known, _odd(tuning.smooth_hz / step)).of(np.where(known, psd64 - n0, 0.0))
     residual[~known] = np.nan
-    total = np.where(known, psd64, np.nan)
+    total = np.where(known, psd64, 0.0)
 
     detect_w = _odd(tuning.detect_hz / step)
     rel_var = group_variance_factor(offsets.size, detect_w) / float(effective_averages) + tuning.model_error**2
-    local_total = _boxcar(total, detect_w)
+    wide_mean = _RunningMean(known, detect_w)  # the residual's NaN bins are the unknown ones, always
+    wide_scale = wide_mean.of(total) * np.sqrt(rel_var)
     line_w = _odd(tuning.line_hz / step)
     line_var = group_variance_factor(offsets.size, line_w) / float(effective_averages) + tuning.model_error**2
-    line_total = _boxcar(total, line_w)
+    line_mean = _RunningMean(known, line_w)
+    line_scale = line_mean.of(total) * np.sqrt(line_var)
     search = int(round(tuning.carrier_search_hz / step))
     sym_reach = int(round(tuning.symmetry_reach_hz / step))
     skirt_reach = int(round(tuning.skirt_reach_hz / step))
     envelope_w = _odd(tuning.envelope_hz / step)
+    taper = 1.0 - np.arange(sym_reach + 1) / (sym_reach + 1.0)
 
     carriers: list[float] = []
     components: list[tuple[int, np.ndarray]] = []  # (carrier bin, mirror spectrum for d = 0..reach)
     reaches: list[float] = []  # sideband reach of each emission found, Hz
     strengths: list[float] = []  # detection score of each emission found
-    blocked = np.zeros(offsets.size, dtype=bool)
+    open_bins = known.copy()  # known and not yet blocked
+    values = np.empty(offsets.size)
     for _ in range(tuning.max_emissions * 3):
         if len(carriers) >= tuning.max_emissions:
             break
-        wide = _boxcar(residual, detect_w)
-        narrow = _boxcar(residual, line_w)
+        np.copyto(values, residual)
+        values[~known] = 0.0
+        wide = wide_mean.of(values)
+        narrow = line_mean.of(values)
         with np.errstate(divide="ignore", invalid="ignore"):  # a zero floor (no signal) scores NaN
-            score = np.fmax(wide / (local_total * np.sqrt(rel_var)), narrow / (line_total * np.sqrt(line_var)))
-        score[~np.isfinite(score)] = np.nan
-        window_mean = np.fmax(wide, narrow)
-        score[~known | blocked] = np.nan
+            score = np.fmax(wide / wide_scale, narrow / line_scale)
         significant = score >= tuning.detect_sigma
+        significant &= np.isfinite(score)
+        significant &= open_bins
         if not significant.any():
             break
+        window_mean = np.fmax(wide, narrow)
         peak = int(np.argmax(np.where(significant, window_mean, -np.inf)))  # strongest first
         cand = np.arange(max(peak - search, 0), min(peak + search + 1, offsets.size))
-        taper = 1.0 - np.arange(sym_reach + 1) / (sym_reach + 1.0)
         sym = np.nansum(np.clip(_mirror_min(residual, cand, sym_reach), 0.0, None) * taper, axis=1)
         best = int(np.argmax(sym))
         frac = 0.0
@@ -329,10 +363,10 @@ def find_emissions(
         half_block = max(detect_w // 2, 1)
         if any(abs(carrier + c) < tuning.image_hz and window_mean[peak] < s_c * tuning.image_below
                for c, s_c in zip(carriers, strengths)):
-            blocked[max(peak - half_block, 0) : peak + half_block + 1] = True
+            open_bins[max(peak - half_block, 0) : peak + half_block + 1] = False
             continue  # the receiver's IQ-imbalance image of a stronger emission
         if any(abs(carrier - c) < reach for c, reach in zip(carriers, reaches)):
-            blocked[max(peak - half_block, 0) : peak + half_block + 1] = True
+            open_bins[max(peak - half_block, 0) : peak + half_block + 1] = False
             continue  # a sideband or the asymmetry of a stronger emission
         raw_mirror = _mirror_min(residual, np.asarray([at]), skirt_reach)[0]
         own = np.clip(np.nan_to_num(raw_mirror, nan=0.0), 0.0, None)
@@ -340,7 +374,7 @@ def find_emissions(
         envelope = np.clip(np.nan_to_num(_boxcar(raw_mirror, envelope_w), nan=0.0), 0.0, None)
         own[core:] = np.minimum(own[core:], np.minimum.accumulate(envelope[core:]))
         if own[: sym_reach + 1].sum() <= 0.0:
-            blocked[max(peak - half_block, 0) : peak + half_block + 1] = True
+            open_bins[max(peak - half_block, 0) : peak + half_block + 1] = False
             continue
         _add_mirrored(residual, at, -own)
         carriers.append(carrier)
