@@ -33,7 +33,7 @@ The references of the noise-floor method are in :mod:`survey.noise_floor`.
 
 from __future__ import annotations
 
-from dataclasses import replace
+from dataclasses import dataclass, replace
 from datetime import datetime, timedelta, timezone
 from functools import lru_cache
 from typing import Sequence
@@ -168,6 +168,32 @@ def _with_rds(emissions: list[EmissionReading], samples: np.ndarray, sample_rate
         if r is not None:
             out[k] = replace(out[k], **stored_columns(r))
     return out
+
+
+@dataclass(frozen=True)
+class HopSpectrum:
+    """A hop's averaged PSD (offsets Hz from the hop centre, FS^2/Hz), its usable bins and
+    ``K_eff``: what the floor fit of a sweep's first pass needs (:func:`hop_spectrum`)."""
+
+    offsets_hz: np.ndarray
+    psd: np.ndarray
+    usable: np.ndarray
+    effective_averages: float
+
+
+def hop_spectrum(block: IQBlock, settings: SweepSettings) -> HopSpectrum:
+    """Steps 2 and 3 of :func:`measure_hop` for ``block`` (arrays of its own, not work buffers)."""
+    fs = float(block.sample_rate_hz)
+    offsets, psd = raw_averaged_psd(block.raw, block.datatype, fs, settings.fft_size)
+    usable = usable_bins(offsets, fs, settings.usable_fraction, settings.dc_guard_hz)
+    k_eff = welch_effective_averages(_native(block.raw, block.datatype).size // 2, settings.fft_size)
+    return HopSpectrum(np.array(offsets), np.array(psd), usable, k_eff)
+
+
+def floor_level_dbfs_hz(floor: np.ndarray, usable: np.ndarray) -> float:
+    """A hop's floor in one number: the median over its usable bins of the floor density, dBFS/Hz
+    (as :attr:`survey.records.HopReading.floor_dbfs_hz`)."""
+    return _median_db(np.asarray(floor)[usable])
 
 
 def measure_hop(
