@@ -351,7 +351,9 @@ def _assign(freqs: np.ndarray, centers: np.ndarray, limits: tuple) -> np.ndarray
     distance = np.abs(np.subtract.outer(np.asarray(freqs, dtype=np.int64), np.asarray(centers, dtype=np.int64)))
     fits = (distance >= d_min) & (distance <= d_max)  # whole hertz: exact in int64
     center_list = centers.tolist()
-    for i in np.flatnonzero(fits.any(axis=1)).tolist():
+    reachable = fits.sum(axis=1)
+    owner[reachable == 1] = np.argmax(fits[reachable == 1], axis=1)  # one hop in reach: no margins to compare
+    for i in np.flatnonzero(reachable > 1).tolist():
         f = int(freqs[i])
         best = None
         for j in np.flatnonzero(fits[i]).tolist():  # ascending: ties go to the lowest hop index

@@ -127,6 +127,19 @@ def _window_ends(n: int, half: int) -> tuple[np.ndarray, np.ndarray]:
     return upper, lower
 
 
+@lru_cache(maxsize=64)
+def _window_counts(known_bytes: bytes, width: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Window ends and the count of known bins per window (NaN where none), read-only."""
+    known = np.frombuffer(known_bytes, dtype=bool)
+    upper, lower = _window_ends(known.size, width // 2)
+    c = np.zeros(known.size + 1, dtype=np.int64)
+    np.cumsum(known, out=c[1:])
+    count = (c[upper] - c[lower]).astype(np.float64)
+    count[count == 0] = np.nan
+    count.setflags(write=False)
+    return upper, lower, count
+
+
 class _RunningMean:
     """Running mean over ``width`` bins (odd) of arrays known on the same bins ``known``.
 
@@ -135,13 +148,7 @@ class _RunningMean:
     """
 
     def __init__(self, known: np.ndarray, width: int) -> None:
-        self.upper, self.lower = _window_ends(known.size, width // 2)
-        c = np.zeros(known.size + 1, dtype=np.int64)
-        np.cumsum(known, out=c[1:])
-        count = (c[self.upper] - c[self.lower]).astype(np.float64)
-        self.empty = count == 0
-        count[self.empty] = np.nan
-        self.count = count
+        self.upper, self.lower, self.count = _window_counts(np.ascontiguousarray(known, dtype=bool).tobytes(), width)
         self._cum = np.zeros(known.size + 1)
 
     def of(self, values: np.ndarray) -> np.ndarray:
@@ -158,19 +165,18 @@ def _odd(n: float) -> int:
     return k if k % 2 else k + 1
 
 
-def _take(x: np.ndarray, idx: np.ndarray) -> np.ndarray:
-    """``x[idx]`` with NaN where the index falls outside the array."""
-    inside = (idx >= 0) & (idx < x.size)
-    out = np.full(idx.shape, np.nan)
-    out[inside] = x[idx[inside]]
-    return out
+def _mirror_min(padded: np.ndarray, pad: int, first: int, count: int, reach: int) -> np.ndarray:
+    """``min(r[c+d], r[c-d])`` for ``d = 0..reach`` and the ``count`` centres ``c = first ...``;
+    one side alone where the other is unknown (NaN).
 
-
-def _mirror_min(r: np.ndarray, centers: np.ndarray, reach: int) -> np.ndarray:
-    """``min(r[c+d], r[c-d])`` for ``d = 0..reach`` per centre; one side alone where the other is unknown."""
-    d = np.arange(reach + 1)
-    plus = _take(r, centers[:, None] + d[None, :])
-    minus = _take(r, centers[:, None] - d[None, :])
+    ``padded`` is ``r`` with ``pad >= reach`` NaN on each side; the two sides are read as
+    windows of it (views, no copies).
+    """
+    windows = np.lib.stride_tricks.sliding_window_view(padded, reach + 1)
+    plus = windows[pad + first : pad + first + count]
+    backwards = np.lib.stride_tricks.sliding_window_view(padded[::-1], reach + 1)
+    end = padded.size - 1 - pad - first  # start in the reversed array of the first centre's lower side
+    minus = backwards[end - count + 1 : end + 1][::-1]
     return np.fmin(plus, minus)
 
 
@@ -309,8 +315,14 @@ def find_emissions(
     known = np.asarray(usable, dtype=bool) & np.isfinite(n0)
     if not known.any():
         return []
-    excess = np.where(known, psd64 - n0, np.nan)
-    residual = _RunningMean(known, _odd(tuning.smooth_hz / step)).of(np.where(known, psd64 - n0, 0.0))
+    raw_excess = np.where(known, psd64 - n0, 0.0)
+    search = int(round(tuning.carrier_search_hz / step))
+    sym_reach = int(round(tuning.symmetry_reach_hz / step))
+    skirt_reach = int(round(tuning.skirt_reach_hz / step))
+    pad = max(skirt_reach, sym_reach)
+    padded = np.full(offsets.size + 2 * pad, np.nan)  # the residual with NaN beyond both ends
+    residual = padded[pad : pad + offsets.size]
+    residual[:] = _RunningMean(known, _odd(tuning.smooth_hz / step)).of(raw_excess)
     residual[~known] = np.nan
     total = np.where(known, psd64, 0.0)
 
@@ -322,9 +334,6 @@ def find_emissions(
     line_var = group_variance_factor(offsets.size, line_w) / float(effective_averages) + tuning.model_error**2
     line_mean = _RunningMean(known, line_w)
     line_scale = line_mean.of(total) * np.sqrt(line_var)
-    search = int(round(tuning.carrier_search_hz / step))
-    sym_reach = int(round(tuning.symmetry_reach_hz / step))
-    skirt_reach = int(round(tuning.skirt_reach_hz / step))
     envelope_w = _odd(tuning.envelope_hz / step)
     taper = 1.0 - np.arange(sym_reach + 1) / (sym_reach + 1.0)
 
@@ -350,8 +359,9 @@ def find_emissions(
             break
         window_mean = np.fmax(wide, narrow)
         peak = int(np.argmax(np.where(significant, window_mean, -np.inf)))  # strongest first
-        cand = np.arange(max(peak - search, 0), min(peak + search + 1, offsets.size))
-        sym = np.nansum(np.clip(_mirror_min(residual, cand, sym_reach), 0.0, None) * taper, axis=1)
+        first = max(peak - search, 0)
+        cand = np.arange(first, min(peak + search + 1, offsets.size))
+        sym = np.fmax(_mirror_min(padded, pad, first, cand.size, sym_reach), 0.0) @ taper  # NaN counts 0
         best = int(np.argmax(sym))
         frac = 0.0
         if 0 < best < sym.size - 1:
@@ -368,10 +378,10 @@ def find_emissions(
         if any(abs(carrier - c) < reach for c, reach in zip(carriers, reaches)):
             open_bins[max(peak - half_block, 0) : peak + half_block + 1] = False
             continue  # a sideband or the asymmetry of a stronger emission
-        raw_mirror = _mirror_min(residual, np.asarray([at]), skirt_reach)[0]
-        own = np.clip(np.nan_to_num(raw_mirror, nan=0.0), 0.0, None)
+        raw_mirror = _mirror_min(padded, pad, at, 1, skirt_reach)[0]
+        own = np.fmax(raw_mirror, 0.0)  # unknown on both sides (NaN) counts 0
         core = _core_reach(own, sym_reach)
-        envelope = np.clip(np.nan_to_num(_boxcar(raw_mirror, envelope_w), nan=0.0), 0.0, None)
+        envelope = np.fmax(_boxcar(raw_mirror, envelope_w), 0.0)
         own[core:] = np.minimum(own[core:], np.minimum.accumulate(envelope[core:]))
         if own[: sym_reach + 1].sum() <= 0.0:
             open_bins[max(peak - half_block, 0) : peak + half_block + 1] = False
@@ -389,9 +399,9 @@ def find_emissions(
     for k, (at, own) in enumerate(components):
         _add_mirrored(spectra[k], at, own)
     edges = np.concatenate([[offsets[0] - step / 2.0], offsets + step / 2.0])
-    raw_excess = np.nan_to_num(excess, nan=0.0)
     cum_excess = np.concatenate([[0.0], np.cumsum(raw_excess)]) * step
-    cum_floor = np.concatenate([[0.0], np.cumsum(np.nan_to_num(n0, nan=0.0))]) * step
+    floor_known = np.isfinite(n0)
+    cum_floor = np.concatenate([[0.0], np.cumsum(np.where(floor_known, n0, 0.0))]) * step
     cum_parts = np.concatenate([np.zeros((len(carriers), 1)), np.cumsum(spectra, axis=1)], axis=1) * step
     cum_all = cum_parts.sum(axis=0)
     car = np.asarray(carriers)
@@ -407,7 +417,7 @@ def find_emissions(
     # the mirror of pure noise is clipped at zero, so it leaves a positive trickle: bins below two
     # standard deviations of the smoothed floor do not count towards the occupied bandwidth
     smooth_w = _odd(tuning.smooth_hz / step)
-    noise_step = 2.0 * np.nan_to_num(n0, nan=np.inf) * np.sqrt(
+    noise_step = 2.0 * np.where(floor_known, n0, np.inf) * np.sqrt(
         group_variance_factor(offsets.size, smooth_w) / float(effective_averages))
     raster = float(np.min(np.diff(chans))) if chans.size > 1 else float(channel_bw_hz)
     spectrum = None  # FFT of the hop's samples for the pilot test, computed once when first needed
