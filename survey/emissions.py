@@ -165,19 +165,32 @@ def _odd(n: float) -> int:
     return k if k % 2 else k + 1
 
 
-def _mirror_min(padded: np.ndarray, pad: int, first: int, count: int, reach: int) -> np.ndarray:
-    """``min(r[c+d], r[c-d])`` for ``d = 0..reach`` and the ``count`` centres ``c = first ...``;
-    one side alone where the other is unknown (NaN).
+class _Mirror:
+    """``min(r[c+d], r[c-d])`` for ``d = 0..reach`` about centres ``c`` of a residual ``r``; one
+    side alone where the other is unknown (NaN).
 
-    ``padded`` is ``r`` with ``pad >= reach`` NaN on each side; the two sides are read as
-    windows of it (views, no copies).
+    ``padded`` holds ``r`` with at least ``reach`` NaN on each side (``r`` is a view of it, so
+    the residual may change in place); both sides are read as windows of it (views, no copies).
     """
-    windows = np.lib.stride_tricks.sliding_window_view(padded, reach + 1)
-    plus = windows[pad + first : pad + first + count]
-    backwards = np.lib.stride_tricks.sliding_window_view(padded[::-1], reach + 1)
-    end = padded.size - 1 - pad - first  # start in the reversed array of the first centre's lower side
-    minus = backwards[end - count + 1 : end + 1][::-1]
-    return np.fmin(plus, minus)
+
+    def __init__(self, padded: np.ndarray, pad: int, reach: int) -> None:
+        self.pad, self.size = pad, padded.size
+        self.forward = np.lib.stride_tricks.sliding_window_view(padded, reach + 1)
+        self.backward = np.lib.stride_tricks.sliding_window_view(padded[::-1], reach + 1)
+
+    def about(self, first: int, count: int) -> np.ndarray:
+        """Rows for the ``count`` centres ``first, first + 1, ...``."""
+        plus = self.forward[self.pad + first : self.pad + first + count]
+        end = self.size - 1 - self.pad - first  # the first centre's lower side, in the reversed array
+        return np.fmin(plus, self.backward[end - count + 1 : end + 1][::-1])
+
+
+def _add_mirrored(padded: np.ndarray, pad: int, at: int, one_sided: np.ndarray) -> None:
+    """Add ``one_sided[d]`` at bins ``at + d`` and ``at - d`` (``d = 0`` once) of the array held
+    in ``padded`` with ``pad >= one_sided.size - 1`` spare elements on each side."""
+    reach = one_sided.size - 1
+    padded[pad + at : pad + at + reach + 1] += one_sided
+    padded[pad + at - reach : pad + at][::-1] += one_sided[1:]
 
 
 def _core_reach(one_sided: np.ndarray, reach: int) -> int:
@@ -187,14 +200,6 @@ def _core_reach(one_sided: np.ndarray, reach: int) -> int:
     if total <= 0.0:
         return 0
     return int(np.searchsorted(np.cumsum(part), 0.999 * total))
-
-
-def _add_mirrored(target: np.ndarray, at: int, one_sided: np.ndarray) -> None:
-    """Add ``one_sided[d]`` to ``target`` at bins ``at + d`` and ``at - d`` (``d = 0`` once), in range."""
-    d = np.arange(one_sided.size)
-    for idx, vals in ((at + d, one_sided), (at - d[1:], one_sided[1:])):
-        inside = (idx >= 0) & (idx < target.size)
-        target[idx[inside]] += vals[inside]
 
 
 def occupied_bandwidth(freqs_hz: np.ndarray, density: np.ndarray, fraction: float = 0.99) -> tuple[float, float]:
@@ -342,12 +347,14 @@ def find_emissions(
     reaches: list[float] = []  # sideband reach of each emission found, Hz
     strengths: list[float] = []  # detection score of each emission found
     open_bins = known.copy()  # known and not yet blocked
+    unknown = ~known
     values = np.empty(offsets.size)
+    symmetry = _Mirror(padded, pad, sym_reach)
     for _ in range(tuning.max_emissions * 3):
         if len(carriers) >= tuning.max_emissions:
             break
         np.copyto(values, residual)
-        values[~known] = 0.0
+        values[unknown] = 0.0
         wide = wide_mean.of(values)
         narrow = line_mean.of(values)
         with np.errstate(divide="ignore", invalid="ignore"):  # a zero floor (no signal) scores NaN
@@ -361,7 +368,7 @@ def find_emissions(
         peak = int(np.argmax(np.where(significant, window_mean, -np.inf)))  # strongest first
         first = max(peak - search, 0)
         cand = np.arange(first, min(peak + search + 1, offsets.size))
-        sym = np.fmax(_mirror_min(padded, pad, first, cand.size, sym_reach), 0.0) @ taper  # NaN counts 0
+        sym = np.fmax(symmetry.about(first, cand.size), 0.0) @ taper  # unknown on both sides (NaN) counts 0
         best = int(np.argmax(sym))
         frac = 0.0
         if 0 < best < sym.size - 1:
@@ -378,7 +385,8 @@ def find_emissions(
         if any(abs(carrier - c) < reach for c, reach in zip(carriers, reaches)):
             open_bins[max(peak - half_block, 0) : peak + half_block + 1] = False
             continue  # a sideband or the asymmetry of a stronger emission
-        raw_mirror = _mirror_min(padded, pad, at, 1, skirt_reach)[0]
+        raw_mirror = np.fmin(padded[pad + at : pad + at + skirt_reach + 1],
+                             padded[pad + at - skirt_reach : pad + at + 1][::-1])
         own = np.fmax(raw_mirror, 0.0)  # unknown on both sides (NaN) counts 0
         core = _core_reach(own, sym_reach)
         envelope = np.fmax(_boxcar(raw_mirror, envelope_w), 0.0)
@@ -386,7 +394,7 @@ def find_emissions(
         if own[: sym_reach + 1].sum() <= 0.0:
             open_bins[max(peak - half_block, 0) : peak + half_block + 1] = False
             continue
-        _add_mirrored(residual, at, -own)
+        _add_mirrored(padded, pad, at, -own)  # NaN beyond the ends stays NaN
         carriers.append(carrier)
         components.append((at, own))
         reaches.append(max(tuning.sideband_hz, core * step))
@@ -395,9 +403,10 @@ def find_emissions(
     if not carriers:
         return []
     # per-emission spectra on the bin grid, for the channel integrals
-    spectra = np.zeros((len(carriers), offsets.size))
+    padded_spectra = np.zeros((len(carriers), offsets.size + 2 * pad))
     for k, (at, own) in enumerate(components):
-        _add_mirrored(spectra[k], at, own)
+        _add_mirrored(padded_spectra[k], pad, at, own)
+    spectra = padded_spectra[:, pad : pad + offsets.size]
     edges = np.concatenate([[offsets[0] - step / 2.0], offsets + step / 2.0])
     cum_excess = np.concatenate([[0.0], np.cumsum(raw_excess)]) * step
     floor_known = np.isfinite(n0)

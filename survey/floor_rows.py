@@ -32,6 +32,7 @@ from survey.errors import PlanError
 
 _PBSV = scipy.linalg.get_lapack_funcs("pbsv", dtype=np.float64)  # banded SPD solver, as solveh_banded
 _SQRT3 = float(np.sqrt(3.0))
+_THIRDS = np.full(3, 1.0 / 3.0)
 _RIDGES = (1e-9, 1e-6, 1e-3)  # tiny diagonal loads that keep a system definite where no weight is
 
 
@@ -62,6 +63,20 @@ def whittaker_rows(y: np.ndarray, weight: np.ndarray, penalty: np.ndarray) -> np
     return np.stack([_solve_one(y[r], weight[r], penalty) for r in range(rows)])
 
 
+@lru_cache(maxsize=16)
+def _offsets(half: int) -> np.ndarray:
+    out = np.arange(-half, half + 1)
+    out.setflags(write=False)
+    return out
+
+
+@lru_cache(maxsize=64)
+def _ones_u8(length: int) -> np.ndarray:
+    out = np.ones(length, dtype=np.uint8)
+    out.setflags(write=False)
+    return out
+
+
 @lru_cache(maxsize=64)
 def _window_ends(n: int, half: int) -> tuple[np.ndarray, np.ndarray]:
     i = np.arange(n)
@@ -76,6 +91,8 @@ def dilate_rows(mask: np.ndarray, half: int) -> np.ndarray:
     if half <= 0:
         return mask
     rows, n = mask.shape
+    if rows == 1 and 2 * half + 1 <= min(n, 255):  # one row: one short correlation (counts fit in uint8)
+        return (np.convolve(mask[0].view(np.uint8), _ones_u8(2 * half + 1), mode="same") > 0)[np.newaxis]
     if half <= 8:  # short reach: shifted ORs
         out = mask.copy()
         for d in range(1, min(half, n - 1) + 1):
@@ -88,31 +105,8 @@ def dilate_rows(mask: np.ndarray, half: int) -> np.ndarray:
     return c[:, upper] > c[:, lower]
 
 
-def _max_rows(x: np.ndarray, half: int) -> np.ndarray:
-    """Running maximum over ``2 half + 1`` elements of each row, the edge element repeated beyond
-    the ends (as ``scipy.ndimage.maximum_filter1d(..., mode="nearest")``)."""
-    if half <= 0:
-        return x
-    rows, n = x.shape
-    width = 2 * half + 1
-    cur = np.empty((rows, n + 2 * half))
-    cur[:, half : half + n] = x
-    cur[:, :half] = x[:, :1]
-    cur[:, half + n :] = x[:, -1:]
-    span = 1  # cur[:, i] is the maximum of ``span`` padded elements from i on
-    while 2 * span <= width:
-        cur = np.maximum(cur[:, :-span], cur[:, span:])
-        span *= 2
-    return np.maximum(cur[:, :n], cur[:, width - span : width - span + n])
-
-
 def _paint(rows: np.ndarray, lo: np.ndarray, hi: np.ndarray, shape: tuple[int, int]) -> np.ndarray:
     """Boolean ``shape`` array, True on ``[lo, hi)`` of row ``rows`` for every triple."""
-    if rows.size <= 16:  # a few carriers: slices
-        out = np.zeros(shape, dtype=bool)
-        for r, a, b in zip(rows.tolist(), lo.tolist(), hi.tolist()):
-            out[r, a:b] = True
-        return out
     n_rows, n = shape
     width = n + 1
     edges = np.bincount(rows * width + lo, minlength=n_rows * width)
@@ -133,10 +127,13 @@ def occupied_rows(resid_db: np.ndarray, sigma_db: float, usable: np.ndarray, cor
         return core
     n_rows, n = core.shape
     r = resid_db * usable
-    third = r / 3.0
-    smooth = third.copy()  # 3-group running mean, zero beyond the ends
-    smooth[:, 1:] += third[:, :-1]
-    smooth[:, :-1] += third[:, 1:]
+    if n_rows == 1:  # 3-group running mean, zero beyond the ends
+        smooth = np.convolve(r[0], _THIRDS, mode="same")[np.newaxis]
+    else:
+        third = r / 3.0
+        smooth = third.copy()
+        smooth[:, 1:] += third[:, :-1]
+        smooth[:, :-1] += third[:, 1:]
     rising = smooth > skirt_sigma * sigma_db / _SQRT3
     rising |= core
     starts = np.empty_like(rising)  # a new run id at every rise and at every row's start
@@ -148,19 +145,36 @@ def occupied_rows(resid_db: np.ndarray, sigma_db: float, usable: np.ndarray, cor
     claimed = ok_run[run]
     claimed &= rising
     claimed &= dilate_rows(core, skirt_max)
-    carrier = r >= _max_rows(r, peak_half)
-    carrier &= smooth > carrier_db
-    carrier &= core
-    where_rows, where_cols = carrier.nonzero()
+    # carriers: cores high enough whose residual is the largest within peak_half groups (the
+    # window held at the row's ends, as scipy.ndimage.maximum_filter1d's mode "nearest")
+    where_rows, where_cols = (core & (smooth > carrier_db)).nonzero()
     if where_rows.size:
-        half = occupancy + np.rint(occupancy_per_db * np.maximum(smooth[where_rows, where_cols] - 10.0, 0.0)).astype(np.int64)
+        window = where_cols[:, np.newaxis] + _offsets(peak_half)
+        np.maximum(window, 0, out=window)
+        np.minimum(window, n - 1, out=window)
+        start = where_rows * n
+        window += start[:, np.newaxis]
+        flat = r.reshape(-1)
+        peak = flat[start + where_cols] >= flat[window].max(axis=1)
+        where_rows, where_cols = where_rows[peak], where_cols[peak]
+    if where_rows.size == 0:
+        return np.zeros_like(core)  # nothing is held without a carrier
+    heights = smooth[where_rows, where_cols]
+    if where_rows.size <= 16:  # a few carriers: slices
+        held = np.zeros_like(core)
+        body = np.zeros_like(core)
+        for row, at, height_db in zip(where_rows.tolist(), where_cols.tolist(), heights.tolist()):
+            half = occupancy + int(round(occupancy_per_db * max(height_db - 10.0, 0.0)))  # as np.rint
+            held[row, max(at - half, 0) : at + half + 1] = True
+            grown = body_half + half - occupancy
+            body[row, max(at - grown, 0) : at + grown + 1] = True
+    else:
+        half = occupancy + np.rint(occupancy_per_db * np.maximum(heights - 10.0, 0.0)).astype(np.int64)
         grown = body_half + half - occupancy
         held = _paint(where_rows, np.maximum(where_cols - half, 0), np.minimum(where_cols + half + 1, n), core.shape)
         body = _paint(where_rows, np.maximum(where_cols - grown, 0), np.minimum(where_cols + grown + 1, n), core.shape)
-        claimed &= held
-        claimed |= body
-    else:
-        claimed[:] = False
+    claimed &= held
+    claimed |= body
     return dilate_rows(claimed, reach)
 
 

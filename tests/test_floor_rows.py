@@ -15,7 +15,7 @@ import scipy.ndimage
 
 from survey import dsp
 from survey.bandplan import band_plan
-from survey.floor_rows import _max_rows, dilate_rows, occupied_rows, whittaker_rows
+from survey.floor_rows import dilate_rows, occupied_rows, whittaker_rows
 from survey.noise_floor import _penalty_bands, _stiffness, local_noise_floor, local_noise_floors
 from survey.records import SweepSettings
 from survey.sources.simulated import SimulatedSource
@@ -89,19 +89,54 @@ def test_stacked_whittaker_solves_equal_scipy_solveh_banded_per_row():
         assert np.allclose(z[r], expect, rtol=1e-10, atol=1e-12)
 
 
-def test_row_filters_match_scipy_ndimage_and_do_not_reach_across_rows():
+def test_row_dilation_matches_scipy_ndimage_and_does_not_reach_across_rows():
     rng = np.random.default_rng(3)
     for n in (1, 4, 11, 60):
-        x = rng.normal(size=(4, n))
-        for half in (1, 2, 5):
-            assert np.array_equal(_max_rows(x, half),
-                                  scipy.ndimage.maximum_filter1d(x, 2 * half + 1, axis=1, mode="nearest"))
-            mask = rng.random((4, n)) > 0.85
-            grown = scipy.ndimage.binary_dilation(mask, structure=np.ones((1, 2 * half + 1), dtype=bool))
-            assert np.array_equal(dilate_rows(mask, half), grown)
+        for half in (1, 2, 5, 12):
+            for rows in (1, 4):
+                mask = rng.random((rows, n)) > 0.85
+                grown = scipy.ndimage.binary_dilation(mask, structure=np.ones((1, 2 * half + 1), dtype=bool))
+                assert np.array_equal(dilate_rows(mask, half), grown)
     long = np.zeros((2, 40), dtype=bool)
     long[0, -1] = True
     assert not dilate_rows(long, 12)[1].any() and dilate_rows(long, 12)[0, -13:].all()
+
+
+def _occupied_reference(resid, sigma, usable, core_sigma, skirt_sigma, reach, skirt_max, carrier_db, peak_half,
+                        occupancy, per_db, body_half):
+    """The one-hop occupancy rule of survey.noise_floor._occupied written plainly, element by
+    element where that is clearer, with scipy.ndimage for the running maximum and dilations."""
+    n = resid.size
+    core = (resid > core_sigma * sigma) & usable
+    r = resid * usable
+    smooth = np.convolve(r, np.full(3, 1.0 / 3.0), mode="same")
+    rising = (smooth > skirt_sigma * sigma / np.sqrt(3.0)) | core
+    claimed = np.zeros(n, dtype=bool)
+    i = 0
+    while i < n:  # each run of rising groups holding a core is claimed
+        if rising[i]:
+            j = i
+            while j < n and rising[j]:
+                j += 1
+            if core[i:j].any():
+                claimed[i:j] = True
+            i = j
+        else:
+            i += 1
+    near_core = scipy.ndimage.binary_dilation(core, structure=np.ones(2 * skirt_max + 1, dtype=bool))
+    claimed &= near_core
+    carrier = (r >= scipy.ndimage.maximum_filter1d(r, 2 * peak_half + 1, mode="nearest")) & (smooth > carrier_db) & core
+    held = np.zeros(n, dtype=bool)
+    body = np.zeros(n, dtype=bool)
+    for at in np.flatnonzero(carrier):
+        half = occupancy + int(np.rint(per_db * max(smooth[at] - 10.0, 0.0)))
+        held[max(at - half, 0) : at + half + 1] = True
+        grown = body_half + half - occupancy
+        body[max(at - grown, 0) : at + grown + 1] = True
+    claimed = (claimed & held) | body
+    if reach > 0:
+        claimed = scipy.ndimage.binary_dilation(claimed, structure=np.ones(2 * reach + 1, dtype=bool))
+    return claimed
 
 
 def test_occupancy_of_stacked_rows_equals_each_row_alone(sweep):
@@ -115,3 +150,25 @@ def test_occupancy_of_stacked_rows_equals_each_row_alone(sweep):
     for r in range(resid.shape[0]):
         alone = occupied_rows(resid[r : r + 1], g0.sigma_db, g0.has_data, 4.0, 1.0, *g0.occupancy_args)[0]
         assert np.array_equal(stacked[r], alone)
+        reference = _occupied_reference(resid[r], g0.sigma_db, g0.has_data, 4.0, 1.0, *g0.occupancy_args)
+        assert np.array_equal(alone, reference)
+
+
+def test_occupancy_matches_the_plain_rule_on_random_residuals_with_many_carriers():
+    rng = np.random.default_rng(11)
+    n = 230
+    usable = np.ones(n, dtype=bool)
+    usable[110:116] = False  # a DC guard
+    rows = []
+    for _ in range(6):
+        resid = rng.normal(0.0, 0.3, n)
+        for at in rng.integers(0, n, 12):  # more than a few carriers per row: the vectorised painting
+            resid[max(at - 8, 0) : at + 9] += rng.uniform(2.0, 40.0) * np.hanning(17)[: min(at + 9, n) - max(at - 8, 0)]
+        rows.append(resid)
+    stacked = np.stack(rows)
+    args = (0.3, usable, 4.0, 1.0, 1, 3, 1.4, 5, 18, 0.25, 11)
+    got = occupied_rows(stacked, *args)
+    assert got.any() and not got.all()
+    for r in range(stacked.shape[0]):
+        assert np.array_equal(got[r], _occupied_reference(stacked[r], *args))
+        assert np.array_equal(occupied_rows(stacked[r : r + 1], *args)[0], got[r])
