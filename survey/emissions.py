@@ -175,8 +175,11 @@ class _Mirror:
 
     def __init__(self, padded: np.ndarray, pad: int, reach: int) -> None:
         self.pad, self.size = pad, padded.size
-        self.forward = np.lib.stride_tricks.sliding_window_view(padded, reach + 1)
-        self.backward = np.lib.stride_tricks.sliding_window_view(padded[::-1], reach + 1)
+        windows = padded.size - reach
+        step = padded.strides[0]
+        self.forward = np.lib.stride_tricks.as_strided(padded, (windows, reach + 1), (step, step), writeable=False)
+        backwards = padded[::-1]
+        self.backward = np.lib.stride_tricks.as_strided(backwards, (windows, reach + 1), (-step, -step), writeable=False)
 
     def about(self, first: int, count: int) -> np.ndarray:
         """Rows for the ``count`` centres ``first, first + 1, ...``."""
@@ -223,6 +226,14 @@ def occupied_bandwidth(freqs_hz: np.ndarray, density: np.ndarray, fraction: floa
 def _band_sum(cum: np.ndarray, edges: np.ndarray, lo_hz: np.ndarray, hi_hz: np.ndarray) -> np.ndarray:
     """Integral between ``lo`` and ``hi`` from a cumulative integral sampled at bin edges."""
     return np.interp(hi_hz, edges, cum) - np.interp(lo_hz, edges, cum)
+
+
+@lru_cache(maxsize=8)
+def _taper(reach: int) -> np.ndarray:
+    """Triangular weight ``1 - d / (reach + 1)`` for ``d = 0..reach`` (read-only)."""
+    out = 1.0 - np.arange(reach + 1) / (reach + 1.0)
+    out.setflags(write=False)
+    return out
 
 
 @lru_cache(maxsize=8)
@@ -340,7 +351,7 @@ def find_emissions(
     line_mean = _RunningMean(known, line_w)
     line_scale = line_mean.of(total) * np.sqrt(line_var)
     envelope_w = _odd(tuning.envelope_hz / step)
-    taper = 1.0 - np.arange(sym_reach + 1) / (sym_reach + 1.0)
+    taper = _taper(sym_reach)
 
     carriers: list[float] = []
     components: list[tuple[int, np.ndarray]] = []  # (carrier bin, mirror spectrum for d = 0..reach)

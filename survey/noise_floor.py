@@ -33,6 +33,7 @@ from survey.units import db_to_ratio, ratio_to_db
 _DB_PER_NEPER = 10.0 / np.log(10.0)  # 10 log10(e): converts a natural-log variance/mean to dB
 _ALS_ROUNDS = 4  # asymmetric least-squares reweightings for the starting envelope (at most)
 _MASK_ROUNDS = 8  # occupancy-mask refits (at most)
+_OCCUPIED_SEEN: dict = {}  # recent answers of _occupied (read-only arrays), oldest first
 
 
 @lru_cache(maxsize=16)
@@ -130,8 +131,18 @@ def _occupied(resid_db: np.ndarray, sigma_db: float, usable: np.ndarray, core_si
     occupancy with its height) either side, skirt test or not.
     4. Everything claimed grows by ``reach`` groups.
     """
-    return occupied_rows(resid_db[np.newaxis], sigma_db, usable, core_sigma, skirt_sigma, reach, skirt_max,
-                         carrier_db, peak_half, occupancy, occupancy_per_db, body_half)[0]
+    key = (np.ascontiguousarray(resid_db, dtype=np.float64).tobytes(), float(sigma_db),
+           np.ascontiguousarray(usable, dtype=bool).tobytes(), core_sigma, skirt_sigma, reach, skirt_max, carrier_db,
+           peak_half, occupancy, occupancy_per_db, body_half)
+    found = _OCCUPIED_SEEN.get(key)
+    if found is None:  # a pure function of its arguments: the same residual asked twice is answered once
+        found = occupied_rows(resid_db[np.newaxis], sigma_db, usable, core_sigma, skirt_sigma, reach, skirt_max,
+                              carrier_db, peak_half, occupancy, occupancy_per_db, body_half)[0]
+        found.setflags(write=False)
+        _OCCUPIED_SEEN[key] = found
+        while len(_OCCUPIED_SEEN) > 256:
+            _OCCUPIED_SEEN.pop(next(iter(_OCCUPIED_SEEN)))
+    return found
 
 
 @dataclass(frozen=True)
