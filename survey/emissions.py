@@ -361,21 +361,24 @@ def find_emissions(
     unknown = ~known
     values = np.empty(offsets.size)
     symmetry = _Mirror(padded, pad, sym_reach)
+    changed = True  # the residual changed since the windows were scored
     for _ in range(tuning.max_emissions * 3):
         if len(carriers) >= tuning.max_emissions:
             break
-        np.copyto(values, residual)
-        values[unknown] = 0.0
-        wide = wide_mean.of(values)
-        narrow = line_mean.of(values)
-        with np.errstate(divide="ignore", invalid="ignore"):  # a zero floor (no signal) scores NaN
-            score = np.fmax(wide / wide_scale, narrow / line_scale)
-        significant = score >= tuning.detect_sigma
-        significant &= np.isfinite(score)
-        significant &= open_bins
+        if changed:
+            np.copyto(values, residual)
+            values[unknown] = 0.0
+            wide = wide_mean.of(values)
+            narrow = line_mean.of(values)
+            with np.errstate(divide="ignore", invalid="ignore"):  # a zero floor (no signal) scores NaN
+                score = np.fmax(wide / wide_scale, narrow / line_scale)
+            passing = score >= tuning.detect_sigma
+            passing &= np.isfinite(score)
+            window_mean = np.fmax(wide, narrow)
+            changed = False
+        significant = passing & open_bins
         if not significant.any():
             break
-        window_mean = np.fmax(wide, narrow)
         peak = int(np.argmax(np.where(significant, window_mean, -np.inf)))  # strongest first
         first = max(peak - search, 0)
         cand = np.arange(first, min(peak + search + 1, offsets.size))
@@ -406,6 +409,7 @@ def find_emissions(
             open_bins[max(peak - half_block, 0) : peak + half_block + 1] = False
             continue
         _add_mirrored(padded, pad, at, -own)  # NaN beyond the ends stays NaN
+        changed = True
         carriers.append(carrier)
         components.append((at, own))
         reaches.append(max(tuning.sideband_hz, core * step))
