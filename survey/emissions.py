@@ -153,7 +153,7 @@ class _RunningMean:
 
     def of(self, values: np.ndarray) -> np.ndarray:
         """Running mean of ``values`` (zero on the unknown bins), NaN where a window holds none."""
-        np.cumsum(values, out=self._cum[1:])
+        np.add.accumulate(values, out=self._cum[1:])  # np.cumsum without its wrapper
         out = self._cum[self.upper]
         out -= self._cum[self.lower]
         out /= self.count
@@ -257,9 +257,8 @@ def _stereo_pilot(spectrum: np.ndarray, n: int, sample_rate_hz: float, offset_hz
     out_rate = length * sample_rate_hz / n  # about 4 band: the discriminator needs no alias guard
     if length < 256:
         return False
-    freqs = _fft_freqs(length, out_rate)
-    keep = np.abs(freqs) <= band
-    src = np.rint((offset_hz + freqs[keep]) * n / sample_rate_hz).astype(np.int64) % n
+    keep, kept_freqs = _pilot_cut(length, out_rate, band)
+    src = np.rint((offset_hz + kept_freqs) * n / sample_rate_hz).astype(np.int64) % n
     cut = np.zeros(length, dtype=np.complex64)
     cut[keep] = spectrum[src]
     z = scipy.fft.ifft(cut)
@@ -268,12 +267,32 @@ def _stereo_pilot(spectrum: np.ndarray, n: int, sample_rate_hz: float, offset_hz
     rows = inst[: (inst.size // seg) * seg].reshape(-1, seg)
     rows = (rows - rows.mean(axis=1, keepdims=True)) * _hann_real(seg)
     pxx = np.mean(np.abs(scipy.fft.rfft(rows, axis=1)) ** 2, axis=0)  # averaged periodogram
-    f = scipy.fft.rfftfreq(seg, 1.0 / out_rate)
-    gap = ((f > 15_500.0) & (f < 18_000.0)) | ((f > 20_000.0) & (f < 22_500.0))
-    near = np.abs(f - PILOT_HZ) <= 1.5 * (f[1] - f[0])
+    gap, near = _pilot_bins(seg, out_rate)
     if not gap.any() or not near.any():
         return False
     return bool(np.max(pxx[near]) >= np.median(pxx[gap]) * 10.0 ** (tuning.pilot_ratio_db / 10.0))
+
+
+@lru_cache(maxsize=16)
+def _pilot_cut(length: int, out_rate: float, band: float) -> tuple[np.ndarray, np.ndarray]:
+    """Bins of a ``length``-point FFT at ``out_rate`` within ``+- band`` and their frequencies."""
+    freqs = _fft_freqs(length, out_rate)
+    keep = np.abs(freqs) <= band
+    kept = freqs[keep]
+    for a in (keep, kept):
+        a.setflags(write=False)
+    return keep, kept
+
+
+@lru_cache(maxsize=16)
+def _pilot_bins(seg: int, out_rate: float) -> tuple[np.ndarray, np.ndarray]:
+    """Multiplex-spectrum bins of the 15.5-18 and 20-22.5 kHz gap and those next to 19 kHz."""
+    f = scipy.fft.rfftfreq(seg, 1.0 / out_rate)
+    gap = ((f > 15_500.0) & (f < 18_000.0)) | ((f > 20_000.0) & (f < 22_500.0))
+    near = np.abs(f - PILOT_HZ) <= 1.5 * (f[1] - f[0])
+    for a in (gap, near):
+        a.setflags(write=False)
+    return gap, near
 
 
 def find_emissions(
