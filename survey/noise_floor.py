@@ -142,7 +142,7 @@ def _occupied(resid_db: np.ndarray, sigma_db: float, usable: np.ndarray, core_si
         _OCCUPIED_SEEN[key] = found
         while len(_OCCUPIED_SEEN) > 256:
             _OCCUPIED_SEEN.pop(next(iter(_OCCUPIED_SEEN)))
-    return found
+    return found.copy()
 
 
 @dataclass(frozen=True)
