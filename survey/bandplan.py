@@ -344,18 +344,22 @@ def _assign(freqs: np.ndarray, centers: np.ndarray, limits: tuple) -> np.ndarray
     """Index of the hop that measures each channel best, -1 where none can.
 
     Best means the largest exact margin from both the DC guard and the usable edge
-    (:func:`channel_margin_hz`); ties go to the lowest hop index.
+    (:func:`channel_margin_hz`); ties go to the lowest hop index. The margin
+    ``min(d - inner, outer - d)`` equals ``(outer - inner)/2 - |d - (inner + outer)/2|``, so the
+    best hop is the one whose ``|2 d - (inner + outer)|`` is smallest: compared in whole numbers.
     """
     d_min, d_max, inner, outer = limits
+    middle = Fraction(inner) + Fraction(outer)
+    num, den = middle.numerator, middle.denominator
     owner = np.full(freqs.size, -1, dtype=np.int64)
-    for i, f in enumerate(freqs.tolist()):
-        best = None
-        for j, c in enumerate(centers.tolist()):
-            if not d_min <= abs(f - c) <= d_max:
-                continue
-            m = channel_margin_hz(f, c, inner, outer)
-            if best is None or m > best:
-                best, owner[i] = m, j
+    distance = np.abs(np.subtract.outer(np.asarray(freqs, dtype=np.int64), np.asarray(centers, dtype=np.int64)))
+    fits = (distance >= d_min) & (distance <= d_max)  # whole hertz: exact in int64
+    center_list = centers.tolist()
+    reachable = fits.sum(axis=1)
+    owner[reachable == 1] = np.argmax(fits[reachable == 1], axis=1)  # one hop in reach: no margins to compare
+    for i in np.flatnonzero(reachable > 1).tolist():
+        f = int(freqs[i])
+        owner[i] = min((abs(2 * abs(f - center_list[j]) * den - num), j) for j in np.flatnonzero(fits[i]).tolist())[1]
     return owner
 
 

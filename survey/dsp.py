@@ -33,7 +33,7 @@ The references of the noise-floor method are in :mod:`survey.noise_floor`.
 
 from __future__ import annotations
 
-from dataclasses import replace
+from dataclasses import dataclass, replace
 from datetime import datetime, timedelta, timezone
 from functools import lru_cache
 from typing import Sequence
@@ -136,19 +136,29 @@ def _median_db(values: np.ndarray) -> float:
 
 def _check_in_usable(freqs_hz: np.ndarray, center_hz: float, settings: SweepSettings,
                      sample_rate_hz: float) -> None:
-    off = freqs_hz - center_hz
-    lo = off - settings.channel_bw_hz / 2.0
-    hi = off + settings.channel_bw_hz / 2.0
-    edge = settings.usable_fraction * sample_rate_hz / 2.0 + 1e-3
-    guard = settings.dc_guard_hz - 1e-3
-    bad = (lo < -edge) | (hi > edge) | ((lo < guard) & (hi > -guard))
-    if np.any(bad):
-        f = float(freqs_hz[np.argmax(bad)])
+    at = _first_outside(np.ascontiguousarray(freqs_hz, dtype=np.float64).tobytes(), float(center_hz),
+                        float(settings.channel_bw_hz), float(settings.usable_fraction), float(settings.dc_guard_hz),
+                        float(sample_rate_hz))
+    if at >= 0:
+        f = float(freqs_hz[at])
         raise PlanError(
             f"channel {f / 1e6:.3f} MHz is not wholly inside the usable spectrum of the hop at "
             f"{center_hz / 1e6:.3f} MHz (usable fraction {settings.usable_fraction}, DC guard "
             f"{settings.dc_guard_hz:.0f} Hz); plan the hops with the same settings as the sweep"
         )
+
+
+@lru_cache(maxsize=256)
+def _first_outside(freqs_bytes: bytes, center_hz: float, channel_bw_hz: float, usable_fraction: float,
+                   dc_guard_hz: float, sample_rate_hz: float) -> int:
+    """Index of the first channel not wholly inside the usable spectrum of the hop, -1 if none."""
+    off = np.frombuffer(freqs_bytes, dtype=np.float64) - center_hz
+    lo = off - channel_bw_hz / 2.0
+    hi = off + channel_bw_hz / 2.0
+    edge = usable_fraction * sample_rate_hz / 2.0 + 1e-3
+    guard = dc_guard_hz - 1e-3
+    bad = (lo < -edge) | (hi > edge) | ((lo < guard) & (hi > -guard))
+    return int(np.argmax(bad)) if np.any(bad) else -1
 
 
 def _with_rds(emissions: list[EmissionReading], samples: np.ndarray, sample_rate_hz: float,
@@ -168,6 +178,32 @@ def _with_rds(emissions: list[EmissionReading], samples: np.ndarray, sample_rate
         if r is not None:
             out[k] = replace(out[k], **stored_columns(r))
     return out
+
+
+@dataclass(frozen=True)
+class HopSpectrum:
+    """A hop's averaged PSD (offsets Hz from the hop centre, FS^2/Hz), its usable bins and
+    ``K_eff``: what the floor fit of a sweep's first pass needs (:func:`hop_spectrum`)."""
+
+    offsets_hz: np.ndarray
+    psd: np.ndarray
+    usable: np.ndarray
+    effective_averages: float
+
+
+def hop_spectrum(block: IQBlock, settings: SweepSettings) -> HopSpectrum:
+    """Steps 2 and 3 of :func:`measure_hop` for ``block`` (arrays of its own, not work buffers)."""
+    fs = float(block.sample_rate_hz)
+    offsets, psd = raw_averaged_psd(block.raw, block.datatype, fs, settings.fft_size)
+    usable = usable_bins(offsets, fs, settings.usable_fraction, settings.dc_guard_hz)
+    k_eff = welch_effective_averages(_native(block.raw, block.datatype).size // 2, settings.fft_size)
+    return HopSpectrum(np.array(offsets), np.array(psd), usable, k_eff)
+
+
+def floor_level_dbfs_hz(floor: np.ndarray, usable: np.ndarray) -> float:
+    """A hop's floor in one number: the median over its usable bins of the floor density, dBFS/Hz
+    (as :attr:`survey.records.HopReading.floor_dbfs_hz`)."""
+    return _median_db(np.asarray(floor)[usable])
 
 
 def measure_hop(
@@ -267,9 +303,13 @@ def measure_hop(
         np.nan_to_num(floor, copy=False, nan=0.0)  # outside the usable span: no noise counted
         densities[1] = floor
         p, n = _band_integrals(offsets, densities, freqs - center, bw)
-        with np.errstate(divide="ignore", invalid="ignore"):
-            levels = np.stack([p, n, n / bw, (p - n) / n])
-        p_db, n_db, n0_db, cn = np.asarray(ratio_to_db(levels)).reshape(4, -1)
+        levels = np.empty((4, p.size))
+        with np.errstate(divide="ignore", invalid="ignore"):  # as ratio_to_db: 0 gives -inf, negative NaN
+            np.copyto(levels[0], p)
+            np.copyto(levels[1], n)
+            np.divide(n, bw, out=levels[2])
+            np.divide(p - n, n, out=levels[3])
+            p_db, n_db, n0_db, cn = 10.0 * np.log10(levels)
         received = (np.isfinite(cn) & (cn >= settings.received_margin_db)).tolist()
         for f, ok, pw, nz, n0, c in zip(channels_hz, received, p_db.tolist(), n_db.tolist(),
                                         n0_db.tolist(), cn.tolist()):

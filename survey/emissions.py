@@ -114,14 +114,50 @@ def _boxcar(x: np.ndarray, width: int) -> np.ndarray:
     if width <= 1:
         return x.copy()
     known = np.isfinite(x)
-    vals = np.where(known, x, 0.0)
-    kernel = np.ones(width)
-    total = np.convolve(vals, kernel, mode="same")
-    count = np.convolve(known.astype(np.float64), kernel, mode="same")
-    with np.errstate(invalid="ignore", divide="ignore"):
-        out = total / count
-    out[count == 0] = np.nan
-    return out
+    return _RunningMean(known, width).of(np.where(known, x, 0.0))
+
+
+@lru_cache(maxsize=64)
+def _window_ends(n: int, half: int) -> tuple[np.ndarray, np.ndarray]:
+    """Indices into a cumulative sum (with a leading zero) of each window's end and start."""
+    i = np.arange(n)
+    upper, lower = np.minimum(i + half + 1, n), np.maximum(i - half, 0)
+    for a in (upper, lower):
+        a.setflags(write=False)
+    return upper, lower
+
+
+@lru_cache(maxsize=64)
+def _window_counts(known_bytes: bytes, width: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Window ends and the count of known bins per window (NaN where none), read-only."""
+    known = np.frombuffer(known_bytes, dtype=bool)
+    upper, lower = _window_ends(known.size, width // 2)
+    c = np.zeros(known.size + 1, dtype=np.int64)
+    np.cumsum(known, out=c[1:])
+    count = (c[upper] - c[lower]).astype(np.float64)
+    count[count == 0] = np.nan
+    count.setflags(write=False)
+    return upper, lower, count
+
+
+class _RunningMean:
+    """Running mean over ``width`` bins (odd) of arrays known on the same bins ``known``.
+
+    The count of known bins in each window is fixed, so each mean costs one cumulative sum
+    (double precision; the windows' sums are differences of it) instead of a convolution.
+    """
+
+    def __init__(self, known: np.ndarray, width: int) -> None:
+        self.upper, self.lower, self.count = _window_counts(np.ascontiguousarray(known, dtype=bool).tobytes(), width)
+        self._cum = np.zeros(known.size + 1)
+
+    def of(self, values: np.ndarray) -> np.ndarray:
+        """Running mean of ``values`` (zero on the unknown bins), NaN where a window holds none."""
+        np.add.accumulate(values, out=self._cum[1:])  # np.cumsum without its wrapper
+        out = self._cum[self.upper]
+        out -= self._cum[self.lower]
+        out /= self.count
+        return out
 
 
 def _odd(n: float) -> int:
@@ -129,20 +165,35 @@ def _odd(n: float) -> int:
     return k if k % 2 else k + 1
 
 
-def _take(x: np.ndarray, idx: np.ndarray) -> np.ndarray:
-    """``x[idx]`` with NaN where the index falls outside the array."""
-    inside = (idx >= 0) & (idx < x.size)
-    out = np.full(idx.shape, np.nan)
-    out[inside] = x[idx[inside]]
-    return out
+class _Mirror:
+    """``min(r[c+d], r[c-d])`` for ``d = 0..reach`` about centres ``c`` of a residual ``r``; one
+    side alone where the other is unknown (NaN).
+
+    ``padded`` holds ``r`` with at least ``reach`` NaN on each side (``r`` is a view of it, so
+    the residual may change in place); both sides are read as windows of it (views, no copies).
+    """
+
+    def __init__(self, padded: np.ndarray, pad: int, reach: int) -> None:
+        self.pad, self.size = pad, padded.size
+        windows = padded.size - reach
+        step = padded.strides[0]
+        self.forward = np.lib.stride_tricks.as_strided(padded, (windows, reach + 1), (step, step), writeable=False)
+        backwards = padded[::-1]
+        self.backward = np.lib.stride_tricks.as_strided(backwards, (windows, reach + 1), (-step, -step), writeable=False)
+
+    def about(self, first: int, count: int) -> np.ndarray:
+        """Rows for the ``count`` centres ``first, first + 1, ...``."""
+        plus = self.forward[self.pad + first : self.pad + first + count]
+        end = self.size - 1 - self.pad - first  # the first centre's lower side, in the reversed array
+        return np.fmin(plus, self.backward[end - count + 1 : end + 1][::-1])
 
 
-def _mirror_min(r: np.ndarray, centers: np.ndarray, reach: int) -> np.ndarray:
-    """``min(r[c+d], r[c-d])`` for ``d = 0..reach`` per centre; one side alone where the other is unknown."""
-    d = np.arange(reach + 1)
-    plus = _take(r, centers[:, None] + d[None, :])
-    minus = _take(r, centers[:, None] - d[None, :])
-    return np.fmin(plus, minus)
+def _add_mirrored(padded: np.ndarray, pad: int, at: int, one_sided: np.ndarray) -> None:
+    """Add ``one_sided[d]`` at bins ``at + d`` and ``at - d`` (``d = 0`` once) of the array held
+    in ``padded`` with ``pad >= one_sided.size - 1`` spare elements on each side."""
+    reach = one_sided.size - 1
+    padded[pad + at : pad + at + reach + 1] += one_sided
+    padded[pad + at - reach : pad + at][::-1] += one_sided[1:]
 
 
 def _core_reach(one_sided: np.ndarray, reach: int) -> int:
@@ -152,14 +203,6 @@ def _core_reach(one_sided: np.ndarray, reach: int) -> int:
     if total <= 0.0:
         return 0
     return int(np.searchsorted(np.cumsum(part), 0.999 * total))
-
-
-def _add_mirrored(target: np.ndarray, at: int, one_sided: np.ndarray) -> None:
-    """Add ``one_sided[d]`` to ``target`` at bins ``at + d`` and ``at - d`` (``d = 0`` once), in range."""
-    d = np.arange(one_sided.size)
-    for idx, vals in ((at + d, one_sided), (at - d[1:], one_sided[1:])):
-        inside = (idx >= 0) & (idx < target.size)
-        target[idx[inside]] += vals[inside]
 
 
 def occupied_bandwidth(freqs_hz: np.ndarray, density: np.ndarray, fraction: float = 0.99) -> tuple[float, float]:
@@ -186,6 +229,14 @@ def _band_sum(cum: np.ndarray, edges: np.ndarray, lo_hz: np.ndarray, hi_hz: np.n
 
 
 @lru_cache(maxsize=8)
+def _taper(reach: int) -> np.ndarray:
+    """Triangular weight ``1 - d / (reach + 1)`` for ``d = 0..reach`` (read-only)."""
+    out = 1.0 - np.arange(reach + 1) / (reach + 1.0)
+    out.setflags(write=False)
+    return out
+
+
+@lru_cache(maxsize=8)
 def _fft_freqs(length: int, rate: float) -> np.ndarray:
     out = scipy.fft.fftfreq(length, 1.0 / rate)
     out.setflags(write=False)
@@ -206,9 +257,8 @@ def _stereo_pilot(spectrum: np.ndarray, n: int, sample_rate_hz: float, offset_hz
     out_rate = length * sample_rate_hz / n  # about 4 band: the discriminator needs no alias guard
     if length < 256:
         return False
-    freqs = _fft_freqs(length, out_rate)
-    keep = np.abs(freqs) <= band
-    src = np.rint((offset_hz + freqs[keep]) * n / sample_rate_hz).astype(np.int64) % n
+    keep, kept_freqs = _pilot_cut(length, out_rate, band)
+    src = np.rint((offset_hz + kept_freqs) * n / sample_rate_hz).astype(np.int64) % n
     cut = np.zeros(length, dtype=np.complex64)
     cut[keep] = spectrum[src]
     z = scipy.fft.ifft(cut)
@@ -217,12 +267,32 @@ def _stereo_pilot(spectrum: np.ndarray, n: int, sample_rate_hz: float, offset_hz
     rows = inst[: (inst.size // seg) * seg].reshape(-1, seg)
     rows = (rows - rows.mean(axis=1, keepdims=True)) * _hann_real(seg)
     pxx = np.mean(np.abs(scipy.fft.rfft(rows, axis=1)) ** 2, axis=0)  # averaged periodogram
-    f = scipy.fft.rfftfreq(seg, 1.0 / out_rate)
-    gap = ((f > 15_500.0) & (f < 18_000.0)) | ((f > 20_000.0) & (f < 22_500.0))
-    near = np.abs(f - PILOT_HZ) <= 1.5 * (f[1] - f[0])
+    gap, near = _pilot_bins(seg, out_rate)
     if not gap.any() or not near.any():
         return False
     return bool(np.max(pxx[near]) >= np.median(pxx[gap]) * 10.0 ** (tuning.pilot_ratio_db / 10.0))
+
+
+@lru_cache(maxsize=16)
+def _pilot_cut(length: int, out_rate: float, band: float) -> tuple[np.ndarray, np.ndarray]:
+    """Bins of a ``length``-point FFT at ``out_rate`` within ``+- band`` and their frequencies."""
+    freqs = _fft_freqs(length, out_rate)
+    keep = np.abs(freqs) <= band
+    kept = freqs[keep]
+    for a in (keep, kept):
+        a.setflags(write=False)
+    return keep, kept
+
+
+@lru_cache(maxsize=16)
+def _pilot_bins(seg: int, out_rate: float) -> tuple[np.ndarray, np.ndarray]:
+    """Multiplex-spectrum bins of the 15.5-18 and 20-22.5 kHz gap and those next to 19 kHz."""
+    f = scipy.fft.rfftfreq(seg, 1.0 / out_rate)
+    gap = ((f > 15_500.0) & (f < 18_000.0)) | ((f > 20_000.0) & (f < 22_500.0))
+    near = np.abs(f - PILOT_HZ) <= 1.5 * (f[1] - f[0])
+    for a in (gap, near):
+        a.setflags(write=False)
+    return gap, near
 
 
 def find_emissions(
@@ -280,44 +350,58 @@ def find_emissions(
     known = np.asarray(usable, dtype=bool) & np.isfinite(n0)
     if not known.any():
         return []
-    excess = np.where(known, psd64 - n0, np.nan)
-    residual = _boxcar(excess, _odd(tuning.smooth_hz / step))
-    residual[~known] = np.nan
-    total = np.where(known, psd64, np.nan)
-
-    detect_w = _odd(tuning.detect_hz / step)
-    rel_var = group_variance_factor(offsets.size, detect_w) / float(effective_averages) + tuning.model_error**2
-    local_total = _boxcar(total, detect_w)
-    line_w = _odd(tuning.line_hz / step)
-    line_var = group_variance_factor(offsets.size, line_w) / float(effective_averages) + tuning.model_error**2
-    line_total = _boxcar(total, line_w)
+    raw_excess = np.where(known, psd64 - n0, 0.0)
     search = int(round(tuning.carrier_search_hz / step))
     sym_reach = int(round(tuning.symmetry_reach_hz / step))
     skirt_reach = int(round(tuning.skirt_reach_hz / step))
+    pad = max(skirt_reach, sym_reach)
+    padded = np.full(offsets.size + 2 * pad, np.nan)  # the residual with NaN beyond both ends
+    residual = padded[pad : pad + offsets.size]
+    residual[:] = _RunningMean(known, _odd(tuning.smooth_hz / step)).of(raw_excess)
+    residual[~known] = np.nan
+    total = np.where(known, psd64, 0.0)
+
+    detect_w = _odd(tuning.detect_hz / step)
+    rel_var = group_variance_factor(offsets.size, detect_w) / float(effective_averages) + tuning.model_error**2
+    wide_mean = _RunningMean(known, detect_w)  # the residual's NaN bins are the unknown ones, always
+    wide_scale = wide_mean.of(total) * np.sqrt(rel_var)
+    line_w = _odd(tuning.line_hz / step)
+    line_var = group_variance_factor(offsets.size, line_w) / float(effective_averages) + tuning.model_error**2
+    line_mean = _RunningMean(known, line_w)
+    line_scale = line_mean.of(total) * np.sqrt(line_var)
     envelope_w = _odd(tuning.envelope_hz / step)
+    taper = _taper(sym_reach)
 
     carriers: list[float] = []
     components: list[tuple[int, np.ndarray]] = []  # (carrier bin, mirror spectrum for d = 0..reach)
     reaches: list[float] = []  # sideband reach of each emission found, Hz
     strengths: list[float] = []  # detection score of each emission found
-    blocked = np.zeros(offsets.size, dtype=bool)
+    open_bins = known.copy()  # known and not yet blocked
+    unknown = ~known
+    values = np.empty(offsets.size)
+    symmetry = _Mirror(padded, pad, sym_reach)
+    changed = True  # the residual changed since the windows were scored
     for _ in range(tuning.max_emissions * 3):
         if len(carriers) >= tuning.max_emissions:
             break
-        wide = _boxcar(residual, detect_w)
-        narrow = _boxcar(residual, line_w)
-        with np.errstate(divide="ignore", invalid="ignore"):  # a zero floor (no signal) scores NaN
-            score = np.fmax(wide / (local_total * np.sqrt(rel_var)), narrow / (line_total * np.sqrt(line_var)))
-        score[~np.isfinite(score)] = np.nan
-        window_mean = np.fmax(wide, narrow)
-        score[~known | blocked] = np.nan
-        significant = score >= tuning.detect_sigma
+        if changed:
+            np.copyto(values, residual)
+            values[unknown] = 0.0
+            wide = wide_mean.of(values)
+            narrow = line_mean.of(values)
+            with np.errstate(divide="ignore", invalid="ignore"):  # a zero floor (no signal) scores NaN
+                score = np.fmax(wide / wide_scale, narrow / line_scale)
+            passing = score >= tuning.detect_sigma
+            passing &= np.isfinite(score)
+            window_mean = np.fmax(wide, narrow)
+            changed = False
+        significant = passing & open_bins
         if not significant.any():
             break
         peak = int(np.argmax(np.where(significant, window_mean, -np.inf)))  # strongest first
-        cand = np.arange(max(peak - search, 0), min(peak + search + 1, offsets.size))
-        taper = 1.0 - np.arange(sym_reach + 1) / (sym_reach + 1.0)
-        sym = np.nansum(np.clip(_mirror_min(residual, cand, sym_reach), 0.0, None) * taper, axis=1)
+        first = max(peak - search, 0)
+        cand = np.arange(first, min(peak + search + 1, offsets.size))
+        sym = np.fmax(symmetry.about(first, cand.size), 0.0) @ taper  # unknown on both sides (NaN) counts 0
         best = int(np.argmax(sym))
         frac = 0.0
         if 0 < best < sym.size - 1:
@@ -329,20 +413,22 @@ def find_emissions(
         half_block = max(detect_w // 2, 1)
         if any(abs(carrier + c) < tuning.image_hz and window_mean[peak] < s_c * tuning.image_below
                for c, s_c in zip(carriers, strengths)):
-            blocked[max(peak - half_block, 0) : peak + half_block + 1] = True
+            open_bins[max(peak - half_block, 0) : peak + half_block + 1] = False
             continue  # the receiver's IQ-imbalance image of a stronger emission
         if any(abs(carrier - c) < reach for c, reach in zip(carriers, reaches)):
-            blocked[max(peak - half_block, 0) : peak + half_block + 1] = True
+            open_bins[max(peak - half_block, 0) : peak + half_block + 1] = False
             continue  # a sideband or the asymmetry of a stronger emission
-        raw_mirror = _mirror_min(residual, np.asarray([at]), skirt_reach)[0]
-        own = np.clip(np.nan_to_num(raw_mirror, nan=0.0), 0.0, None)
+        raw_mirror = np.fmin(padded[pad + at : pad + at + skirt_reach + 1],
+                             padded[pad + at - skirt_reach : pad + at + 1][::-1])
+        own = np.fmax(raw_mirror, 0.0)  # unknown on both sides (NaN) counts 0
         core = _core_reach(own, sym_reach)
-        envelope = np.clip(np.nan_to_num(_boxcar(raw_mirror, envelope_w), nan=0.0), 0.0, None)
+        envelope = np.fmax(_boxcar(raw_mirror, envelope_w), 0.0)
         own[core:] = np.minimum(own[core:], np.minimum.accumulate(envelope[core:]))
         if own[: sym_reach + 1].sum() <= 0.0:
-            blocked[max(peak - half_block, 0) : peak + half_block + 1] = True
+            open_bins[max(peak - half_block, 0) : peak + half_block + 1] = False
             continue
-        _add_mirrored(residual, at, -own)
+        _add_mirrored(padded, pad, at, -own)  # NaN beyond the ends stays NaN
+        changed = True
         carriers.append(carrier)
         components.append((at, own))
         reaches.append(max(tuning.sideband_hz, core * step))
@@ -351,13 +437,14 @@ def find_emissions(
     if not carriers:
         return []
     # per-emission spectra on the bin grid, for the channel integrals
-    spectra = np.zeros((len(carriers), offsets.size))
+    padded_spectra = np.zeros((len(carriers), offsets.size + 2 * pad))
     for k, (at, own) in enumerate(components):
-        _add_mirrored(spectra[k], at, own)
+        _add_mirrored(padded_spectra[k], pad, at, own)
+    spectra = padded_spectra[:, pad : pad + offsets.size]
     edges = np.concatenate([[offsets[0] - step / 2.0], offsets + step / 2.0])
-    raw_excess = np.nan_to_num(excess, nan=0.0)
     cum_excess = np.concatenate([[0.0], np.cumsum(raw_excess)]) * step
-    cum_floor = np.concatenate([[0.0], np.cumsum(np.nan_to_num(n0, nan=0.0))]) * step
+    floor_known = np.isfinite(n0)
+    cum_floor = np.concatenate([[0.0], np.cumsum(np.where(floor_known, n0, 0.0))]) * step
     cum_parts = np.concatenate([np.zeros((len(carriers), 1)), np.cumsum(spectra, axis=1)], axis=1) * step
     cum_all = cum_parts.sum(axis=0)
     car = np.asarray(carriers)
@@ -373,7 +460,7 @@ def find_emissions(
     # the mirror of pure noise is clipped at zero, so it leaves a positive trickle: bins below two
     # standard deviations of the smoothed floor do not count towards the occupied bandwidth
     smooth_w = _odd(tuning.smooth_hz / step)
-    noise_step = 2.0 * np.nan_to_num(n0, nan=np.inf) * np.sqrt(
+    noise_step = 2.0 * np.where(floor_known, n0, np.inf) * np.sqrt(
         group_variance_factor(offsets.size, smooth_w) / float(effective_averages))
     raster = float(np.min(np.diff(chans))) if chans.size > 1 else float(channel_bw_hz)
     spectrum = None  # FFT of the hop's samples for the pilot test, computed once when first needed

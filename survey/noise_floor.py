@@ -21,21 +21,20 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 from functools import lru_cache
+from typing import Sequence
 
 import numpy as np
-import scipy.linalg
-import scipy.ndimage
 import scipy.special
 
 from survey.errors import PlanError
+from survey.floor_rows import fit_rows, occupied_rows, whittaker_rows
 from survey.floor_shape import FloorShape, fit_floor_shape
 from survey.units import db_to_ratio, ratio_to_db
 
 _DB_PER_NEPER = 10.0 / np.log(10.0)  # 10 log10(e): converts a natural-log variance/mean to dB
 _ALS_ROUNDS = 4  # asymmetric least-squares reweightings for the starting envelope (at most)
 _MASK_ROUNDS = 8  # occupancy-mask refits (at most)
-_THIRDS = np.full(3, 1.0 / 3.0)  # 3-group running mean
-_PBSV = scipy.linalg.get_lapack_funcs("pbsv", dtype=np.float64)  # banded SPD solver, as solveh_banded
+_OCCUPIED_SEEN: dict = {}  # recent answers of _occupied (read-only arrays), oldest first
 
 
 @lru_cache(maxsize=16)
@@ -89,14 +88,9 @@ def _whittaker(y: np.ndarray, weight: np.ndarray, penalty: np.ndarray) -> np.nda
 
     Solved with LAPACK's banded Cholesky (``pbsv``, as ``scipy.linalg.solveh_banded`` does,
     without its per-call checks); a tiny ridge keeps the system definite where no weight is.
+    One row of :func:`survey.floor_rows.whittaker_rows`.
     """
-    for ridge in (1e-9, 1e-6, 1e-3):
-        ab = penalty.copy()
-        ab[2] += weight + ridge
-        _, z, info = _PBSV(ab, weight * y, lower=0, overwrite_ab=1, overwrite_b=1)
-        if info == 0:
-            return z
-    raise PlanError("the noise-floor fit did not converge; check the PSD for NaN or infinite values")
+    return whittaker_rows(y[np.newaxis], np.broadcast_to(weight, y.shape)[np.newaxis], penalty)[0]
 
 
 @lru_cache(maxsize=32)
@@ -119,31 +113,6 @@ def group_variance_factor(fft_size: int, group: int) -> float:
     return _group_variance_factor(int(fft_size), int(group))
 
 
-@lru_cache(maxsize=64)
-def _window_ends(n: int, half: int) -> tuple[np.ndarray, np.ndarray]:
-    i = np.arange(n)
-    return np.minimum(i + half + 1, n), np.maximum(i - half, 0)
-
-
-@lru_cache(maxsize=64)
-def _ones_u8(length: int) -> np.ndarray:
-    out = np.ones(length, dtype=np.uint8)
-    out.setflags(write=False)
-    return out
-
-
-def _dilate(mask: np.ndarray, half: int) -> np.ndarray:
-    """``mask`` grown by ``half`` elements on each side (a running OR)."""
-    if half <= 0:
-        return mask
-    if 2 * half + 1 <= min(mask.size, 255):  # counts fit in uint8: one short correlation
-        return np.convolve(mask.view(np.uint8), _ones_u8(2 * half + 1), mode="same") > 0
-    c = np.zeros(mask.size + 1, dtype=np.int64)  # long reaches: cumulative sums
-    np.cumsum(mask, out=c[1:])
-    upper, lower = _window_ends(mask.size, half)
-    return c[upper] > c[lower]
-
-
 def _occupied(resid_db: np.ndarray, sigma_db: float, usable: np.ndarray, core_sigma: float,
               skirt_sigma: float, reach: int, skirt_max: int, carrier_db: float, peak_half: int,
               occupancy: int, occupancy_per_db: float, body_half: int = 0) -> np.ndarray:
@@ -163,36 +132,18 @@ def _occupied(resid_db: np.ndarray, sigma_db: float, usable: np.ndarray, core_si
     occupancy with its height) either side, skirt test or not.
     4. Everything claimed grows by ``reach`` groups.
     """
-    core = resid_db > core_sigma * sigma_db
-    core &= usable
-    if not core.any():
-        return core
-    n = core.size
-    r = resid_db * usable
-    smooth = np.convolve(r, _THIRDS, mode="same")
-    rising = smooth > skirt_sigma * sigma_db / np.sqrt(3.0)
-    rising |= core
-    run = np.empty(n, dtype=np.int64)  # id of the run of rising groups each group is in
-    run[0] = 0
-    np.cumsum(rising[1:] > rising[:-1], out=run[1:])
-    ok_run = np.zeros(int(run[-1]) + 1, dtype=bool)
-    ok_run[run[core]] = True
-    claimed = ok_run[run]
-    claimed &= rising
-    claimed &= _dilate(core, skirt_max)
-    carrier = r >= scipy.ndimage.maximum_filter1d(r, 2 * peak_half + 1, mode="nearest")
-    carrier &= smooth > carrier_db
-    carrier &= core
-    held = np.zeros(n, dtype=bool)
-    body = np.zeros(n, dtype=bool)
-    for at, height_db in zip(carrier.nonzero()[0].tolist(), smooth[carrier].tolist()):
-        half = occupancy + int(round(occupancy_per_db * max(height_db - 10.0, 0.0)))  # as np.rint
-        held[max(at - half, 0) : at + half + 1] = True
-        grown = body_half + half - occupancy
-        body[max(at - grown, 0) : at + grown + 1] = True
-    claimed &= held
-    claimed |= body
-    return _dilate(claimed, reach)
+    key = (np.ascontiguousarray(resid_db, dtype=np.float64).tobytes(), float(sigma_db),
+           np.ascontiguousarray(usable, dtype=bool).tobytes(), core_sigma, skirt_sigma, reach, skirt_max, carrier_db,
+           peak_half, occupancy, occupancy_per_db, body_half)
+    found = _OCCUPIED_SEEN.get(key)
+    if found is None:  # a pure function of its arguments: the same residual asked twice is answered once
+        found = occupied_rows(resid_db[np.newaxis], sigma_db, usable, core_sigma, skirt_sigma, reach, skirt_max,
+                              carrier_db, peak_half, occupancy, occupancy_per_db, body_half)[0]
+        found.setflags(write=False)
+        _OCCUPIED_SEEN[key] = found
+        while len(_OCCUPIED_SEEN) > 256:
+            _OCCUPIED_SEEN.pop(next(iter(_OCCUPIED_SEEN)))
+    return found.copy()
 
 
 @dataclass(frozen=True)
@@ -372,58 +323,104 @@ def local_noise_floor(
     PlanError
         No usable bin.
     """
-    mask = np.ascontiguousarray(usable_mask, dtype=bool).reshape(-1)
-    out = np.full(np.shape(psd), np.nan)
-    if not mask.any():
-        raise PlanError("no usable bins in the hop; raise usable_fraction or lower dc_guard_hz")
-    bin_hz = float(offsets_hz[1] - offsets_hz[0])
-    lay = _layout(mask.size, float(offsets_hz[0]), bin_hz, mask.tobytes(), float(group_hz),
-                  float(smooth_hz), float(tension_hz), float(envelope_stiffness),
-                  float(edge_fraction), float(edge_limber))
-    lo, hi, n_groups = lay.lo, lay.hi, lay.count.size
-    tiny = float(np.finfo(np.float32).tiny)
-    linear = np.ones(n_groups * lay.group)  # the padding bins read 0 dB and carry no weight
-    np.maximum(np.asarray(psd[lo:hi], dtype=np.float64), tiny, out=linear[: hi - lo])
-    y_bins = np.asarray(ratio_to_db(linear)).reshape(n_groups, lay.group)
-    y = np.einsum("ij,ij->i", y_bins, lay.mask_bins) / np.maximum(lay.count, 1.0)
-    weight = lay.weight
-    k_eff = float(effective_averages)
-    sigma_db, bias_db = _sigma_and_bias_db(k_eff, lay.variance_factor)
-    step_hz = lay.step_hz
-    occupancy_args = (
-        int(round(reach_hz / step_hz)), int(min(round(skirt_max_hz / step_hz), 10**6)), float(carrier_db),
-        int(round(peak_hz / step_hz)), int(round(occupancy_hz / step_hz)), occupancy_per_db_hz / step_hz,
-        int(round(body_hz / step_hz)) if skirt_sigma * sigma_db / np.sqrt(3.0) > blind_skirt_db else 0,
+    tuning = FloorTuning(
+        smooth_hz=smooth_hz, tension_hz=tension_hz, group_hz=group_hz, core_sigma=core_sigma,
+        skirt_sigma=skirt_sigma, reach_hz=reach_hz, asymmetry=asymmetry, envelope_stiffness=envelope_stiffness,
+        edge_fraction=edge_fraction, edge_limber=edge_limber, skirt_max_hz=skirt_max_hz, carrier_db=carrier_db,
+        peak_hz=peak_hz, occupancy_hz=occupancy_hz, occupancy_per_db_hz=occupancy_per_db_hz, body_hz=body_hz,
+        blind_skirt_db=blind_skirt_db,
     )
+    return local_noise_floors([offsets_hz], [psd], [usable_mask], effective_averages=[effective_averages],
+                              tuning=tuning, groups_out=groups_out)[0]
 
-    if n_groups < 4:
-        fit = np.full(n_groups, np.sum(weight * y) / np.sum(weight))
-    else:
-        fit = _whittaker(y, weight, lay.stiff)
-        above = None
-        for _ in range(_ALS_ROUNDS):  # asymmetric least squares: a lower envelope to start from
-            now_above = y > fit
-            if above is not None and not (now_above != above).any():
-                break  # weights unchanged: converged (Eilers & Boelens)
-            above = now_above
-            fit = _whittaker(y, weight * np.where(above, asymmetry, 1.0 - asymmetry), lay.stiff)
-        previous = None
-        for _ in range(_MASK_ROUNDS):
-            busy = _occupied(y - fit, sigma_db, lay.has_data, core_sigma, skirt_sigma, *occupancy_args)
-            free = ~busy & lay.has_data
-            if previous is not None and not (busy != previous).any():
-                break
-            if not free.any():
-                break  # the whole hop is occupied: keep the lower envelope
-            fit = _whittaker(y, weight * free, lay.penalty)
-            previous = busy
+
+@dataclass(frozen=True)
+class FloorTuning:
+    """The tuning of :func:`local_noise_floor` (same names, units and defaults), for
+    :func:`local_noise_floors`."""
+
+    smooth_hz: float = 150_000.0
+    tension_hz: float = 80_000.0
+    group_hz: float = 8_000.0
+    core_sigma: float = 4.0
+    skirt_sigma: float = 1.0
+    reach_hz: float = 8_000.0
+    asymmetry: float = 0.01
+    envelope_stiffness: float = 1.0
+    edge_fraction: float = 0.38
+    edge_limber: float = 0.01
+    skirt_max_hz: float = 24_000.0
+    carrier_db: float = 1.4
+    peak_hz: float = 40_000.0
+    occupancy_hz: float = 140_000.0
+    occupancy_per_db_hz: float = 2_000.0
+    body_hz: float = 90_000.0
+    blind_skirt_db: float = 0.25
+
+
+def local_noise_floors(offsets_hz: Sequence[np.ndarray], psds: Sequence[np.ndarray], usable_masks: Sequence[np.ndarray],
+                       *, effective_averages: Sequence[float], tuning: FloorTuning = FloorTuning(),
+                       groups_out: list | None = None) -> list[np.ndarray]:
+    """:func:`local_noise_floor` of many hops, fitted together (one result per hop, in order).
+
+    Hops with the same bin grid, usable mask and ``K_eff`` (every hop of a sweep, as a rule)
+    are fitted as rows of one array (:mod:`survey.floor_rows`): one banded solve per round for
+    all of them, each hop's iterations stopping when its own classification settles, so each
+    floor equals the hop's own :func:`local_noise_floor`.
+
+    ``groups_out`` receives one :class:`HopGroups` per hop, in order.
+    """
+    n_hops = len(psds)
+    if not (len(offsets_hz) == len(usable_masks) == len(effective_averages) == n_hops):
+        raise ValueError("offsets_hz, psds, usable_masks and effective_averages need one entry per hop")
+    t = tuning
+    batches: dict = {}
+    prepared = []
+    for k in range(n_hops):
+        mask = np.ascontiguousarray(usable_masks[k], dtype=bool).reshape(-1)
+        if not mask.any():
+            raise PlanError("no usable bins in the hop; raise usable_fraction or lower dc_guard_hz")
+        offsets = offsets_hz[k]
+        bin_hz = float(offsets[1] - offsets[0])
+        layout_key = (mask.size, float(offsets[0]), bin_hz, mask.tobytes(), float(t.group_hz), float(t.smooth_hz),
+                      float(t.tension_hz), float(t.envelope_stiffness), float(t.edge_fraction), float(t.edge_limber))
+        lay = _layout(*layout_key)
+        k_eff = float(effective_averages[k])
+        prepared.append((lay, layout_key, k_eff))
+        batches.setdefault((layout_key, k_eff), []).append(k)
+    results: list = [None] * n_hops
+    groups: list = [None] * n_hops
+    for (layout_key, k_eff), members in batches.items():
+        lay = prepared[members[0]][0]
+        n_groups = lay.count.size
+        tiny = float(np.finfo(np.float32).tiny)
+        linear = np.ones((len(members), n_groups * lay.group))  # the padding bins read 0 dB and carry no weight
+        for row, k in enumerate(members):
+            np.maximum(np.asarray(psds[k][lay.lo : lay.hi], dtype=np.float64), tiny, out=linear[row, : lay.hi - lay.lo])
+        y_bins = np.asarray(ratio_to_db(linear)).reshape(len(members), n_groups, lay.group)
+        y = np.einsum("rij,ij->ri", y_bins, lay.mask_bins) / np.maximum(lay.count, 1.0)
+        weight = np.broadcast_to(lay.weight, y.shape)
+        sigma_db, bias_db = _sigma_and_bias_db(k_eff, lay.variance_factor)
+        step_hz = lay.step_hz
+        occupancy_args = (
+            int(round(t.reach_hz / step_hz)), int(min(round(t.skirt_max_hz / step_hz), 10**6)), float(t.carrier_db),
+            int(round(t.peak_hz / step_hz)), int(round(t.occupancy_hz / step_hz)), t.occupancy_per_db_hz / step_hz,
+            int(round(t.body_hz / step_hz)) if t.skirt_sigma * sigma_db / np.sqrt(3.0) > t.blind_skirt_db else 0,
+        )
+        fitted = fit_rows(y, weight, lay.has_data, lay.stiff, lay.penalty, sigma_db, occupancy_args,
+                          core_sigma=t.core_sigma, skirt_sigma=t.skirt_sigma, asymmetry=t.asymmetry,
+                          als_rounds=_ALS_ROUNDS, mask_rounds=_MASK_ROUNDS)
+        for row, k in enumerate(members):
+            floor_db = fitted[row] - bias_db
+            groups[k] = HopGroups(lay.centers_hz, y[row], lay.weight, lay.has_data, sigma_db, bias_db,
+                                  occupancy_args, floor_db, lay.lo, lay.hi)
+            out = np.full(np.shape(psds[k]), np.nan)
+            span = slice(max(lay.lo - 1, 0), min(lay.hi + 1, out.size))
+            out[span] = db_to_ratio(np.interp(offsets_hz[k][span], lay.centers_hz, floor_db))
+            results[k] = out
     if groups_out is not None:
-        groups_out.append(HopGroups(lay.centers_hz, y, weight, lay.has_data, sigma_db, bias_db,
-                                    occupancy_args, fit - bias_db, lo, hi))
-    floor_db = fit - bias_db
-    span = slice(max(lo - 1, 0), min(hi + 1, len(out)))
-    out[span] = db_to_ratio(np.interp(offsets_hz[span], lay.centers_hz, floor_db))
-    return out
+        groups_out.extend(groups)
+    return results
 
 
 def sweep_floors(groups: list[HopGroups], centers_hz: list[float], offsets_hz: list[np.ndarray], *,

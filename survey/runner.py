@@ -54,7 +54,10 @@ class _ConstantBlockCheck:
         raw = block.raw
         if raw.size >= 2:
             iq = raw[: raw.size - raw.size % 2].reshape(-1, 2)
-            if all(float(np.nanmin(iq[:, c])) == float(np.nanmax(iq[:, c])) for c in (0, 1)):
+            head = iq[:64]
+            if raw.dtype.kind in "iu" and ((head[:, 0] != head[0, 0]).any() or (head[:, 1] != head[0, 1]).any()):
+                pass  # integer samples that already differ: not constant (no NaN to skip)
+            elif all(float(np.nanmin(iq[:, c])) == float(np.nanmax(iq[:, c])) for c in (0, 1)):
                 self.constant.append(self._k)
         self._k += 1
         if self.inner is not None:

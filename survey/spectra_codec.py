@@ -40,6 +40,7 @@ so the analyses' limits counted in FFT bins keep their meaning in hertz.
 from __future__ import annotations
 
 from dataclasses import dataclass
+from functools import lru_cache
 
 import numpy as np
 
@@ -83,32 +84,46 @@ def thin(freqs_hz: np.ndarray, psd_dbfs_hz: np.ndarray, center_hz: float, sample
     the group's centre frequency. Non-finite densities (no power) become the lowest code.
     """
     f = np.asarray(freqs_hz, dtype=np.float64)
-    db = np.asarray(psd_dbfs_hz, dtype=np.float64)
     n_groups = f.size // group
     if n_groups < 2 or f.size < 2 or not 1 <= group <= 255:
-        return encode_full(f, db)
-    f = f[: n_groups * group]
-    lin = np.power(10.0, db[: n_groups * group] / 10.0)
-    off = np.abs(f - center_hz)
-    usable = (off <= usable_fraction * sample_rate_hz / 2.0) & (off >= dc_guard_hz)
-    lin_g, use_g = lin.reshape(n_groups, group), usable.reshape(n_groups, group)
-    n_use = use_g.sum(axis=1)
-    mean = np.where(n_use > 0, (lin_g * use_g).sum(axis=1) / np.maximum(n_use, 1), lin_g.mean(axis=1))
-    keep = np.flatnonzero(n_use > 0)
-    if keep.size < 2:
-        keep = np.arange(n_groups)
-    keep = np.arange(keep[0], keep[-1] + 1)  # one contiguous run: the row is a uniform grid
-    if keep.size == _HEADER:  # the one length the two formats would share
+        return encode_full(f, np.asarray(psd_dbfs_hz, dtype=np.float64))
+    first, last, use_g, n_use = _thin_layout(f.tobytes(), float(center_hz), float(sample_rate_hz),
+                                              float(usable_fraction), float(dc_guard_hz), int(group))
+    n_keep = last - first
+    if n_keep == _HEADER:  # the one length the two formats would share
         return encode_full(freqs_hz, psd_dbfs_hz)
+    db = np.asarray(psd_dbfs_hz, dtype=np.float64)[first * group : last * group]
+    lin_g = np.power(10.0, db / 10.0).reshape(n_keep, group)
+    mean = np.where(n_use > 0, (lin_g * use_g).sum(axis=1) / np.maximum(n_use, 1), lin_g.mean(axis=1))
     with np.errstate(divide="ignore"):
-        values = 10.0 * np.log10(mean[keep])
+        values = 10.0 * np.log10(mean)
     finite = np.isfinite(values)
     offset = float(np.floor(values[finite].min())) if finite.any() else -300.0
     codes = np.clip(np.round((np.where(finite, values, offset) - offset) / step_db), 0, 255).astype(np.uint8)
-    centres = f.reshape(n_groups, group).mean(axis=1)
     header = _TAG + bytes([group]) + np.asarray([offset, step_db], dtype="<f4").tobytes()
-    return EncodedSpectrum(float(centres[keep[0]]), float(f[1] - f[0]) * group, int(keep.size),
-                           header + codes.tobytes())
+    centre = f[first * group : (first + 1) * group].reshape(1, group).mean(axis=1)[0]  # as a row mean
+    return EncodedSpectrum(float(centre), float(f[1] - f[0]) * group,
+                           int(n_keep), header + codes.tobytes())
+
+
+@lru_cache(maxsize=64)
+def _thin_layout(freqs_bytes: bytes, center_hz: float, sample_rate_hz: float, usable_fraction: float,
+                 dc_guard_hz: float, group: int) -> tuple[int, int, np.ndarray, np.ndarray]:
+    """The kept groups ``[first, last)`` of :func:`thin`, their usable bins and usable counts."""
+    f = np.frombuffer(freqs_bytes, dtype=np.float64)
+    n_groups = f.size // group
+    off = np.abs(f[: n_groups * group] - center_hz)
+    usable = (off <= usable_fraction * sample_rate_hz / 2.0) & (off >= dc_guard_hz)
+    use_g = usable.reshape(n_groups, group)
+    n_use = use_g.sum(axis=1)
+    keep = np.flatnonzero(n_use > 0)
+    if keep.size < 2:
+        keep = np.arange(n_groups)
+    first, last = int(keep[0]), int(keep[-1]) + 1  # one contiguous run: the row is a uniform grid
+    use_g, n_use = use_g[first:last].copy(), n_use[first:last].copy()
+    for a in (use_g, n_use):
+        a.setflags(write=False)
+    return first, last, use_g, n_use
 
 
 def encode(freqs_hz: np.ndarray, psd_dbfs_hz: np.ndarray, input_kind: str, center_hz: float,

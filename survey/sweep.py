@@ -13,7 +13,7 @@ from typing import Callable, Protocol
 from survey import dsp
 from survey.bandplan import assign_to_centers, plan_hops
 from survey.errors import PlanError
-from survey.noise_floor import sweep_floors
+from survey.noise_floor import local_noise_floors, sweep_floors
 from survey.records import (
     BandPlan,
     ChannelReading,
@@ -107,7 +107,9 @@ def run_sweep(
         (:func:`survey.noise_floor.sweep_floors`), so a channel at a crowded hop edge is
         measured against a floor bridged between both neighbouring hops instead of one
         extrapolated from one side. Blocks are kept in memory until the sweep ends. False:
-        each hop's own floor (:func:`survey.noise_floor.local_noise_floor`).
+        each hop's own floor (:func:`survey.noise_floor.local_noise_floor`). The hops' own floors
+        are fitted together (:func:`survey.noise_floor.local_noise_floors`): for a recording once
+        every hop is read, for a tuned source each as it arrives.
 
     Returns
     -------
@@ -125,8 +127,23 @@ def run_sweep(
         settings.fft_size, int(round(settings.dwell_s * source.sample_rate_hz))
     )
     blocks: list[tuple[object, IQBlock]] = []
-    floors: list = []
+    groups: list = []
     first_pass: list = []  # (offsets, PSD, own floor) per hop, so the second pass reuses them
+    pending: list = []  # hops whose own floors are not fitted yet: fitted together
+
+    def fit_pending() -> None:
+        spectra = [dsp.hop_spectrum(block, settings) for _, block in pending]
+        own = local_noise_floors(
+            [s.offsets_hz for s in spectra], [s.psd for s in spectra], [s.usable for s in spectra],
+            effective_averages=[s.effective_averages for s in spectra], groups_out=groups,
+        )
+        for (hop, _), spectrum, floor in zip(pending, spectra, own):
+            first_pass.append((spectrum.offsets_hz, spectrum.psd, floor))
+            if on_hop is not None:
+                on_hop(HopProgress(hop.index, len(plan.hops), hop.center_hz,
+                                   dsp.floor_level_dbfs_hz(floor, spectrum.usable)))
+        pending.clear()
+
     for hop in plan.hops:
         if should_stop is not None and should_stop():
             complete = False
@@ -137,17 +154,17 @@ def run_sweep(
             started = block.started_utc
         if sink is not None:
             sink.add_block(block)
-        hop_reading, _ = dsp.measure_hop(block, hop.channels_hz, settings, hop_index=hop.index, floor_out=floors,
-                                         psd_out=first_pass)
         blocks.append((hop, block))
+        pending.append((hop, block))
         ended = dsp.block_end_utc(block)
-        if on_hop is not None:
-            on_hop(HopProgress(hop.index, len(plan.hops), hop.center_hz, hop_reading.floor_dbfs_hz))
+        if source.fixed_centers_hz is None:  # a tuned source: each hop's floor as it arrives
+            fit_pending()
+    if pending:  # a recording: every hop is at hand, the floors are fitted together
+        fit_pending()
     # second pass: every hop measured against its part of one floor fitted to the whole sweep
     given = [None] * len(blocks)
-    if sweep_floor and blocks and all(f[3] is not None for f in floors):
-        given = sweep_floors([f[3] for f in floors], [float(b.center_hz) for _, b in blocks],
-                             [f[0] - float(b.center_hz) for f, (_, b) in zip(floors, blocks)])
+    if sweep_floor and blocks:
+        given = sweep_floors(groups, [float(b.center_hz) for _, b in blocks], [f[0] for f in first_pass])
     for k, (hop, block) in enumerate(blocks):
         offsets, psd, own_floor = first_pass[k]
         hop_reading, channel_readings = dsp.measure_hop(

@@ -23,11 +23,11 @@ from __future__ import annotations
 
 import time
 from contextlib import contextmanager
-from typing import Any, Callable, Iterator
+from functools import lru_cache
+from typing import TYPE_CHECKING, Any, Callable, Iterator
 
-from rich.console import Console
-from rich.progress import BarColumn, Progress, ProgressColumn, Task, TextColumn
-from rich.text import Text
+if TYPE_CHECKING:  # rich is imported only when a line is drawn (a quiet run never loads it)
+    from rich.console import Console
 
 
 def _clock_text(seconds: float | None) -> str:
@@ -37,24 +37,31 @@ def _clock_text(seconds: float | None) -> str:
     return f"{s // 3600}:{s % 3600 // 60:02d}:{s % 60:02d}"
 
 
-class _ElapsedColumn(ProgressColumn):
-    """Elapsed time of the task, ``H:MM:SS elapsed``."""
+@lru_cache(maxsize=1)
+def _columns() -> tuple[type, type]:
+    """The elapsed-time and time-left columns (rich column classes, built on first use)."""
+    from rich.progress import ProgressColumn, Task
+    from rich.text import Text
 
-    def render(self, task: Task) -> Text:
-        return Text(f"{_clock_text(task.elapsed or 0.0)} elapsed")
+    class _ElapsedColumn(ProgressColumn):
+        """Elapsed time of the task, ``H:MM:SS elapsed``."""
 
+        def render(self, task: Task) -> Text:
+            return Text(f"{_clock_text(task.elapsed or 0.0)} elapsed")
 
-class _LeftColumn(ProgressColumn):
-    """Time left: the schedule's estimate when given, else elapsed scaled by the work left."""
+    class _LeftColumn(ProgressColumn):
+        """Time left: the schedule's estimate when given, else elapsed scaled by the work left."""
 
-    def render(self, task: Task) -> Text:
-        given = task.fields.get("left_s")
-        if given is not None:
-            return Text(f"{_clock_text(given)} left")
-        if task.total is None or not task.completed or task.elapsed is None:
-            return Text("")
-        left = task.elapsed * (task.total - task.completed) / task.completed
-        return Text(f"{_clock_text(left)} left")
+        def render(self, task: Task) -> Text:
+            given = task.fields.get("left_s")
+            if given is not None:
+                return Text(f"{_clock_text(given)} left")
+            if task.total is None or not task.completed or task.elapsed is None:
+                return Text("")
+            left = task.elapsed * (task.total - task.completed) / task.completed
+            return Text(f"{_clock_text(left)} left")
+
+    return _ElapsedColumn, _LeftColumn
 
 
 class SweepProgress:
@@ -64,8 +71,8 @@ class SweepProgress:
     ----------
     total_sweeps : int or None
         Sweeps planned (None: open-ended, e.g. a scan for a duration).
-    console : rich Console
-        Where to draw (standard error in the commands).
+    console : rich Console or None
+        Where to draw (standard error in the commands); None only when not ``enabled``.
     enabled : bool
         False draws nothing and costs next to nothing per callback.
     clock : callable
@@ -74,7 +81,7 @@ class SweepProgress:
         Redraw on a timer (so elapsed time moves between hops); tests redraw on each event.
     """
 
-    def __init__(self, total_sweeps: int | None, console: Console, enabled: bool = True,
+    def __init__(self, total_sweeps: int | None, console: Console | None, enabled: bool = True,
                  clock: Callable[[], float] = time.monotonic, auto_refresh: bool = True):
         self.total_sweeps = total_sweeps
         self.enabled = enabled
@@ -84,8 +91,15 @@ class SweepProgress:
         self._n_hops: int | None = None
         self._label = ""
         self._in_sweep = False
+        self._progress = None
+        self._task = None
+        if console is None and not enabled:
+            return  # nothing is drawn: rich is not needed
+        from rich.progress import BarColumn, Progress, TextColumn
+
+        elapsed, left = _columns()
         self._progress = Progress(
-            TextColumn("{task.description}", markup=False), BarColumn(), _ElapsedColumn(), _LeftColumn(),
+            TextColumn("{task.description}", markup=False), BarColumn(), elapsed(), left(),
             console=console, transient=True, disable=not enabled, auto_refresh=auto_refresh,
             refresh_per_second=4, get_time=clock, redirect_stdout=False, redirect_stderr=False,
         )
@@ -123,8 +137,10 @@ class SweepProgress:
         kind = getattr(event, "event", "")
         if getattr(event, "sweeps_total", None) and self.total_sweeps is None:
             self.total_sweeps = int(event.sweeps_total)
-            self._progress.update(self._task, total=self.total_sweeps)
-        self._progress.update(self._task, left_s=getattr(event, "time_left_s", None))
+            if self._progress is not None:
+                self._progress.update(self._task, total=self.total_sweeps)
+        if self._progress is not None:
+            self._progress.update(self._task, left_s=getattr(event, "time_left_s", None))
         label = getattr(event, "configuration", None) or self._label
         if kind == "hop":
             if not self._in_sweep:
@@ -172,11 +188,13 @@ class SweepProgress:
         return iter((self.on_hop, self.on_sweep))
 
     def __enter__(self) -> "SweepProgress":
-        self._progress.start()
+        if self._progress is not None:
+            self._progress.start()
         return self
 
     def __exit__(self, *exc: Any) -> None:
-        self._progress.stop()
+        if self._progress is not None:
+            self._progress.stop()
 
 
 @contextmanager
@@ -184,7 +202,14 @@ def sweep_progress(total_sweeps: int | None, quiet: bool = False, *, console: Co
                    clock: Callable[[], float] = time.monotonic,
                    auto_refresh: bool = True) -> Iterator[SweepProgress]:
     """A :class:`SweepProgress` on standard error, shown only on a terminal and without ``quiet``."""
-    out = console if console is not None else Console(stderr=True)
+    if quiet and console is None:
+        out = None
+    elif console is not None:
+        out = console
+    else:
+        from rich.console import Console
+
+        out = Console(stderr=True)
     display = SweepProgress(total_sweeps, out, enabled=(not quiet) and out.is_terminal, clock=clock,
                             auto_refresh=auto_refresh)
     with display:
@@ -197,12 +222,21 @@ def step_progress(quiet: bool = False, *, console: Console | None = None,
     """A progress line for a job told of its steps as ``on_step(what, k, n)`` (e.g. the report:
     ``step 2 of 4: comparison, noise and diagnosis``), on standard error, shown only on a
     terminal and without ``quiet``; yields the callback (a no-op when not shown)."""
-    out = console if console is not None else Console(stderr=True)
-    if quiet or not out.is_terminal:
+    if quiet:
         yield lambda what, k, n: None
         return
-    bar = Progress(TextColumn("{task.description}"), BarColumn(), _ElapsedColumn(), _LeftColumn(),
-                   console=out, transient=True, auto_refresh=auto_refresh)
+    if console is None:
+        from rich.console import Console
+
+        console = Console(stderr=True)
+    if not console.is_terminal:
+        yield lambda what, k, n: None
+        return
+    from rich.progress import BarColumn, Progress, TextColumn
+
+    elapsed, left = _columns()
+    bar = Progress(TextColumn("{task.description}"), BarColumn(), elapsed(), left(),
+                   console=console, transient=True, auto_refresh=auto_refresh)
     task = bar.add_task("", total=None)
 
     def on_step(what: str, k: int, n: int) -> None:

@@ -10,7 +10,6 @@ from bandcensus import __version__
 from bandcensus.commands._common import FiniteFloat, db_option, echo_json, json_option
 from bandcensus.commands._progress import sweep_progress
 from bandcensus.commands._stored import aggregate_warnings, configuration_lines, stored_line, stored_run
-from bandcensus.commands._tables import channel_rows_table, print_table
 from bandcensus.commands._text import display_path, plural
 from survey.bandplan import parse_band
 from survey.records import INPUT_KINDS, RunInfo, SweepSettings
@@ -33,6 +32,8 @@ def inside_guard(plan, source, settings) -> tuple[int, ...]:
 
 def _open_with_progress(path: str, quiet: bool):
     """Open a recording; show the pass over its data (checksum, sample check) when it is large."""
+    if quiet:
+        return open_recording(path)
     from rich.console import Console
     from rich.progress import BarColumn, DownloadColumn, Progress, TextColumn
 
@@ -131,7 +132,7 @@ def command(recordings, db_path, configuration, input_kind, band, channel_bw_khz
             for path, source, cfg, inp, settings, plan, notch in jobs:
                 if session.stopped:
                     break
-                progress.start_sweep(terminal_label(cfg))
+                progress.start_sweep(terminal_label(cfg) if progress.enabled else cfg)  # drawn only when shown
                 try:
                     notes = "; ".join(notes_by_path.get(str(source.path), []) + [
                         w.split(": ", 1)[1] for w in warnings_out if w.startswith(f"{source.path}:")])
@@ -207,6 +208,8 @@ def _print_outcome(payload: list[dict], band_name: str, summary, db_path: str, r
                        f"{plural(len(item['channels']), 'channel')} measured, {detected} detected, "
                        f"{len(item['uncovered_hz'])} of band '{band_name}' not covered by the recording")
             if show_channels:
+                from bandcensus.commands._tables import channel_rows_table, print_table  # rich: only for tables
+
                 print_table(channel_rows_table(item["channels"],
                                                f"Recording {terminal_label(display_path(item['recording']))}"))
     run = stored_run(db_path, run_id)

@@ -269,16 +269,18 @@ class SurveyStore:
             _insert_station_rows(c, sweep_id, emissions)
             insert_station_vector(c, sweep_id, emissions)  # the same rows, columnar (same order)
             if keep_spectra:
+                spectra_rows = []
                 for h in result.hops:
                     if h.psd_dbfs_hz is None or h.psd_freqs_hz is None or len(h.psd_freqs_hz) < 2:
                         continue
                     row = spectra_codec.encode(h.psd_freqs_hz, h.psd_dbfs_hz, result.input, float(h.center_hz),
                                                float(h.sample_rate_hz), float(s.usable_fraction), float(s.dc_guard_hz))
-                    c.execute(
-                        "INSERT INTO spectra (sweep_id, hop_index, f_start_hz, bin_hz, n_bins, psd_centi_dbfs_hz)"
-                        " VALUES (?,?,?,?,?,?)",
-                        (sweep_id, int(h.index), row.f_start_hz, row.bin_hz, row.n_bins, row.blob),
-                    )
+                    spectra_rows.append((sweep_id, int(h.index), row.f_start_hz, row.bin_hz, row.n_bins, row.blob))
+                c.executemany(
+                    "INSERT INTO spectra (sweep_id, hop_index, f_start_hz, bin_hz, n_bins, psd_centi_dbfs_hz)"
+                    " VALUES (?,?,?,?,?,?)",
+                    spectra_rows,
+                )
             return int(sweep_id)
 
         return self._write(work)

@@ -15,6 +15,11 @@ each), FFT 2048, no overlap, the default sweep settings. Variants:
 * ``tool full hop``: :func:`survey.dsp.measure_hop` (adds the local noise floor and C/N); the
   difference to the previous line is the cost of the floor fit.
 * ``welch``: ``to_complex64`` plus ``scipy.signal.welch`` (same window, segments, no detrend).
+* ``floors one by one`` / ``floors batched``: each hop's spectrum (:func:`survey.dsp.hop_spectrum`)
+  and its noise floor, fitted hop by hop (:func:`survey.noise_floor.local_noise_floor`) or for
+  the ten hops together (:func:`survey.noise_floor.local_noise_floors`, as a replayed sweep's
+  first pass does); the difference between the two is what batching the fit saves. The largest
+  difference between the two floors is printed (they should agree to rounding).
 
 Every measurement runs in a FRESH interpreter (``subprocess`` with ``sys.executable``), so no
 variant inherits another's allocator state, caches or FFT plans. The child binds itself to one
@@ -44,7 +49,8 @@ FS = 2.4e6
 HOP_S = 0.1
 N_HOPS = 10
 FFT = 2048
-VARIANTS = ("minimal", "tool PSD", "tool PSD+channels", "tool full hop", "welch")
+VARIANTS = ("minimal", "tool PSD", "tool PSD+channels", "tool full hop", "welch", "floors one by one",
+            "floors batched")
 HERE = Path(__file__).resolve()
 
 
@@ -86,6 +92,7 @@ def child(variant: str, data: Path) -> dict:
     import scipy.signal
 
     from survey import dsp, psd
+    from survey.noise_floor import local_noise_floor, local_noise_floors
     from survey.records import IQBlock, SweepSettings
 
     loaded = np.load(data)
@@ -125,8 +132,19 @@ def child(variant: str, data: Path) -> dict:
             scipy.signal.welch(z, FS, window="hann", nperseg=FFT, noverlap=0, detrend=False,
                                return_onesided=False, scaling="density")
 
+    def floors_each():
+        for b in blocks:
+            s = dsp.hop_spectrum(b, settings)
+            local_noise_floor(s.offsets_hz, s.psd, s.usable, effective_averages=s.effective_averages)
+
+    def floors_batched():
+        spectra = [dsp.hop_spectrum(b, settings) for b in blocks]
+        local_noise_floors([s.offsets_hz for s in spectra], [s.psd for s in spectra], [s.usable for s in spectra],
+                           effective_averages=[s.effective_averages for s in spectra])
+
     work = {"minimal": minimal, "tool PSD": tool_psd, "tool PSD+channels": tool_psd_channels,
-            "tool full hop": tool_full, "welch": welch}[variant]
+            "tool full hop": tool_full, "welch": welch, "floors one by one": floors_each,
+            "floors batched": floors_batched}[variant]
     passes, cpu = [], []
     for _ in range(2):
         c0, t0 = time.process_time(), time.perf_counter()
@@ -136,20 +154,34 @@ def child(variant: str, data: Path) -> dict:
     return {"first": passes[0], "steady": passes[1], "first cpu": cpu[0], "steady cpu": cpu[1]}
 
 
-def accuracy(data: Path) -> float:
-    """Largest |tool PSD - scipy.signal.welch| over all bins of the ten hops, dB."""
+def accuracy(data: Path) -> tuple[float, float]:
+    """Largest |tool PSD - scipy.signal.welch| over all bins of the ten hops, dB; largest
+    |batched floor - hop-by-hop floor| over the same bins, dB."""
     import numpy as np
     import scipy.signal
 
     from survey import dsp
+    from survey.noise_floor import local_noise_floor, local_noise_floors
+    from survey.records import IQBlock, SweepSettings
 
     worst = 0.0
-    for raw in np.load(data)["raw"]:
+    loaded = np.load(data)
+    for raw in loaded["raw"]:
         _, ours = dsp.raw_averaged_psd(raw, "cu8", FS, FFT)
         _, ref = scipy.signal.welch(dsp.to_complex64(raw, "cu8"), FS, window="hann", nperseg=FFT, noverlap=0,
                                     detrend=False, return_onesided=False, scaling="density")
         worst = max(worst, float(np.max(np.abs(10 * np.log10(ours / np.fft.fftshift(ref))))))
-    return worst
+    settings = SweepSettings(band="benchmark")
+    spectra = [dsp.hop_spectrum(IQBlock(float(c), FS, "cu8", np.ascontiguousarray(r), "2026-03-01T00:00:00.000000Z"),
+                                settings) for r, c in zip(loaded["raw"], loaded["centers"])]
+    batched = local_noise_floors([s.offsets_hz for s in spectra], [s.psd for s in spectra],
+                                 [s.usable for s in spectra], effective_averages=[s.effective_averages for s in spectra])
+    floors = 0.0
+    for s, b in zip(spectra, batched):
+        alone = local_noise_floor(s.offsets_hz, s.psd, s.usable, effective_averages=s.effective_averages)
+        ok = np.isfinite(alone)
+        floors = max(floors, float(np.max(np.abs(10 * np.log10(b[ok] / alone[ok])))))
+    return worst, floors
 
 
 def _stats(values: list[float]) -> tuple[float, float]:
@@ -186,7 +218,7 @@ def main(argv=None) -> int:
                 result = json.loads(out.stdout.strip().splitlines()[-1])
                 for key in keys:
                     times[variant][key].append(result[key])
-        worst_db = accuracy(data)
+        worst_db, floors_db = accuracy(data)
     print(f"load average at end:   {' '.join(f'{x:.2f}' for x in os.getloadavg())}")
     for clock, suffix in (("wall clock", ""), ("CPU time of the child (less sensitive to other work)", " cpu")):
         print(f"{clock}:")
@@ -204,7 +236,14 @@ def main(argv=None) -> int:
     psd = _stats(times["tool PSD+channels"]["steady"])[0]
     print(f"noise floor fit (full hop minus PSD+channels, best): {(full - psd) / N_HOPS * 1e3:.2f} ms per hop, "
           f"{(full - psd) / full * 100:.0f} % of the full hop")
+    each = _stats(times["floors one by one"]["steady cpu"])[0]
+    batched = _stats(times["floors batched"]["steady cpu"])[0]
+    spectra_only = _stats(times["tool PSD"]["steady cpu"])[0]
+    print(f"spectrum + floor per hop (CPU, best): one by one {each / N_HOPS * 1e3:.2f} ms, batched "
+          f"{batched / N_HOPS * 1e3:.2f} ms ({each / batched:.2f}x); the floor alone (minus the PSD): "
+          f"{(each - spectra_only) / N_HOPS * 1e3:.2f} ms vs {(batched - spectra_only) / N_HOPS * 1e3:.2f} ms")
     print(f"largest difference tool PSD vs scipy.signal.welch over all bins: {worst_db:.5f} dB")
+    print(f"largest difference batched vs hop-by-hop floor over all bins: {floors_db:.2e} dB")
     return 0
 
 
