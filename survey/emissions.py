@@ -74,6 +74,7 @@ from typing import Sequence
 import numpy as np
 import scipy.fft
 
+from survey.floor_rows import window_ends
 from survey.noise_floor import group_variance_factor
 from survey.records import EmissionReading
 from survey.units import ratio_to_db
@@ -118,20 +119,10 @@ def _boxcar(x: np.ndarray, width: int) -> np.ndarray:
 
 
 @lru_cache(maxsize=64)
-def _window_ends(n: int, half: int) -> tuple[np.ndarray, np.ndarray]:
-    """Indices into a cumulative sum (with a leading zero) of each window's end and start."""
-    i = np.arange(n)
-    upper, lower = np.minimum(i + half + 1, n), np.maximum(i - half, 0)
-    for a in (upper, lower):
-        a.setflags(write=False)
-    return upper, lower
-
-
-@lru_cache(maxsize=64)
 def _window_counts(known_bytes: bytes, width: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Window ends and the count of known bins per window (NaN where none), read-only."""
     known = np.frombuffer(known_bytes, dtype=bool)
-    upper, lower = _window_ends(known.size, width // 2)
+    upper, lower = window_ends(known.size, width // 2)
     c = np.zeros(known.size + 1, dtype=np.int64)
     np.cumsum(known, out=c[1:])
     count = (c[upper] - c[lower]).astype(np.float64)

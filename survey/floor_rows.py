@@ -77,7 +77,9 @@ def _ones_u8(length: int) -> np.ndarray:
 
 
 @lru_cache(maxsize=64)
-def _window_ends(n: int, half: int) -> tuple[np.ndarray, np.ndarray]:
+def window_ends(n: int, half: int) -> tuple[np.ndarray, np.ndarray]:
+    """Indices into a cumulative sum (with a leading zero) of each window's end and start, for
+    windows of ``2 half + 1`` elements clipped to ``0 .. n`` (read-only, cached per shape)."""
     i = np.arange(n)
     upper, lower = np.minimum(i + half + 1, n), np.maximum(i - half, 0)
     for a in (upper, lower):
@@ -100,7 +102,7 @@ def dilate_rows(mask: np.ndarray, half: int) -> np.ndarray:
         return out
     c = np.zeros((rows, n + 1), dtype=np.int32)  # long reach: cumulative sums
     np.cumsum(mask, axis=1, out=c[:, 1:])
-    upper, lower = _window_ends(n, half)
+    upper, lower = window_ends(n, half)
     return c[:, upper] > c[:, lower]
 
 
