@@ -24,7 +24,6 @@ import numpy as np
 
 from analysis.findings import Finding
 from analysis.diagnose.data import ChannelSummary, raster_step_hz
-from survey import dsp
 from analysis.selection import Survey
 from survey.store import HopSpectrum
 from survey.units import db_to_ratio, ratio_to_db
@@ -80,6 +79,7 @@ class SpectralSearch:
 
 
 def _hop_floor(hop: dict, sweep) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    from survey import dsp  # the engine's estimator, imported only when spectra were kept
     f = np.asarray(hop.freqs_hz, dtype=np.float64)
     off = f - hop.center_hz
     lin = np.asarray(db_to_ratio(hop.psd_dbfs_hz))

@@ -40,7 +40,6 @@ from dataclasses import asdict, dataclass, field
 from typing import Sequence
 
 import numpy as np
-from scipy.optimize import brentq, least_squares, minimize_scalar
 
 from analysis.errors import BadParameterError, FitError
 
@@ -120,6 +119,7 @@ def curve_features(stages: Sequence[TunedStage], gain_db: float = 0.0) -> CurveF
     bounded scalar minimisation, edges with Brent's method between grid points. The edges bound
     the contiguous region around the peak above ``peak - level``.
     """
+    from scipy.optimize import brentq, minimize_scalar  # imported when a fit runs
     if not stages:
         raise BadParameterError("a passband needs at least one tuned circuit; give one or more stages")
     f0s = np.array([s.f0_hz for s in stages])
@@ -334,6 +334,8 @@ def _fit_one(shape: str, n: int, f: np.ndarray, g: np.ndarray, w: np.ndarray, fr
 
     def jac(p):
         return _model_and_jac(p, f, shape, n, fref, offset)[1] * w[:, None]
+
+    from scipy.optimize import least_squares  # imported when a fit runs
 
     starts = _starts(shape, n, f, g, fref, rng, None if sync_best is None else sync_best[:3])
     if offset:
