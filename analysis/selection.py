@@ -195,12 +195,32 @@ class Survey:
                     since_utc: str | None = None, until_utc: str | None = None) -> tuple[SweepRow, ...]:
         """Complete sweeps matching the selection (possibly none); times as stored (UTC)."""
         def select() -> tuple[SweepRow, ...]:
-            return tuple(s for s in self.all_sweeps()
-                         if (configuration is None or s.configuration == configuration)
-                         and (input is None or s.input == input)
-                         and (since_utc is None or s.started_utc >= since_utc)
+            groups = self._sweep_groups()
+            picked = [rows for (c, i), rows in groups.items()
+                      if (configuration is None or c == configuration) and (input is None or i == input)]
+            if len(picked) == 1:
+                rows = picked[0]
+            else:  # several labels: back in time order (their positions in all_sweeps)
+                position = self._sweep_positions()
+                rows = sorted((s for g in picked for s in g), key=lambda s: position[id(s)])
+            if since_utc is None and until_utc is None:
+                return tuple(rows)
+            return tuple(s for s in rows if (since_utc is None or s.started_utc >= since_utc)
                          and (until_utc is None or s.started_utc < until_utc))
         return self.memo(("sweeps", configuration, input, since_utc, until_utc), select)
+
+    def _sweep_groups(self) -> dict[tuple[str, str], list[SweepRow]]:
+        """Every complete sweep grouped by (configuration, input), time order kept (one pass)."""
+        def group() -> dict[tuple[str, str], list[SweepRow]]:
+            out: dict[tuple[str, str], list[SweepRow]] = {}
+            for s in self.all_sweeps():
+                out.setdefault((s.configuration, s.input), []).append(s)
+            return out
+        return self.memo(("sweep_groups",), group)
+
+    def _sweep_positions(self) -> dict[int, int]:
+        """Position of each record of :meth:`all_sweeps` (by object identity)."""
+        return self.memo(("sweep_positions",), lambda: {id(s): k for k, s in enumerate(self.all_sweeps())})
 
     def channel_matrix(self, sweeps: Sequence[SweepRow]) -> ChannelMatrix:
         """Raster-channel readings of ``sweeps`` (rows in the order given), read once.
@@ -218,6 +238,17 @@ class Survey:
         every = sorted({int(s.id): s for g in groups for s in g}.values(), key=lambda s: int(s.id))
         self.channel_matrix(every)
         return tuple(self.channel_matrix(g) for g in groups)
+
+    def channel_rows(self, *groups: Sequence[SweepRow]) -> tuple[ChannelMatrix, tuple[np.ndarray, ...]]:
+        """One raster-channel matrix holding every sweep of ``groups`` (a read shared with
+        :meth:`channel_matrices` and the census) and, per group, the row of each of its sweeps in
+        it: for analyses that need a few columns of each group, without copying the groups' rows."""
+        every = sorted({int(s.id): s for g in groups for s in g}.values(), key=lambda s: int(s.id))
+        whole = self.channel_matrix(every)
+        ids = whole.sweep_ids
+        order = np.argsort(ids, kind="stable")
+        return whole, tuple(order[np.searchsorted(ids, np.asarray([int(s.id) for s in g], np.int64), sorter=order)]
+                            for g in groups)
 
     def _remember(self, matrix: ChannelMatrix) -> ChannelMatrix:
         self._read.append(matrix)

@@ -166,8 +166,27 @@ def list_sweeps(
     if where:
         sql += " WHERE " + " AND ".join(where)
     sql += " ORDER BY started_utc, id"
-    complete = _SWEEP_COLUMNS.index("complete")
-    return [SweepRow(*r[:complete], bool(r[complete]), *r[complete + 1:]) for r in conn.execute(sql, args)]
+    return _sweep_rows(conn.execute(sql, args))
+
+
+def _sweep_rows(rows: Iterable[tuple]) -> list[SweepRow]:
+    """:class:`SweepRow` records of ``sweeps`` rows selected in :data:`_SWEEP_COLUMNS` order.
+
+    Each record gets its fields set directly (``complete`` as bool), which is what the frozen
+    dataclass's ``__init__`` does field by field at several times the cost: a week of sweeps is
+    tens of thousands of records. Equality, hashing and repr are the dataclass's own.
+    """
+    names = tuple(_SWEEP_COLUMNS)
+    complete = names.index("complete")
+    new = object.__new__
+    out = []
+    for r in rows:
+        row = new(SweepRow)
+        fields = dict(zip(names, r))
+        fields["complete"] = bool(r[complete])
+        row.__dict__.update(fields)
+        out.append(row)
+    return out
 
 
 def read_channel_matrix(conn: sqlite3.Connection, sweep_ids: Sequence[int]) -> ChannelMatrix:

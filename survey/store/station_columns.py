@@ -135,6 +135,10 @@ class StationColumns:
     def is_kind(self, *names: str) -> np.ndarray:
         """Boolean mask of the emissions whose kind is one of ``names``."""
         codes = [i for i, k in enumerate(self.kind_names) if k in names]
+        if len(codes) == len(self.kind_names):
+            return np.ones(self.kind.shape, bool)
+        if len(codes) == 1:
+            return self.kind == np.uint8(codes[0])  # one pass, no sort
         return np.isin(self.kind, np.asarray(codes, np.uint8))
 
     def take(self, index) -> "StationColumns":
