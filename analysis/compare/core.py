@@ -497,15 +497,22 @@ def _broadband_noise_rise_rows(whole, at_base: np.ndarray, at_test: np.ndarray, 
         return None, 0
     cols = np.flatnonzero(empty)
     noise = np.asarray(whole.noise_dbfs)
-    nb = noise[np.ix_(at_base, cols)].astype(np.float64)
-    nt = noise[np.ix_(at_test, cols)].astype(np.float64)
-    return _median_rise(nb, nt, paired, pairs[0], pairs[1]), int(empty.sum())
+    bi, ti = pairs[0], pairs[1]
+    if paired and bi.size:  # the paired rows only, gathered once
+        nb = noise[np.ix_(at_base[bi], cols)].astype(np.float64)
+        nt = noise[np.ix_(at_test[ti], cols)].astype(np.float64)
+        bi = ti = np.arange(bi.size)
+    else:
+        nb = noise[np.ix_(at_base, cols)].astype(np.float64)
+        nt = noise[np.ix_(at_test, cols)].astype(np.float64)
+    return _median_rise(nb, nt, paired, bi, ti), int(empty.sum())
 
 
 def _median_rise(nb: np.ndarray, nt: np.ndarray, paired: bool, bi: np.ndarray, ti: np.ndarray) -> float | None:
     """Median over the columns of the mean paired noise difference (unpaired: difference of the means)."""
     if paired and bi.size:
-        rise = column_mean_sd(nt[ti] - nb[bi])[0]
+        rise = column_mean_sd(nt - nb if bi.size == nb.shape[0] and np.array_equal(bi, ti) and
+                              np.array_equal(bi, np.arange(bi.size)) else nt[ti] - nb[bi])[0]
     else:
         rise = column_mean_sd(nt)[0] - column_mean_sd(nb)[0]
     rise = rise[np.isfinite(rise)]
