@@ -290,12 +290,16 @@ def census_matrix(conn: sqlite3.Connection, sweeps: Sequence[SweepRow], kinds=("
         chosen = _strongest_per_cell(cell, cols.cn_db, cols.freq_hz, n * m)
         flat = cell[chosen]
         del cell
+        # usually every emission is its cell's reading, in order: then the columns are used as they are
+        pick = (lambda column: column) if chosen.size == cols.size and (
+            chosen.size == 0 or (chosen[0] == 0 and chosen[-1] == chosen.size - 1 and
+                                 bool(np.all(np.diff(chosen) == 1)))) else (lambda column: column[chosen])
         heard.ravel()[flat] = True
-        power.ravel()[flat] = cols.power_dbfs[chosen]
-        noise.ravel()[flat] = cols.noise_dbfs[chosen]
-        ci.ravel()[flat] = cols.ci_db[chosen]
-        stereo.ravel()[flat] = cols.stereo[chosen]
-        chosen_cn = cols.cn_db[chosen]
+        power.ravel()[flat] = pick(cols.power_dbfs)
+        noise.ravel()[flat] = pick(cols.noise_dbfs)
+        ci.ravel()[flat] = pick(cols.ci_db)
+        stereo.ravel()[flat] = pick(cols.stereo)
+        chosen_cn = pick(cols.cn_db)
         cn.ravel()[flat] = chosen_cn
         margins = np.asarray([margin[s] for s in ids], dtype=np.float64)[flat // m]
         detected.ravel()[flat] = np.isfinite(chosen_cn) & (chosen_cn >= margins)

@@ -423,19 +423,23 @@ def read_sweep_matrix(conn: sqlite3.Connection, sweeps: Sequence[SweepRow]) -> C
         return read_channel_matrix(conn, ids)
     # chunk by chunk in the order asked, each column appended to one writable buffer that the
     # arrays then use in place: the blobs fetched are held one chunk at a time, copied once
-    axis: bytes | None = None
+    # the first sweep's frequency axis; SQLite compares every other sweep's axis with it (a flag
+    # per sweep instead of a copy of each axis)
+    first = conn.execute("SELECT freqs_hz FROM channel_vectors WHERE sweep_id = ?", (ids[0],)).fetchone()
+    if first is None:
+        return read_channel_matrix(conn, ids)  # a sweep without its columnar copy
+    axis: bytes = first[0]
     joined = [bytearray(), bytearray(), bytearray()]
     for start in range(0, len(ids), 900):
         chunk = ids[start:start + 900]
         marks = ",".join("?" * len(chunk))
-        blobs = {int(sid): (fr, pw, nz, rc) for sid, fr, pw, nz, rc in conn.execute(
-            f"SELECT sweep_id, freqs_hz, power_dbfs, noise_dbfs, received FROM channel_vectors"
-            f" WHERE sweep_id IN ({marks})", chunk,
+        blobs = {int(sid): (same, pw, nz, rc) for sid, same, pw, nz, rc in conn.execute(
+            f"SELECT sweep_id, freqs_hz = ?, power_dbfs, noise_dbfs, received FROM channel_vectors"
+            f" WHERE sweep_id IN ({marks})", [axis, *chunk],
         )}
         if len(blobs) != len(chunk):
             return read_channel_matrix(conn, ids)  # a sweep without its columnar copy
-        axis = axis if axis is not None else blobs[chunk[0]][0]
-        if any(b[0] != axis for b in blobs.values()):
+        if not all(b[0] for b in blobs.values()):
             return read_channel_matrix(conn, ids)  # mixed frequency axes
         ordered = [blobs[i] for i in chunk]
         for k, acc in enumerate(joined, start=1):

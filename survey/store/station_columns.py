@@ -17,6 +17,7 @@ from __future__ import annotations
 
 import sqlite3
 from dataclasses import dataclass
+from operator import itemgetter
 from typing import Iterable, Sequence
 
 import numpy as np
@@ -210,7 +211,7 @@ def read_station_columns(conn: sqlite3.Connection, sweep_ids: Sequence[int], det
             vocab_of_sweep.append(vocabularies.setdefault(kinds, len(vocabularies)))
             offset += n
         for k, acc in enumerate(joined):
-            acc += b"".join(p[k] for p in pieces)
+            acc += b"".join(map(itemgetter(k), pieces))
         del vectors, pieces, rows_of
     column = {name: np.frombuffer(acc, dtype) for acc, (_, name, dtype) in zip(joined, fields)}
     if not detail:
