@@ -55,7 +55,8 @@ class StationMatrix:
     Station identity from RDS (IEC 62106), where decoded: ``names`` holds one display name per
     station (the PS name with its PI, or a user-supplied name; None when unknown), and
     ``rds_blocks`` / ``rds_block_errors`` the ``(n_sweeps, n_stations)`` counts of RDS block
-    slots received and failed (0 where nothing was decoded). ``identities`` holds each
+    slots received and failed (0 where nothing was decoded; read-only zeros taking no memory when
+    the sweeps hold no RDS counts at all). ``identities`` holds each
     station's RDS merged over all the sweeps of the matrix (:func:`survey.rds.merge_rds`).
     Empty when the census holds no identity data.
     """
@@ -103,10 +104,19 @@ class StationMatrix:
             detected=self.detected[take],
             stereo=self.stereo[take],
             names=self.names,
-            rds_blocks=None if self.rds_blocks is None else self.rds_blocks[take],
-            rds_block_errors=None if self.rds_block_errors is None else self.rds_block_errors[take],
+            rds_blocks=_take_rows(self.rds_blocks, take),
+            rds_block_errors=_take_rows(self.rds_block_errors, take),
             identities=self.identities,
         )
+
+
+def _take_rows(counts: np.ndarray | None, take: np.ndarray) -> np.ndarray | None:
+    """Rows ``take`` of a count matrix; a read-only matrix of one value (no RDS counts) stays one."""
+    if counts is None:
+        return None
+    if counts.size and not any(counts.strides):
+        return np.broadcast_to(counts[(0,) * counts.ndim], (take.size,) + counts.shape[1:])
+    return counts[take]
 
 
 def display_name(identity: RdsIdentity | None, user_name: str | None = None) -> str | None:
@@ -270,8 +280,10 @@ def census_matrix(conn: sqlite3.Connection, sweeps: Sequence[SweepRow], kinds=("
     detected = np.zeros(shape, dtype=bool)
     stereo = np.zeros(shape, dtype=bool)
     heard = np.zeros(shape, dtype=bool)
-    blocks = np.zeros(shape, dtype=np.int64)
-    block_errors = np.zeros(shape, dtype=np.int64)
+    counted = bool(m) and bool(cols.rds_blocks.any() or cols.rds_block_errors.any())
+    # without RDS block counts in these sweeps, read-only zeros (no memory, nothing to copy per row)
+    blocks = np.zeros(shape, dtype=np.int64) if counted else np.broadcast_to(np.int64(0), shape)
+    block_errors = np.zeros(shape, dtype=np.int64) if counted else np.broadcast_to(np.int64(0), shape)
     if m:
         # every emission at once: where a sweep holds two emissions of one station, the one
         # with the higher C/N is the station's reading (NaN C/N last; equal C/N: the first member)
@@ -282,7 +294,7 @@ def census_matrix(conn: sqlite3.Connection, sweeps: Sequence[SweepRow], kinds=("
         cell += clusters.station                      # flat index into the (n, m) matrices
         if not every:
             cell = np.where(grouped, cell, -1)
-        if cols.rds_blocks.any() or cols.rds_block_errors.any():
+        if counted:
             take = grouped if not every else slice(None)
             blocks += np.bincount(cell[take], cols.rds_blocks[take], minlength=n * m).reshape(shape).astype(np.int64)
             block_errors += np.bincount(cell[take], cols.rds_block_errors[take],

@@ -256,10 +256,17 @@ class Survey:
 
     def _rows_from_read(self, ids: tuple[int, ...]) -> ChannelMatrix | None:
         """The rows ``ids`` of a matrix read earlier, or None when no earlier read holds them all."""
+        wanted = np.asarray(ids, np.int64)
         for whole in self._read:
-            where = {int(s): i for i, s in enumerate(whole.sweep_ids.tolist())}
-            if all(i in where for i in ids):
-                take = np.asarray([where[i] for i in ids], np.int64)
+            have = whole.sweep_ids
+            if not have.size:
+                if wanted.size:
+                    continue
+                return whole
+            order = np.argsort(have, kind="stable")
+            pos = np.minimum(np.searchsorted(have, wanted, sorter=order), have.size - 1)
+            take = order[pos]
+            if np.array_equal(have[take], wanted):  # every sweep asked for is a row of this read
                 return replace(whole, sweep_ids=whole.sweep_ids[take],
                                started_utc=tuple(whole.started_utc[i] for i in take.tolist()),
                                power_dbfs=whole.power_dbfs[take], noise_dbfs=whole.noise_dbfs[take],
