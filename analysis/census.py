@@ -52,6 +52,9 @@ class StationMatrix:
     (may be below the detection margin, NaN where P <= N); ``detected`` says whether C/N reached
     the detection margin. ``sweep_ids`` and ``started_utc`` follow the sweeps asked for.
 
+    A matrix made without ``detail`` (:func:`census_matrix`) holds read-only stand-ins for
+    ``ci_db`` (NaN) and ``stereo`` (False), which no comparison reads.
+
     Station identity from RDS (IEC 62106), where decoded: ``names`` holds one display name per
     station (the PS name with its PI, or a user-supplied name; None when unknown), and
     ``rds_blocks`` / ``rds_block_errors`` the ``(n_sweeps, n_stations)`` counts of RDS block
@@ -100,9 +103,9 @@ class StationMatrix:
             power_dbfs=self.power_dbfs[take],
             noise_dbfs=self.noise_dbfs[take],
             cn_db=self.cn_db[take],
-            ci_db=self.ci_db[take],
+            ci_db=_take_rows(self.ci_db, take),
             detected=self.detected[take],
-            stereo=self.stereo[take],
+            stereo=_take_rows(self.stereo, take),
             names=self.names,
             rds_blocks=_take_rows(self.rds_blocks, take),
             rds_block_errors=_take_rows(self.rds_block_errors, take),
@@ -111,7 +114,7 @@ class StationMatrix:
 
 
 def _take_rows(counts: np.ndarray | None, take: np.ndarray) -> np.ndarray | None:
-    """Rows ``take`` of a count matrix; a read-only matrix of one value (no RDS counts) stays one."""
+    """Rows ``take`` of a matrix; a read-only matrix of one value (a stand-in) stays one."""
     if counts is None:
         return None
     if counts.size and not any(counts.strides):
@@ -229,7 +232,7 @@ def cluster_stations(cols: StationColumns) -> Clusters:
 
 def census_matrix(conn: sqlite3.Connection, sweeps: Sequence[SweepRow], kinds=("fm",),
                   names: Mapping[int, str] | None = None,
-                  channels: ChannelMatrix | None = None) -> StationMatrix:
+                  channels: ChannelMatrix | None = None, detail: bool = True) -> StationMatrix:
     """Stations heard in any of ``sweeps``, one column each, one row per sweep (order kept).
 
     Emissions (the ``stations`` table) of all the given sweeps are grouped into stations: an
@@ -257,6 +260,9 @@ def census_matrix(conn: sqlite3.Connection, sweeps: Sequence[SweepRow], kinds=("
     channels : ChannelMatrix, optional
         The raster channels of the same ``sweeps`` (rows in the same order) when already read
         (:func:`survey.store.read_sweep_matrix`); read here otherwise.
+    detail : bool
+        False leaves out C/I and the stereo flag (``ci_db`` NaN, ``stereo`` False, read-only and
+        taking no memory): what the comparisons read does not include them.
 
     Identity: each station's RDS results (one per stored emission) are merged over all the
     given sweeps (:func:`survey.rds.merge_rds`: PI by vote among confirmed codes, PS segments
@@ -266,7 +272,7 @@ def census_matrix(conn: sqlite3.Connection, sweeps: Sequence[SweepRow], kinds=("
     """
     ids = [int(s.id) for s in sweeps]
     margin = {int(s.id): float(s.received_margin_db) for s in sweeps}
-    cols = read_station_columns(conn, ids, detail=False)
+    cols = read_station_columns(conn, ids, detail=False, leave_out=() if detail else ("ci_db",))
     wanted = cols.is_kind(*kinds)
     if not wanted.all():
         cols = cols.take(wanted)
@@ -276,9 +282,9 @@ def census_matrix(conn: sqlite3.Connection, sweeps: Sequence[SweepRow], kinds=("
     power = np.full(shape, np.nan)
     noise = np.full(shape, np.nan)
     cn = np.full(shape, np.nan)
-    ci = np.full(shape, np.nan)
+    ci = np.full(shape, np.nan) if detail else np.broadcast_to(np.float64(np.nan), shape)
     detected = np.zeros(shape, dtype=bool)
-    stereo = np.zeros(shape, dtype=bool)
+    stereo = np.zeros(shape, dtype=bool) if detail else np.broadcast_to(False, shape)
     heard = np.zeros(shape, dtype=bool)
     counted = bool(m) and bool(cols.rds_blocks.any() or cols.rds_block_errors.any())
     # without RDS block counts in these sweeps, read-only zeros (no memory, nothing to copy per row)
@@ -309,8 +315,9 @@ def census_matrix(conn: sqlite3.Connection, sweeps: Sequence[SweepRow], kinds=("
         heard.ravel()[flat] = True
         power.ravel()[flat] = pick(cols.power_dbfs)
         noise.ravel()[flat] = pick(cols.noise_dbfs)
-        ci.ravel()[flat] = pick(cols.ci_db)
-        stereo.ravel()[flat] = pick(cols.stereo)
+        if detail:
+            ci.ravel()[flat] = pick(cols.ci_db)
+            stereo.ravel()[flat] = pick(cols.stereo)
         chosen_cn = pick(cols.cn_db)
         cn.ravel()[flat] = chosen_cn
         margins = np.asarray([margin[s] for s in ids], dtype=np.float64)[flat // m]

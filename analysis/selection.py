@@ -58,11 +58,13 @@ def _matrix_for(survey: "Survey", sweeps: Sequence[SweepRow], kinds: tuple[str, 
     (:func:`analysis.census.census_matrix`, one column per transmitter). Raster channels
     (:meth:`Survey.channel_matrix`) stay the detail behind the ``--channels`` option. Both records
     share the fields the analyses read (``sweep_ids``, ``started_utc``, ``freqs_hz``,
-    ``power_dbfs``, ``noise_dbfs``, ``cn_db``, ``detected`` and ``rows(...)``).
+    ``power_dbfs``, ``noise_dbfs``, ``cn_db``, ``detected`` and ``rows(...)``). C/I and the stereo
+    flag are not among them and are left out (``detail=False``).
     """
     survey.require_census()
     # the raster channels fill the sweeps that did not find a station; read once, shared
-    return census_matrix(survey.connection, sweeps, kinds=kinds, channels=survey.channel_matrix(sweeps))
+    return census_matrix(survey.connection, sweeps, kinds=kinds, channels=survey.channel_matrix(sweeps),
+                         detail=False)
 
 
 def _take_rows(matrix, start: int, stop: int):
