@@ -169,13 +169,14 @@ def spectral_lines(survey: Survey, base: str, test: str, base_antenna: ChannelSu
     n_sweeps = 0
     inputs = []
     base_spectra: dict[str, list] = {}
+    kept = survey.sweeps_with_spectra()  # only these sweeps have spectra to look at
     for inp in _INPUTS:
         t_rows = survey.find_sweeps(test, inp)
-        t_spec = [(h, sw) for sw in t_rows for h in survey.hop_spectra(sw.id)]
+        t_spec = [(h, sw) for sw in t_rows if sw.id in kept for h in survey.hop_spectra(sw.id)]
         if not t_spec:
             continue
         b_rows = survey.find_sweeps(base, inp)
-        base_spectra[inp] = [(h, sw) for sw in b_rows for h in survey.hop_spectra(sw.id)]
+        base_spectra[inp] = [(h, sw) for sw in b_rows if sw.id in kept for h in survey.hop_spectra(sw.id)]
         inputs.append(inp)
         n_sweeps += len({sw.id for _, sw in t_spec})
         for h, sw in t_spec:
