@@ -207,6 +207,10 @@ def _strongest_per_cell(cell: np.ndarray, cn_db: np.ndarray, freq_hz: np.ndarray
     A cell (sweep, station) almost always holds one emission; only the cells holding several are
     sorted.
     """
+    if cell.size and cell[0] >= 0 and bool(np.all(cell[1:] > cell[:-1])):
+        # the usual layout (sweeps in order, each sweep's emissions by frequency, one per station):
+        # strictly increasing cells, so every emission is the only one of its cell
+        return np.arange(cell.size)
     valid = cell >= 0
     every = bool(valid.all())
     count = np.bincount(cell if every else cell[valid], minlength=n_cells)
