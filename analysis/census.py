@@ -52,10 +52,14 @@ class StationMatrix:
     (may be below the detection margin, NaN where P <= N); ``detected`` says whether C/N reached
     the detection margin. ``sweep_ids`` and ``started_utc`` follow the sweeps asked for.
 
+    A matrix made without ``detail`` (:func:`census_matrix`) holds read-only stand-ins for
+    ``ci_db`` (NaN) and ``stereo`` (False), which no comparison reads.
+
     Station identity from RDS (IEC 62106), where decoded: ``names`` holds one display name per
     station (the PS name with its PI, or a user-supplied name; None when unknown), and
     ``rds_blocks`` / ``rds_block_errors`` the ``(n_sweeps, n_stations)`` counts of RDS block
-    slots received and failed (0 where nothing was decoded). ``identities`` holds each
+    slots received and failed (0 where nothing was decoded; read-only zeros taking no memory when
+    the sweeps hold no RDS counts at all). ``identities`` holds each
     station's RDS merged over all the sweeps of the matrix (:func:`survey.rds.merge_rds`).
     Empty when the census holds no identity data.
     """
@@ -99,14 +103,23 @@ class StationMatrix:
             power_dbfs=self.power_dbfs[take],
             noise_dbfs=self.noise_dbfs[take],
             cn_db=self.cn_db[take],
-            ci_db=self.ci_db[take],
+            ci_db=_take_rows(self.ci_db, take),
             detected=self.detected[take],
-            stereo=self.stereo[take],
+            stereo=_take_rows(self.stereo, take),
             names=self.names,
-            rds_blocks=None if self.rds_blocks is None else self.rds_blocks[take],
-            rds_block_errors=None if self.rds_block_errors is None else self.rds_block_errors[take],
+            rds_blocks=_take_rows(self.rds_blocks, take),
+            rds_block_errors=_take_rows(self.rds_block_errors, take),
             identities=self.identities,
         )
+
+
+def _take_rows(counts: np.ndarray | None, take: np.ndarray) -> np.ndarray | None:
+    """Rows ``take`` of a matrix; a read-only matrix of one value (a stand-in) stays one."""
+    if counts is None:
+        return None
+    if counts.size and not any(counts.strides):
+        return np.broadcast_to(counts[(0,) * counts.ndim], (take.size,) + counts.shape[1:])
+    return counts[take]
 
 
 def display_name(identity: RdsIdentity | None, user_name: str | None = None) -> str | None:
@@ -194,6 +207,10 @@ def _strongest_per_cell(cell: np.ndarray, cn_db: np.ndarray, freq_hz: np.ndarray
     A cell (sweep, station) almost always holds one emission; only the cells holding several are
     sorted.
     """
+    if cell.size and cell[0] >= 0 and bool(np.all(cell[1:] > cell[:-1])):
+        # the usual layout (sweeps in order, each sweep's emissions by frequency, one per station):
+        # strictly increasing cells, so every emission is the only one of its cell
+        return np.arange(cell.size)
     valid = cell >= 0
     every = bool(valid.all())
     count = np.bincount(cell if every else cell[valid], minlength=n_cells)
@@ -219,7 +236,7 @@ def cluster_stations(cols: StationColumns) -> Clusters:
 
 def census_matrix(conn: sqlite3.Connection, sweeps: Sequence[SweepRow], kinds=("fm",),
                   names: Mapping[int, str] | None = None,
-                  channels: ChannelMatrix | None = None) -> StationMatrix:
+                  channels: ChannelMatrix | None = None, detail: bool = True) -> StationMatrix:
     """Stations heard in any of ``sweeps``, one column each, one row per sweep (order kept).
 
     Emissions (the ``stations`` table) of all the given sweeps are grouped into stations: an
@@ -247,6 +264,9 @@ def census_matrix(conn: sqlite3.Connection, sweeps: Sequence[SweepRow], kinds=("
     channels : ChannelMatrix, optional
         The raster channels of the same ``sweeps`` (rows in the same order) when already read
         (:func:`survey.store.read_sweep_matrix`); read here otherwise.
+    detail : bool
+        False leaves out C/I and the stereo flag (``ci_db`` NaN, ``stereo`` False, read-only and
+        taking no memory): what the comparisons read does not include them.
 
     Identity: each station's RDS results (one per stored emission) are merged over all the
     given sweeps (:func:`survey.rds.merge_rds`: PI by vote among confirmed codes, PS segments
@@ -256,7 +276,7 @@ def census_matrix(conn: sqlite3.Connection, sweeps: Sequence[SweepRow], kinds=("
     """
     ids = [int(s.id) for s in sweeps]
     margin = {int(s.id): float(s.received_margin_db) for s in sweeps}
-    cols = read_station_columns(conn, ids, detail=False)
+    cols = read_station_columns(conn, ids, detail=False, leave_out=() if detail else ("ci_db",))
     wanted = cols.is_kind(*kinds)
     if not wanted.all():
         cols = cols.take(wanted)
@@ -266,12 +286,14 @@ def census_matrix(conn: sqlite3.Connection, sweeps: Sequence[SweepRow], kinds=("
     power = np.full(shape, np.nan)
     noise = np.full(shape, np.nan)
     cn = np.full(shape, np.nan)
-    ci = np.full(shape, np.nan)
+    ci = np.full(shape, np.nan) if detail else np.broadcast_to(np.float64(np.nan), shape)
     detected = np.zeros(shape, dtype=bool)
-    stereo = np.zeros(shape, dtype=bool)
+    stereo = np.zeros(shape, dtype=bool) if detail else np.broadcast_to(False, shape)
     heard = np.zeros(shape, dtype=bool)
-    blocks = np.zeros(shape, dtype=np.int64)
-    block_errors = np.zeros(shape, dtype=np.int64)
+    counted = bool(m) and bool(cols.rds_blocks.any() or cols.rds_block_errors.any())
+    # without RDS block counts in these sweeps, read-only zeros (no memory, nothing to copy per row)
+    blocks = np.zeros(shape, dtype=np.int64) if counted else np.broadcast_to(np.int64(0), shape)
+    block_errors = np.zeros(shape, dtype=np.int64) if counted else np.broadcast_to(np.int64(0), shape)
     if m:
         # every emission at once: where a sweep holds two emissions of one station, the one
         # with the higher C/N is the station's reading (NaN C/N last; equal C/N: the first member)
@@ -282,7 +304,7 @@ def census_matrix(conn: sqlite3.Connection, sweeps: Sequence[SweepRow], kinds=("
         cell += clusters.station                      # flat index into the (n, m) matrices
         if not every:
             cell = np.where(grouped, cell, -1)
-        if cols.rds_blocks.any() or cols.rds_block_errors.any():
+        if counted:
             take = grouped if not every else slice(None)
             blocks += np.bincount(cell[take], cols.rds_blocks[take], minlength=n * m).reshape(shape).astype(np.int64)
             block_errors += np.bincount(cell[take], cols.rds_block_errors[take],
@@ -290,12 +312,17 @@ def census_matrix(conn: sqlite3.Connection, sweeps: Sequence[SweepRow], kinds=("
         chosen = _strongest_per_cell(cell, cols.cn_db, cols.freq_hz, n * m)
         flat = cell[chosen]
         del cell
+        # usually every emission is its cell's reading, in order: then the columns are used as they are
+        pick = (lambda column: column) if chosen.size == cols.size and (
+            chosen.size == 0 or (chosen[0] == 0 and chosen[-1] == chosen.size - 1 and
+                                 bool(np.all(np.diff(chosen) == 1)))) else (lambda column: column[chosen])
         heard.ravel()[flat] = True
-        power.ravel()[flat] = cols.power_dbfs[chosen]
-        noise.ravel()[flat] = cols.noise_dbfs[chosen]
-        ci.ravel()[flat] = cols.ci_db[chosen]
-        stereo.ravel()[flat] = cols.stereo[chosen]
-        chosen_cn = cols.cn_db[chosen]
+        power.ravel()[flat] = pick(cols.power_dbfs)
+        noise.ravel()[flat] = pick(cols.noise_dbfs)
+        if detail:
+            ci.ravel()[flat] = pick(cols.ci_db)
+            stereo.ravel()[flat] = pick(cols.stereo)
+        chosen_cn = pick(cols.cn_db)
         cn.ravel()[flat] = chosen_cn
         margins = np.asarray([margin[s] for s in ids], dtype=np.float64)[flat // m]
         detected.ravel()[flat] = np.isfinite(chosen_cn) & (chosen_cn >= margins)

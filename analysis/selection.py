@@ -58,11 +58,13 @@ def _matrix_for(survey: "Survey", sweeps: Sequence[SweepRow], kinds: tuple[str, 
     (:func:`analysis.census.census_matrix`, one column per transmitter). Raster channels
     (:meth:`Survey.channel_matrix`) stay the detail behind the ``--channels`` option. Both records
     share the fields the analyses read (``sweep_ids``, ``started_utc``, ``freqs_hz``,
-    ``power_dbfs``, ``noise_dbfs``, ``cn_db``, ``detected`` and ``rows(...)``).
+    ``power_dbfs``, ``noise_dbfs``, ``cn_db``, ``detected`` and ``rows(...)``). C/I and the stereo
+    flag are not among them and are left out (``detail=False``).
     """
     survey.require_census()
     # the raster channels fill the sweeps that did not find a station; read once, shared
-    return census_matrix(survey.connection, sweeps, kinds=kinds, channels=survey.channel_matrix(sweeps))
+    return census_matrix(survey.connection, sweeps, kinds=kinds, channels=survey.channel_matrix(sweeps),
+                         detail=False)
 
 
 def _take_rows(matrix, start: int, stop: int):
@@ -195,12 +197,32 @@ class Survey:
                     since_utc: str | None = None, until_utc: str | None = None) -> tuple[SweepRow, ...]:
         """Complete sweeps matching the selection (possibly none); times as stored (UTC)."""
         def select() -> tuple[SweepRow, ...]:
-            return tuple(s for s in self.all_sweeps()
-                         if (configuration is None or s.configuration == configuration)
-                         and (input is None or s.input == input)
-                         and (since_utc is None or s.started_utc >= since_utc)
+            groups = self._sweep_groups()
+            picked = [rows for (c, i), rows in groups.items()
+                      if (configuration is None or c == configuration) and (input is None or i == input)]
+            if len(picked) == 1:
+                rows = picked[0]
+            else:  # several labels: back in time order (their positions in all_sweeps)
+                position = self._sweep_positions()
+                rows = sorted((s for g in picked for s in g), key=lambda s: position[id(s)])
+            if since_utc is None and until_utc is None:
+                return tuple(rows)
+            return tuple(s for s in rows if (since_utc is None or s.started_utc >= since_utc)
                          and (until_utc is None or s.started_utc < until_utc))
         return self.memo(("sweeps", configuration, input, since_utc, until_utc), select)
+
+    def _sweep_groups(self) -> dict[tuple[str, str], list[SweepRow]]:
+        """Every complete sweep grouped by (configuration, input), time order kept (one pass)."""
+        def group() -> dict[tuple[str, str], list[SweepRow]]:
+            out: dict[tuple[str, str], list[SweepRow]] = {}
+            for s in self.all_sweeps():
+                out.setdefault((s.configuration, s.input), []).append(s)
+            return out
+        return self.memo(("sweep_groups",), group)
+
+    def _sweep_positions(self) -> dict[int, int]:
+        """Position of each record of :meth:`all_sweeps` (by object identity)."""
+        return self.memo(("sweep_positions",), lambda: {id(s): k for k, s in enumerate(self.all_sweeps())})
 
     def channel_matrix(self, sweeps: Sequence[SweepRow]) -> ChannelMatrix:
         """Raster-channel readings of ``sweeps`` (rows in the order given), read once.
@@ -219,16 +241,34 @@ class Survey:
         self.channel_matrix(every)
         return tuple(self.channel_matrix(g) for g in groups)
 
+    def channel_rows(self, *groups: Sequence[SweepRow]) -> tuple[ChannelMatrix, tuple[np.ndarray, ...]]:
+        """One raster-channel matrix holding every sweep of ``groups`` (a read shared with
+        :meth:`channel_matrices` and the census) and, per group, the row of each of its sweeps in
+        it: for analyses that need a few columns of each group, without copying the groups' rows."""
+        every = sorted({int(s.id): s for g in groups for s in g}.values(), key=lambda s: int(s.id))
+        whole = self.channel_matrix(every)
+        ids = whole.sweep_ids
+        order = np.argsort(ids, kind="stable")
+        return whole, tuple(order[np.searchsorted(ids, np.asarray([int(s.id) for s in g], np.int64), sorter=order)]
+                            for g in groups)
+
     def _remember(self, matrix: ChannelMatrix) -> ChannelMatrix:
         self._read.append(matrix)
         return matrix
 
     def _rows_from_read(self, ids: tuple[int, ...]) -> ChannelMatrix | None:
         """The rows ``ids`` of a matrix read earlier, or None when no earlier read holds them all."""
+        wanted = np.asarray(ids, np.int64)
         for whole in self._read:
-            where = {int(s): i for i, s in enumerate(whole.sweep_ids.tolist())}
-            if all(i in where for i in ids):
-                take = np.asarray([where[i] for i in ids], np.int64)
+            have = whole.sweep_ids
+            if not have.size:
+                if wanted.size:
+                    continue
+                return whole
+            order = np.argsort(have, kind="stable")
+            pos = np.minimum(np.searchsorted(have, wanted, sorter=order), have.size - 1)
+            take = order[pos]
+            if np.array_equal(have[take], wanted):  # every sweep asked for is a row of this read
                 return replace(whole, sweep_ids=whole.sweep_ids[take],
                                started_utc=tuple(whole.started_utc[i] for i in take.tolist()),
                                power_dbfs=whole.power_dbfs[take], noise_dbfs=whole.noise_dbfs[take],

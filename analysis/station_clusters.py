@@ -85,7 +85,7 @@ def cluster_columns(cols: StationColumns, tolerance_hz: Mapping[str, float]) -> 
             continue
         every = bool(mask.all())
         carriers = cols.freq_hz if every else cols.freq_hz[mask]
-        ordered = np.sort(carriers)
+        ordered = np.sort(carriers, kind="stable")  # each sweep's carriers come sorted: runs merge fast
         starts = np.r_[0, np.flatnonzero(np.diff(ordered) > tolerance) + 1]
         count = np.diff(np.r_[starts, ordered.size])
         lo, hi = ordered[starts + (count - 1) // 2], ordered[starts + count // 2]

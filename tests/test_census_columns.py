@@ -225,6 +225,30 @@ def test_vectorised_census_equals_the_row_by_row_census(random_db, kinds):
     conn.close()
 
 
+def test_census_without_detail_is_the_census_less_ci_and_stereo(random_db):
+    # what the comparisons read (Survey.item_matrix) leaves out C/I and the stereo flag; every other
+    # field, and rows taken from it, must be those of the full census
+    conn = open_for_reading(random_db)
+    sweeps = list_sweeps(conn)
+    full, lean = census_matrix(conn, sweeps, kinds=("fm", "narrow")), census_matrix(conn, sweeps, ("fm", "narrow"),
+                                                                                    detail=False)
+    some = [int(i) for i in full.sweep_ids[::3][::-1]]
+    for a, b in ((full, lean), (full.rows(some), lean.rows(some))):
+        assert np.isfinite(a.ci_db).any() and a.stereo.any()  # the data hold both, so leaving them out shows
+        assert np.isnan(b.ci_db).all() and not b.stereo.any() and b.ci_db.shape == b.stereo.shape == a.cn_db.shape
+        for name in ("sweep_ids", "freqs_hz", "channel_freqs_hz", "power_dbfs", "noise_dbfs", "cn_db", "detected",
+                     "rds_blocks", "rds_block_errors"):
+            np.testing.assert_array_equal(getattr(b, name), getattr(a, name), err_msg=name)
+        assert (b.started_utc, b.kinds, b.names, b.identities) == (a.started_utc, a.kinds, a.names, a.identities)
+    cols, without = read_station_columns(conn, [s.id for s in sweeps]), read_station_columns(
+        conn, [s.id for s in sweeps], leave_out=("ci_db",))
+    assert np.isfinite(cols.ci_db).any() and np.isnan(without.ci_db).all() and without.ci_db.size == cols.size
+    np.testing.assert_array_equal(without.cn_db, cols.cn_db)
+    with pytest.raises(ValueError, match="cannot leave out power_dbfs"):
+        read_station_columns(conn, [s.id for s in sweeps], leave_out=("power_dbfs",))
+    conn.close()
+
+
 def test_a_schema_2_database_gives_the_same_census_read_only_and_after_migrating(tmp_path):
     path = tmp_path / "v2.db"
     _write(path, _random_sweeps(11))

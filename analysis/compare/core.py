@@ -254,8 +254,12 @@ def compare_matrices(
     min_change_db: float = 0.5,
     confidence: float = 0.95,
     unit: str | None = None,
+    pairs: tuple[np.ndarray, np.ndarray, float] | None = None,
 ) -> Comparison:
     """Compare two per-item matrices already read (see :func:`compare_configurations`).
+
+    ``pairs``: the result of :func:`~analysis.compare.pairing.pair_sweeps` on the two matrices'
+    start times when the caller has it already (computed here otherwise).
 
     ``pairing`` is ``"auto"`` (paired when at least half of the smaller side finds a partner
     in time), ``"paired"`` or ``"unpaired"``. ``unit`` (``"station"`` or ``"channel"``) defaults
@@ -283,7 +287,7 @@ def compare_matrices(
     # a census station was found as an emission at least once: its C/N is a measurement
     ever = (db.any(axis=0) | dt.any(axis=0)) if unit == "channel" else np.ones(freqs.size, bool)
 
-    bi, ti, tol_s = pair_sweeps(utc_to_epoch_s(base.started_utc), utc_to_epoch_s(test.started_utc))
+    bi, ti, tol_s = pairs if pairs is not None else sweep_pairs(base, test)
     smaller = min(cb.shape[0], ct.shape[0])
     paired = pairing == "paired" or (pairing == "auto" and bi.size >= max(1, 0.5 * smaller))
     if pairing == "paired" and bi.size == 0:
@@ -350,6 +354,11 @@ def compare_matrices(
         n_pairs=int(bi.size) if paired else 0, unit=unit,
     )
     return replace(result, summary=summarise(result))
+
+
+def sweep_pairs(base, test) -> tuple[np.ndarray, np.ndarray, float]:
+    """:func:`~analysis.compare.pairing.pair_sweeps` on the start times of two matrices' rows."""
+    return pair_sweeps(utc_to_epoch_s(base.started_utc), utc_to_epoch_s(test.started_utc))
 
 
 def _with_identity(items: list[ItemDelta], names: list, bler) -> list[ItemDelta]:
@@ -450,11 +459,12 @@ def compare_configurations(
         else:
             mat_b, mat_t = survey.item_matrices(rows_b, rows_t)
             unit = "station" if hasattr(mat_b, "kinds") else "channel"
+        pairs = sweep_pairs(mat_b, mat_t)  # once: the channels below are the same sweeps in the same order
         result = compare_matrices(mat_b, mat_t, base, test, input=input, pairing=pairing,
-                                  min_change_db=min_change_db, confidence=confidence, unit=unit)
+                                  min_change_db=min_change_db, confidence=confidence, unit=unit, pairs=pairs)
         if unit == "station":
-            rise, empty = broadband_noise_rise(survey.channel_matrix(rows_b), survey.channel_matrix(rows_t),
-                                               result.paired)
+            whole, (at_b, at_t) = survey.channel_rows(rows_b, rows_t)
+            rise, empty = _broadband_noise_rise_rows(whole, at_b, at_t, result.paired, pairs)
             result = replace(result, summary={**result.summary, "broadband_noise_rise_db": rise,
                                               "unoccupied_channels": empty})
     finally:
@@ -471,6 +481,45 @@ def broadband_noise_rise(base, test, paired: bool) -> tuple[float | None, int]:
     unpaired: the difference of the mean noise levels. ``(None, 0)`` when every channel held
     a station.
     """
+    return _broadband_noise_rise(base, test, paired)
+
+
+def _broadband_noise_rise_rows(whole, at_base: np.ndarray, at_test: np.ndarray, paired: bool,
+                               pairs: tuple[np.ndarray, np.ndarray, float]) -> tuple[float | None, int]:
+    """:func:`broadband_noise_rise` of the rows ``at_base`` and ``at_test`` of one channel matrix
+    ``whole`` (one frequency axis), with the comparison's ``pairs`` (rows of those): the same
+    numbers, reading only the rows' detection flags and the empty channels' noise."""
+    if at_base.size == 0 or at_test.size == 0 or whole.freqs_hz.size == 0:
+        return None, 0
+    received = np.asarray(whole.received)
+    empty = ~(received[at_base].any(axis=0) | received[at_test].any(axis=0))
+    if not empty.any():
+        return None, 0
+    cols = np.flatnonzero(empty)
+    noise = np.asarray(whole.noise_dbfs)
+    bi, ti = pairs[0], pairs[1]
+    if paired and bi.size:  # the paired rows only, gathered once
+        nb = noise[np.ix_(at_base[bi], cols)].astype(np.float64)
+        nt = noise[np.ix_(at_test[ti], cols)].astype(np.float64)
+        bi = ti = np.arange(bi.size)
+    else:
+        nb = noise[np.ix_(at_base, cols)].astype(np.float64)
+        nt = noise[np.ix_(at_test, cols)].astype(np.float64)
+    return _median_rise(nb, nt, paired, bi, ti), int(empty.sum())
+
+
+def _median_rise(nb: np.ndarray, nt: np.ndarray, paired: bool, bi: np.ndarray, ti: np.ndarray) -> float | None:
+    """Median over the columns of the mean paired noise difference (unpaired: difference of the means)."""
+    if paired and bi.size:
+        rise = column_mean_sd(nt - nb if bi.size == nb.shape[0] and np.array_equal(bi, ti) and
+                              np.array_equal(bi, np.arange(bi.size)) else nt[ti] - nb[bi])[0]
+    else:
+        rise = column_mean_sd(nt)[0] - column_mean_sd(nb)[0]
+    rise = rise[np.isfinite(rise)]
+    return round(float(np.median(rise)), 4) if rise.size else None
+
+
+def _broadband_noise_rise(base, test, paired: bool) -> tuple[float | None, int]:
     freqs = np.intersect1d(base.freqs_hz, test.freqs_hz)
     if freqs.size == 0 or base.sweep_ids.size == 0 or test.sweep_ids.size == 0:
         return None, 0
@@ -482,10 +531,5 @@ def broadband_noise_rise(base, test, paired: bool) -> tuple[float | None, int]:
     # only the empty channels' noise, in float64 (the rest is never used)
     nb = np.asarray(base.noise_dbfs)[:, cb[empty]].astype(np.float64)
     nt = np.asarray(test.noise_dbfs)[:, ct[empty]].astype(np.float64)
-    bi, ti, _ = pair_sweeps(utc_to_epoch_s(base.started_utc), utc_to_epoch_s(test.started_utc))
-    if paired and bi.size:
-        rise = column_mean_sd(nt[ti] - nb[bi])[0]
-    else:
-        rise = column_mean_sd(nt)[0] - column_mean_sd(nb)[0]
-    rise = rise[np.isfinite(rise)]
-    return (round(float(np.median(rise)), 4) if rise.size else None), int(empty.sum())
+    bi, ti, _ = sweep_pairs(base, test)
+    return _median_rise(nb, nt, paired, bi, ti), int(empty.sum())

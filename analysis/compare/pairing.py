@@ -51,15 +51,16 @@ def pair_sweeps(
     keep = gap < tolerance_s
     cb, ct, gap, side = cb[keep], ct[keep], gap[keep], side[keep]
     best: tuple[list[int], list[int]] = ([], [])
+    cb_list, ct_list = cb.tolist(), ct.tolist()
     for prefer_after in (True, False):  # equal gaps (strict alternation): try both tie orders
         order_k = np.lexsort((side if not prefer_after else 1 - side, gap))
-        used_b = np.zeros(base_s.size, bool)
-        used_t = np.zeros(test_s.size, bool)
+        used_b = bytearray(base_s.size)  # plain Python flags: the loop below is per candidate
+        used_t = bytearray(test_s.size)
         out_b, out_t = [], []
         for k in order_k.tolist():
-            i, j = int(cb[k]), int(ct[k])
+            i, j = cb_list[k], ct_list[k]
             if not used_b[i] and not used_t[j]:
-                used_b[i] = used_t[j] = True
+                used_b[i] = used_t[j] = 1
                 out_b.append(i)
                 out_t.append(j)
         if len(out_b) > len(best[0]):

@@ -8,8 +8,23 @@ from analysis.errors import MismatchError
 from survey.store import SweepRow
 
 
-def _values(rows: list[SweepRow], name: str) -> list:
-    return sorted(set(map(attrgetter(name), rows)), key=lambda v: (v is None, v))
+#: The settings compared, read from every sweep in one pass (a week holds tens of thousands).
+_CHECKED = ("band", "channel_bw_hz", "gain_db", "sample_rate_hz", "fft_size", "dwell_s", "received_margin_db")
+
+
+def _distinct(rows: list[SweepRow]) -> set[tuple]:
+    """The distinct combinations of the :data:`_CHECKED` settings among ``rows``."""
+    return set(map(attrgetter(*_CHECKED), rows))
+
+
+def _values(rows: list[SweepRow] | set[tuple], name: str) -> list:
+    """Sorted distinct values of setting ``name`` (None last) of sweeps, or of their :func:`_distinct`."""
+    if isinstance(rows, set):
+        k = _CHECKED.index(name)
+        found = {combo[k] for combo in rows}
+    else:
+        found = set(map(attrgetter(name), rows))
+    return sorted(found, key=lambda v: (v is None, v))
 
 
 def _fmt(values: list, unit: str = "") -> str:
@@ -27,7 +42,8 @@ def settings_warnings(rows_b: list[SweepRow], rows_t: list[SweepRow], base: str,
     Raises :class:`MismatchError` when the sweeps differ in band plan or channel bandwidth
     (channel powers then measure different things).
     """
-    everything = list(rows_b) + list(rows_t)
+    seen_b, seen_t = _distinct(rows_b), _distinct(rows_t)
+    everything = seen_b | seen_t
     for name, what, unit, remedy in (
         ("band", "band plan", "", "measure both with the same --band, or select sweeps of one band plan"
          " with --since/--until"),
@@ -36,8 +52,8 @@ def settings_warnings(rows_b: list[SweepRow], rows_t: list[SweepRow], base: str,
     ):
         if len(_values(everything, name)) > 1:
             raise MismatchError(
-                f"cannot compare: {what} differs ('{base}': {_fmt(_values(rows_b, name), unit)}; "
-                f"'{test}': {_fmt(_values(rows_t, name), unit)}); {remedy}"
+                f"cannot compare: {what} differs ('{base}': {_fmt(_values(seen_b, name), unit)}; "
+                f"'{test}': {_fmt(_values(seen_t, name), unit)}); {remedy}"
             )
     notes = []
     for name, what, unit, effect in (
@@ -49,7 +65,7 @@ def settings_warnings(rows_b: list[SweepRow], rows_t: list[SweepRow], base: str,
         ("dwell_s", "dwell", " s", "measurement scatter differs between the two"),
         ("received_margin_db", "detection margin", " dB", "'received' means different things for the two"),
     ):
-        vb, vt = _values(rows_b, name), _values(rows_t, name)
+        vb, vt = _values(seen_b, name), _values(seen_t, name)
         if vb != vt or len(vb) > 1:
             notes.append(f"{what} differs: '{base}' {_fmt(vb, unit)}, '{test}' {_fmt(vt, unit)}; {effect}")
     return notes

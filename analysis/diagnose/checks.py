@@ -33,7 +33,6 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
-import scipy.special
 
 from analysis.findings import Finding
 from analysis.diagnose.data import ChannelSummary, GainModel, raster_step_hz
@@ -67,6 +66,7 @@ def _db(x) -> np.ndarray:
 # ------------------------------------------------------------------------------------ clipping
 def gaussian_rail_sigma(clip_fraction: float) -> float:
     """Rail standard deviation (full scale) that clips ``clip_fraction`` of samples (Gaussian model)."""
+    import scipy.special
     p = min(max(float(clip_fraction), 1e-12), 0.999)
     return RAIL_FS / (math.sqrt(2.0) * float(scipy.special.erfcinv(p)))
 

@@ -93,7 +93,13 @@ def _mean_lin(values_db: np.ndarray) -> np.ndarray:
 
 
 def summarise_channels(survey: Survey, configuration: str, input: str) -> ChannelSummary | None:
-    """Average the complete sweeps of ``configuration`` with ``input``; None when there are none."""
+    """Average the complete sweeps of ``configuration`` with ``input``; None when there are none.
+    Computed once per survey (the checks share it)."""
+    return survey.memo(("channel_summary", configuration, input),
+                       lambda: _summarise_channels(survey, configuration, input))
+
+
+def _summarise_channels(survey: Survey, configuration: str, input: str) -> ChannelSummary | None:
     rows = survey.find_sweeps(configuration, input)
     if not rows:
         return None

@@ -24,7 +24,6 @@ import numpy as np
 
 from analysis.findings import Finding
 from analysis.diagnose.data import ChannelSummary, raster_step_hz
-from survey import dsp
 from analysis.selection import Survey
 from survey.store import HopSpectrum
 from survey.units import db_to_ratio, ratio_to_db
@@ -80,6 +79,7 @@ class SpectralSearch:
 
 
 def _hop_floor(hop: dict, sweep) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    from survey import dsp  # the engine's estimator, imported only when spectra were kept
     f = np.asarray(hop.freqs_hz, dtype=np.float64)
     off = f - hop.center_hz
     lin = np.asarray(db_to_ratio(hop.psd_dbfs_hz))
@@ -169,13 +169,14 @@ def spectral_lines(survey: Survey, base: str, test: str, base_antenna: ChannelSu
     n_sweeps = 0
     inputs = []
     base_spectra: dict[str, list] = {}
+    kept = survey.sweeps_with_spectra()  # only these sweeps have spectra to look at
     for inp in _INPUTS:
         t_rows = survey.find_sweeps(test, inp)
-        t_spec = [(h, sw) for sw in t_rows for h in survey.hop_spectra(sw.id)]
+        t_spec = [(h, sw) for sw in t_rows if sw.id in kept for h in survey.hop_spectra(sw.id)]
         if not t_spec:
             continue
         b_rows = survey.find_sweeps(base, inp)
-        base_spectra[inp] = [(h, sw) for sw in b_rows for h in survey.hop_spectra(sw.id)]
+        base_spectra[inp] = [(h, sw) for sw in b_rows if sw.id in kept for h in survey.hop_spectra(sw.id)]
         inputs.append(inp)
         n_sweeps += len({sw.id for _, sw in t_spec})
         for h, sw in t_spec:

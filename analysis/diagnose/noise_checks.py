@@ -32,7 +32,6 @@ Then, with ``r = beta / N_bt``, ``Ts = r Tamb + Tr (r - 1)`` (exact) or ``Ts >= 
 from __future__ import annotations
 
 import numpy as np
-import scipy.optimize
 
 from analysis.findings import Finding
 from analysis.diagnose.data import ChannelSummary, GainModel, summarise_channels
@@ -73,6 +72,7 @@ def fit_unshaped_floor(gain_lin: np.ndarray, base_noise: np.ndarray, test_noise:
     yw = y * w
 
     def solve(rows: np.ndarray) -> np.ndarray:
+        import scipy.optimize  # imported when the fit runs
         x, _ = scipy.optimize.nnls(a_mat[rows], yw[rows])
         return x
 

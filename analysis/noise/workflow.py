@@ -26,7 +26,6 @@ from typing import Callable
 
 import numpy as np
 from numpy.typing import ArrayLike
-from scipy.interpolate import PchipInterpolator
 
 from analysis.errors import BadParameterError, MissingInputError
 import analysis.noise.arithmetic as nz
@@ -287,6 +286,7 @@ def analyse_noise(
             st_f = freqs[good].astype(float)
             inside = (freqs >= st_f[0]) & (freqs <= st_f[-1])
             if np.count_nonzero(good) >= 4:  # smooth passband: shape-preserving cubic in dB
+                from scipy.interpolate import PchipInterpolator  # imported only here
                 g_i = PchipInterpolator(st_f, gain_stations[good], extrapolate=False)(freqs.astype(float))
             else:
                 g_i = np.interp(freqs, st_f, gain_stations[good])

@@ -326,10 +326,15 @@ def _census_station_signals(survey: Survey, test_rows, base_rows):
     except NoDataError:
         return None
     m_t, m_b = survey.item_matrices(test_rows, base_rows)
-    power = np.concatenate([m_t.power_dbfs, m_b.power_dbfs]).astype(np.float64)
-    noise = np.concatenate([m_t.noise_dbfs, m_b.noise_dbfs]).astype(np.float64)
+
+    def signal(m) -> np.ndarray:
+        power = np.asarray(m.power_dbfs, np.float64)
+        noise = np.asarray(m.noise_dbfs, np.float64)
+        return np.where(m.detected, np.power(10.0, power / 10.0) - np.power(10.0, noise / 10.0), np.nan)
+
+    # element by element, so each side on its own then joined is the same as joined first
+    sig = np.concatenate([signal(m_t), signal(m_b)])
     detected = np.concatenate([m_t.detected, m_b.detected])
-    sig = np.where(detected, np.power(10.0, power / 10.0) - np.power(10.0, noise / 10.0), np.nan)
     return np.asarray(m_t.freqs_hz, np.float64), sig, detected
 
 
@@ -372,9 +377,10 @@ def _gain_points(freqs_hz: np.ndarray, sig: np.ndarray, nt: int, rec_t: np.ndarr
     if both.sum() < MIN_POINTS:
         return None, stations, used
     gains, sigmas = [], []
-    for j in np.nonzero(both)[0]:
-        a = sig[:nt, j][np.isfinite(sig[:nt, j]) & (sig[:nt, j] > 0)]
-        c = sig[nt:, j][np.isfinite(sig[nt:, j]) & (sig[nt:, j] > 0)]
+    by_station = np.ascontiguousarray(sig[:, both].T)  # one row per station: contiguous slices below
+    for row in by_station:
+        a = row[:nt][np.isfinite(row[:nt]) & (row[:nt] > 0)]
+        c = row[nt:][np.isfinite(row[nt:]) & (row[nt:] > 0)]
         if a.size == 0 or c.size == 0:
             gains.append(np.nan); sigmas.append(np.nan)
             continue

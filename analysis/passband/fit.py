@@ -40,7 +40,6 @@ from dataclasses import asdict, dataclass, field
 from typing import Sequence
 
 import numpy as np
-from scipy.optimize import brentq, least_squares, minimize_scalar
 
 from analysis.errors import BadParameterError, FitError
 
@@ -120,6 +119,7 @@ def curve_features(stages: Sequence[TunedStage], gain_db: float = 0.0) -> CurveF
     bounded scalar minimisation, edges with Brent's method between grid points. The edges bound
     the contiguous region around the peak above ``peak - level``.
     """
+    from scipy.optimize import brentq, minimize_scalar  # imported when a fit runs
     if not stages:
         raise BadParameterError("a passband needs at least one tuned circuit; give one or more stages")
     f0s = np.array([s.f0_hz for s in stages])
@@ -335,6 +335,8 @@ def _fit_one(shape: str, n: int, f: np.ndarray, g: np.ndarray, w: np.ndarray, fr
     def jac(p):
         return _model_and_jac(p, f, shape, n, fref, offset)[1] * w[:, None]
 
+    from scipy.optimize import least_squares  # imported when a fit runs
+
     starts = _starts(shape, n, f, g, fref, rng, None if sync_best is None else sync_best[:3])
     if offset:
         starts = [np.append(p0, np.log(r0)) for p0 in starts for r0 in (1e-3, 0.1)]
@@ -358,6 +360,13 @@ def _fit_one(shape: str, n: int, f: np.ndarray, g: np.ndarray, w: np.ndarray, fr
     return best_p, best_cost
 
 
+#: Fits already made in this process, by their exact inputs (:func:`fit_passband` is pure and
+#: deterministic for a given seed): the report, the passband check and the diagnosis fit the
+#: same gain curve, which is then fitted once. A few entries, oldest dropped first.
+_FITS: dict[tuple, PassbandFit] = {}
+_FITS_KEPT = 16
+
+
 def fit_passband(
     freqs_hz: Sequence[float],
     gain_db: Sequence[float],
@@ -371,7 +380,8 @@ def fit_passband(
 ) -> PassbandFit:
     """Fit cascaded tuned circuits (n = 1..``max_circuits``) to a gain curve; choose n by BIC.
 
-    Pure and cheap enough for a live tuning display (milliseconds for tens of points).
+    Pure and cheap enough for a live tuning display (milliseconds for tens of points). The same
+    inputs (bit for bit) give the same :class:`PassbandFit`, kept from the first call.
 
     Parameters
     ----------
@@ -402,6 +412,25 @@ def fit_passband(
     ----------
     Schwarz, G. (1978), "Estimating the dimension of a model", Ann. Statist. 6(2), 461-464.
     """
+    key = (np.asarray(freqs_hz, dtype=np.float64).tobytes(), np.asarray(gain_db, dtype=np.float64).tobytes(),
+           None if weights is None else np.asarray(weights, dtype=np.float64).tobytes(),
+           np.shape(freqs_hz), np.shape(gain_db), None if weights is None else np.shape(weights),
+           max_circuits, bool(relative), bool(floor_offset), seed, circuits)
+    if not isinstance(seed, (int, np.integer)):  # a generator's state moves: fit every time
+        return _fit_passband(freqs_hz, gain_db, max_circuits=max_circuits, weights=weights, relative=relative,
+                             floor_offset=floor_offset, seed=seed, circuits=circuits)
+    if key not in _FITS:
+        fit = _fit_passband(freqs_hz, gain_db, max_circuits=max_circuits, weights=weights, relative=relative,
+                            floor_offset=floor_offset, seed=seed, circuits=circuits)
+        while len(_FITS) >= _FITS_KEPT:
+            del _FITS[next(iter(_FITS))]
+        _FITS[key] = fit
+    return _FITS[key]
+
+
+def _fit_passband(freqs_hz, gain_db, *, max_circuits: int, weights, relative: bool, floor_offset: bool, seed: int,
+                  circuits: int | None) -> PassbandFit:
+    """:func:`fit_passband` itself (every call fits)."""
     f = np.asarray(freqs_hz, dtype=np.float64).ravel()
     g = np.asarray(gain_db, dtype=np.float64).ravel()
     if f.shape != g.shape:

@@ -2,10 +2,12 @@
 
 from __future__ import annotations
 
+from typing import TYPE_CHECKING
+
 import click
 
-from analysis.noise.arithmetic import load_enr_table
-from analysis.workflows import NoiseOptions
+if TYPE_CHECKING:  # the analyses are imported when a command runs, not when its help is shown
+    from analysis.workflows import NoiseOptions
 
 
 def noise_source_options(func):
@@ -27,5 +29,8 @@ def noise_options_from(enr_db, enr_table, cold_k, receiver_nf_db) -> NoiseOption
         raise click.UsageError("give either --enr-db or --enr-table, not both")
     if not cold_k > 0:
         raise click.BadParameter(f"must be positive kelvin, got {cold_k}", param_hint="--cold-k")
+    from analysis.noise.arithmetic import load_enr_table
+    from analysis.workflows import NoiseOptions
+
     table = load_enr_table(enr_table) if enr_table else None
     return NoiseOptions(enr_db=enr_db, enr_table=table, cold_k=cold_k, receiver_nf_db=receiver_nf_db)

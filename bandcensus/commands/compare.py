@@ -2,17 +2,20 @@
 
 from __future__ import annotations
 
+from typing import TYPE_CHECKING
+
 import click
 from rich.console import Console
 from rich.table import Table
 
-from analysis.selection import Survey
-from analysis.workflows import Assessment, assess
 from bandcensus.commands._common import db_option, echo_json, json_option
 from bandcensus.commands._csv import write_csv
 from bandcensus.commands._noise_source import noise_options_from, noise_source_options
 from bandcensus.commands._tables import Column, print_fitted
 from bandcensus.commands._text import CN_LABEL, display_path, plural
+
+if TYPE_CHECKING:  # the analyses are imported when the command runs, not for --help
+    from analysis.workflows import Assessment
 
 #: Columns of the station (or channel) rows (JSON and CSV), units in the names.
 ROW_FIELDS = ["freq_hz", "verdict", "base_cn_db", "test_cn_db", "delta_cn_db", "ci_low_db", "ci_high_db",
@@ -174,6 +177,9 @@ def command(db_path, base, test, as_json, as_csv, channels, plot_path, since, un
     if "," in test:
         _ranking(db_path, base, test, as_json, as_csv, since, until, min_change_db, confidence)
         return
+    from analysis.selection import Survey
+    from analysis.workflows import assess
+
     options = noise_options_from(enr_db, enr_table, cold_k, receiver_nf_db)
     with Survey(db_path) as survey:
         a = assess(survey, base, test, options=options, with_diagnosis=not no_diagnosis, since=since, until=until,

@@ -4,7 +4,6 @@ from __future__ import annotations
 
 import click
 
-from analysis.report.html import write_report
 from bandcensus.commands._common import db_option, parse_mhz_range
 from bandcensus.commands._progress import step_progress
 from bandcensus.commands._text import display_path
@@ -33,6 +32,8 @@ def command(db_path, base, test, out_path, target, enr_db, enr_table, cold_k, re
     if base == test:
         raise click.UsageError("--base and --test name the same configuration; give two different labels")
     target_hz = parse_mhz_range(target, "--target") if target is not None else None
+    from analysis.report.html import write_report  # the analyses and plotting, not needed for --help
+
     options = noise_options_from(enr_db, enr_table, cold_k, receiver_nf_db)
     with step_progress(quiet) as on_step:
         written = write_report(db_path, base, test, out_path, target_hz=target_hz, enr_db=options.enr_db,

@@ -31,7 +31,6 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-import scipy.fft
 
 from survey.rds.waveform import BIT_S, SHAPING_EDGE_HZ, SUBCARRIER_HZ, shaping_amplitude
 
@@ -73,6 +72,7 @@ def channel_from_spectrum(spectrum: np.ndarray, sample_rate_hz: float, offset_hz
     Returns ``(z, rate_hz)``: about ``DEMOD_RATE_HZ`` samples per second (the exact rate is
     returned), filtered to the channel (flat to 100 kHz, zero beyond 125 kHz from the carrier).
     """
+    import scipy.fft  # here, not at import: reading a census needs no FFT
     n = spectrum.size
     fs = float(sample_rate_hz)
     m = min(n, scipy.fft.next_fast_len(int(np.ceil(n * DEMOD_RATE_HZ / fs))))
@@ -102,6 +102,7 @@ def _narrowband(mpx_spectrum: np.ndarray, n: int, rate_hz: float, centre_hz: flo
     centre misses the bin grid is removed afterwards by a slow rotation, so the result is the
     signal mixed down by exactly ``centre_hz``.
     """
+    import scipy.fft  # here, not at import: reading a census needs no FFT
     resolution = rate_hz / n
     k0 = int(round(centre_hz / resolution))
     frac_hz = centre_hz - k0 * resolution
@@ -146,6 +147,7 @@ def _interp(y: np.ndarray, rate_hz: float, times_s: np.ndarray) -> np.ndarray:
 
 def bits_from_multiplex(mpx: np.ndarray, rate_hz: float) -> RdsBits:
     """Recover differentially decoded RDS bits from a demodulated multiplex (Hz) at ``rate_hz``."""
+    import scipy.fft  # here, not at import: reading a census needs no FFT
     n = mpx.size
     duration = n / rate_hz
     m_out = scipy.fft.next_fast_len(int(np.ceil(duration * SAMPLES_PER_BIT / BIT_S)) + 4)

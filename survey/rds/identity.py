@@ -27,7 +27,6 @@ from dataclasses import dataclass
 from typing import Iterable, Sequence
 
 import numpy as np
-import scipy.fft
 
 from survey.rds.code import block_kinds_of, words_from_bits
 from survey.rds.demod import station_bits
@@ -195,6 +194,7 @@ def identity_from_bits(bits: np.ndarray, pilot_locked: bool = False) -> RdsResul
 
 def decode_stations(iq: np.ndarray, sample_rate_hz: float, offsets_hz: Iterable[float]) -> list[RdsResult]:
     """:func:`decode_station` for several stations of one hop, sharing the hop's FFT."""
+    import scipy.fft  # here, not at import: reading a census needs no FFT
     z = np.asarray(iq)
     if z.ndim != 1 or z.size < 16 or not np.iscomplexobj(z):
         raise ValueError("decode_station needs a 1-D complex IQ array of at least 16 samples")

@@ -18,7 +18,6 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-import scipy.fft
 
 from survey.rds.code import GROUP_BITS, ps_cycle_bits
 
@@ -71,6 +70,7 @@ def biphase_baseband(encoded: np.ndarray, first_bit_s: float, n: int, sample_rat
     transmit half of the shaping filter. Not normalised (a 1 kHz-wide pulse pair's peak is
     found by the caller).
     """
+    import scipy.fft  # here, not at import: reading a census needs no FFT
     a = 2.0 * np.asarray(encoded, dtype=np.float64) - 1.0
     pad = int(np.ceil(6 * BIT_S * sample_rate_hz))
     total = scipy.fft.next_fast_len(int(n) + 2 * pad, real=True)

@@ -166,8 +166,27 @@ def list_sweeps(
     if where:
         sql += " WHERE " + " AND ".join(where)
     sql += " ORDER BY started_utc, id"
-    complete = _SWEEP_COLUMNS.index("complete")
-    return [SweepRow(*r[:complete], bool(r[complete]), *r[complete + 1:]) for r in conn.execute(sql, args)]
+    return _sweep_rows(conn.execute(sql, args))
+
+
+def _sweep_rows(rows: Iterable[tuple]) -> list[SweepRow]:
+    """:class:`SweepRow` records of ``sweeps`` rows selected in :data:`_SWEEP_COLUMNS` order.
+
+    Each record gets its fields set directly (``complete`` as bool), which is what the frozen
+    dataclass's ``__init__`` does field by field at several times the cost: a week of sweeps is
+    tens of thousands of records. Equality, hashing and repr are the dataclass's own.
+    """
+    names = tuple(_SWEEP_COLUMNS)
+    complete = names.index("complete")
+    new = object.__new__
+    out = []
+    for r in rows:
+        row = new(SweepRow)
+        fields = dict(zip(names, r))
+        fields["complete"] = bool(r[complete])
+        row.__dict__.update(fields)
+        out.append(row)
+    return out
 
 
 def read_channel_matrix(conn: sqlite3.Connection, sweep_ids: Sequence[int]) -> ChannelMatrix:
@@ -404,19 +423,23 @@ def read_sweep_matrix(conn: sqlite3.Connection, sweeps: Sequence[SweepRow]) -> C
         return read_channel_matrix(conn, ids)
     # chunk by chunk in the order asked, each column appended to one writable buffer that the
     # arrays then use in place: the blobs fetched are held one chunk at a time, copied once
-    axis: bytes | None = None
+    # the first sweep's frequency axis; SQLite compares every other sweep's axis with it (a flag
+    # per sweep instead of a copy of each axis)
+    first = conn.execute("SELECT freqs_hz FROM channel_vectors WHERE sweep_id = ?", (ids[0],)).fetchone()
+    if first is None:
+        return read_channel_matrix(conn, ids)  # a sweep without its columnar copy
+    axis: bytes = first[0]
     joined = [bytearray(), bytearray(), bytearray()]
     for start in range(0, len(ids), 900):
         chunk = ids[start:start + 900]
         marks = ",".join("?" * len(chunk))
-        blobs = {int(sid): (fr, pw, nz, rc) for sid, fr, pw, nz, rc in conn.execute(
-            f"SELECT sweep_id, freqs_hz, power_dbfs, noise_dbfs, received FROM channel_vectors"
-            f" WHERE sweep_id IN ({marks})", chunk,
+        blobs = {int(sid): (same, pw, nz, rc) for sid, same, pw, nz, rc in conn.execute(
+            f"SELECT sweep_id, freqs_hz = ?, power_dbfs, noise_dbfs, received FROM channel_vectors"
+            f" WHERE sweep_id IN ({marks})", [axis, *chunk],
         )}
         if len(blobs) != len(chunk):
             return read_channel_matrix(conn, ids)  # a sweep without its columnar copy
-        axis = axis if axis is not None else blobs[chunk[0]][0]
-        if any(b[0] != axis for b in blobs.values()):
+        if not all(b[0] for b in blobs.values()):
             return read_channel_matrix(conn, ids)  # mixed frequency axes
         ordered = [blobs[i] for i in chunk]
         for k, acc in enumerate(joined, start=1):

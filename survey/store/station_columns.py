@@ -17,6 +17,7 @@ from __future__ import annotations
 
 import sqlite3
 from dataclasses import dataclass
+from operator import itemgetter
 from typing import Iterable, Sequence
 
 import numpy as np
@@ -135,6 +136,10 @@ class StationColumns:
     def is_kind(self, *names: str) -> np.ndarray:
         """Boolean mask of the emissions whose kind is one of ``names``."""
         codes = [i for i, k in enumerate(self.kind_names) if k in names]
+        if len(codes) == len(self.kind_names):
+            return np.ones(self.kind.shape, bool)
+        if len(codes) == 1:
+            return self.kind == np.uint8(codes[0])  # one pass, no sort
         return np.isin(self.kind, np.asarray(codes, np.uint8))
 
     def take(self, index) -> "StationColumns":
@@ -149,14 +154,18 @@ def _has_table(conn: sqlite3.Connection, name: str) -> bool:
 
 #: Columns that :func:`read_station_columns` leaves out without ``detail``.
 _DETAIL_FIELDS = ("occupied_bw_hz", "hop_index")
+#: Columns that can be left out, with the value their read-only stand-in holds.
+_STAND_IN = {"occupied_bw_hz": np.float64(np.nan), "hop_index": np.int32(-1), "ci_db": np.float64(np.nan)}
 
 
-def read_station_columns(conn: sqlite3.Connection, sweep_ids: Sequence[int], detail: bool = True) -> StationColumns:
+def read_station_columns(conn: sqlite3.Connection, sweep_ids: Sequence[int], detail: bool = True,
+                         leave_out: Sequence[str] = ()) -> StationColumns:
     """Station rows of the given sweeps as :class:`StationColumns` (same rows and order as
     :func:`survey.store.read_station_rows`).
 
     ``detail=False`` leaves out ``occupied_bw_hz`` and ``hop_index`` (read-only views of NaN
-    and -1; the census does not use them), which saves a fifth of the memory.
+    and -1; the census does not use them), which saves a fifth of the memory. ``leave_out``
+    names further columns not to read: ``"ci_db"`` (a read-only view of NaN).
 
     Sweeps with a ``station_vectors`` row and no RDS data are decoded from their blobs; the
     others (RDS text, or no columnar copy) are read row by row from ``stations``. Raises
@@ -170,8 +179,11 @@ def read_station_columns(conn: sqlite3.Connection, sweep_ids: Sequence[int], det
     with_vectors = _has_table(conn, "station_vectors")
     # read in chunks of the asked order, appending each column's blobs as they come: the
     # blobs fetched are held one chunk at a time
-    fields = [(k, name, dtype) for k, (name, dtype) in enumerate(STATION_VECTOR_FIELDS)
-              if detail or name not in _DETAIL_FIELDS]
+    unknown = set(leave_out) - set(_STAND_IN)
+    if unknown:
+        raise ValueError(f"cannot leave out {', '.join(sorted(unknown))}; only {', '.join(_STAND_IN)}")
+    skipped = set(leave_out) | (set() if detail else set(_DETAIL_FIELDS))
+    fields = [(k, name, dtype) for k, (name, dtype) in enumerate(STATION_VECTOR_FIELDS) if name not in skipped]
     joined = [bytearray() for _ in fields]
     counts, vocab_of_sweep, rds_pieces = [], [], []
     vocabularies: dict[str, int] = {}
@@ -206,12 +218,11 @@ def read_station_columns(conn: sqlite3.Connection, sweep_ids: Sequence[int], det
             vocab_of_sweep.append(vocabularies.setdefault(kinds, len(vocabularies)))
             offset += n
         for k, acc in enumerate(joined):
-            acc += b"".join(p[k] for p in pieces)
+            acc += b"".join(map(itemgetter(k), pieces))
         del vectors, pieces, rows_of
     column = {name: np.frombuffer(acc, dtype) for acc, (_, name, dtype) in zip(joined, fields)}
-    if not detail:
-        column["occupied_bw_hz"] = np.broadcast_to(np.float64(np.nan), (offset,))
-        column["hop_index"] = np.broadcast_to(np.int32(-1), (offset,))
+    for name in skipped:
+        column[name] = np.broadcast_to(_STAND_IN[name], (offset,))
     names = sorted({k for text in vocabularies for k in text.split(",") if k})
     counts_arr = np.asarray(counts, np.int64)
     kind = column["kind"]
