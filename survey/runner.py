@@ -1,7 +1,8 @@
 """Measure one sweep and store it: the step shared by replay, simulate and scan.
 
 :func:`record_sweep` runs :func:`survey.sweep.run_sweep`, optionally keeps the raw IQ as a
-SigMF recording, and writes the result in one transaction. A sweep that ended early (stop
+SigMF recording, and writes the result in one transaction. It is :func:`measure_sweep` (no
+database; may run in a worker process) followed by :func:`store_sweep`. A sweep that ended early (stop
 request) is stored with ``complete = 0`` and never as complete; a sweep that raised is not
 stored at all (the caller records the gap).
 """
@@ -82,6 +83,88 @@ def _recording_name(configuration: str, input: str, run_id: int, sequence: int) 
     return f"run{run_id:04d}_sweep{sequence:05d}_{safe}"
 
 
+@dataclass(frozen=True)
+class MeasuredSweep:
+    """A sweep measured but not yet stored (what :func:`measure_sweep` hands to :func:`store_sweep`).
+
+    Small enough to send between processes: the result's readings (and the hops' spectra when
+    ``keep_spectra``, which the store keeps anyway), never the raw samples.
+    """
+
+    result: SweepResult
+    keep_spectra: bool
+    recording_path: Path | None = None
+    no_signal_hops: tuple[int, ...] = ()
+
+
+def _keeps_spectra(keep_spectra: bool | None, notch_channels_hz: tuple[int, ...]) -> bool:
+    # default yes; the DC notch works on the hop's spectrum, so it needs them
+    return True if keep_spectra is None or notch_channels_hz else bool(keep_spectra)
+
+
+def measure_sweep(
+    source: IQSource,
+    plan: HopPlan,
+    settings: SweepSettings,
+    configuration: str,
+    input: str,
+    *,
+    keep_spectra: bool | None = None,
+    sink=None,
+    on_hop: Callable[[HopProgress], None] | None = None,
+    should_stop: Callable[[], bool] | None = None,
+    recording: str | None = None,
+    notes: str = "",
+    dc_notch_hz: float = 0.0,
+    notch_channels_hz: tuple[int, ...] = (),
+) -> MeasuredSweep:
+    """Measure ``plan`` with ``source`` (the part of :func:`record_sweep` before the store).
+
+    Runs :func:`survey.sweep.run_sweep`, the constant-block (no signal) check, the DC-notched
+    channels of a single capture and the notes. ``sink`` (a :class:`survey.recorder.SweepRecorder`)
+    is finished when the sweep is complete and aborted otherwise. Touches no database, so it
+    can run in a worker process (:mod:`survey.replay_workers`). Parameters as :func:`record_sweep`.
+    """
+    keep_spectra = _keeps_spectra(keep_spectra, notch_channels_hz)
+    check = _ConstantBlockCheck(sink)
+    try:
+        result = run_sweep(
+            source, plan, settings, configuration, input,
+            sink=check, keep_psd=keep_spectra, on_hop=on_hop, should_stop=should_stop,
+        )
+    except BaseException:
+        if sink is not None:
+            sink.abort()
+        raise
+    recording_path = None
+    if sink is not None:
+        if result.complete:
+            recording_path = sink.finish()
+        else:
+            sink.abort()
+    if recording_path is not None:
+        result = replace(result, recording=str(recording_path))
+    elif recording is not None:
+        result = replace(result, recording=str(recording))
+    if notes:
+        result = replace(result, notes="; ".join(n for n in (result.notes, notes) if n))
+    if notch_channels_hz and result.complete:
+        from survey.dc_notch import measure_inside_guard
+
+        result = measure_inside_guard(result, float(dc_notch_hz), notch_channels_hz, settings.received_margin_db)
+    result = _without_dead_hops(result, check.constant)
+    return MeasuredSweep(result=result, keep_spectra=keep_spectra, recording_path=recording_path,
+                         no_signal_hops=tuple(result.hops[k].index for k in check.constant if k < len(result.hops)))
+
+
+def store_sweep(store: SurveyStore, run_id: int, measured: MeasuredSweep) -> SweepOutcome:
+    """Write a measured sweep to ``store`` in one transaction (the part of :func:`record_sweep` after
+    the measurement)."""
+    sweep_id = store.write_sweep(run_id, measured.result, keep_spectra=measured.keep_spectra)
+    return SweepOutcome(sweep_id=sweep_id, result=measured.result, recording_path=measured.recording_path,
+                        no_signal_hops=measured.no_signal_hops)
+
+
 def record_sweep(
     store: SurveyStore,
     run_id: int,
@@ -121,10 +204,6 @@ def record_sweep(
         Stored in ``sweeps.notes`` (e.g. a warning about few averages); a note about hops
         without signal (constant samples) is added to it.
     """
-    if keep_spectra is None:
-        keep_spectra = True
-    if notch_channels_hz:
-        keep_spectra = True  # the notch works on the hop's spectrum
     sink = None
     if keep_iq_dir is not None:
         from survey.recorder import SweepRecorder  # sigmf is needed only when IQ is kept
@@ -143,33 +222,7 @@ def record_sweep(
             input=input,
             **fields,
         )
-    check = _ConstantBlockCheck(sink)
-    try:
-        result = run_sweep(
-            source, plan, settings, configuration, input,
-            sink=check, keep_psd=keep_spectra, on_hop=on_hop, should_stop=should_stop,
-        )
-    except BaseException:
-        if sink is not None:
-            sink.abort()
-        raise
-    recording_path = None
-    if sink is not None:
-        if result.complete:
-            recording_path = sink.finish()
-        else:
-            sink.abort()
-    if recording_path is not None:
-        result = replace(result, recording=str(recording_path))
-    elif recording is not None:
-        result = replace(result, recording=str(recording))
-    if notes:
-        result = replace(result, notes="; ".join(n for n in (result.notes, notes) if n))
-    if notch_channels_hz and result.complete:
-        from survey.dc_notch import measure_inside_guard
-
-        result = measure_inside_guard(result, float(dc_notch_hz), notch_channels_hz, settings.received_margin_db)
-    result = _without_dead_hops(result, check.constant)
-    sweep_id = store.write_sweep(run_id, result, keep_spectra=keep_spectra)
-    return SweepOutcome(sweep_id=sweep_id, result=result, recording_path=recording_path,
-                        no_signal_hops=tuple(result.hops[k].index for k in check.constant if k < len(result.hops)))
+    measured = measure_sweep(source, plan, settings, configuration, input, keep_spectra=keep_spectra, sink=sink,
+                             on_hop=on_hop, should_stop=should_stop, recording=recording, notes=notes,
+                             dc_notch_hz=dc_notch_hz, notch_channels_hz=notch_channels_hz)
+    return store_sweep(store, run_id, measured)

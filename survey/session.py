@@ -37,7 +37,7 @@ from survey.writer import (  # noqa: F401 (re-exported)
     INTERRUPTED, WRITER_KEY, process_alive, shown_status, writer_gone, writer_identity,
 )
 from survey.records import RunInfo
-from survey.runner import SweepOutcome, record_sweep
+from survey.runner import MeasuredSweep, SweepOutcome, record_sweep, store_sweep
 from survey.store import SurveyStore, list_runs
 
 _PARTIAL = re.compile(r"\.(\d+)-[0-9a-f]+\.partial$")
@@ -250,6 +250,15 @@ class CaptureSession:
             raise StoreError("capture session not begun; use it in a 'with' block")
         outcome = record_sweep(self.store, self.run_id, source, plan, settings, configuration, input,
                                should_stop=self.stop.is_set, **kwargs)
+        self.count(outcome)
+        return outcome
+
+    def store_measured(self, measured: MeasuredSweep) -> SweepOutcome:
+        """Store and count a sweep measured elsewhere (:func:`survey.runner.measure_sweep`, e.g. in a
+        worker process, :mod:`survey.replay_workers`); its ``should_stop`` should follow :attr:`stop`."""
+        if self.run_id is None:
+            raise StoreError("capture session not begun; use it in a 'with' block")
+        outcome = store_sweep(self.store, self.run_id, measured)
         self.count(outcome)
         return outcome
 

@@ -109,9 +109,11 @@ def test_simulate_stops_on_signal_keeping_the_sweep_in_progress(tmp_path, signum
     assert "Aborted" not in err and "Traceback" not in err
 
 
-def test_replay_stops_on_sigint_and_keeps_earlier_recordings(tmp_path):
+@pytest.mark.parametrize("jobs", ["1", "2"])  # in this process; in two worker processes
+def test_replay_stops_on_sigint_and_keeps_earlier_recordings(tmp_path, jobs):
     db = tmp_path / "rep.db"
-    proc = _spawn(["replay", *map(str, DEMO * 5), "--db", str(db), "--quiet", "--fft-size", "512"], tmp_path)
+    proc = _spawn(["replay", *map(str, DEMO * 5), "--db", str(db), "--quiet", "--fft-size", "512", "--jobs", jobs],
+                  tmp_path)
     try:
         _wait_for_sweeps(db, 2, proc)
         signal_utc = _utc_now()

@@ -14,6 +14,7 @@ from bandcensus.commands._text import display_path, plural
 from survey.bandplan import parse_band
 from survey.records import INPUT_KINDS, RunInfo, SweepSettings
 from survey.errors import RecordingError, SurveyError
+from survey.replay_workers import MAX_DEFAULT_WORKERS, ReplayJob, ReplayMeasurer, default_workers
 from survey.session import CaptureSession
 from survey.sources.recording import open_recording
 from survey.store import SurveyStore
@@ -65,10 +66,13 @@ def _open_with_progress(path: str, quiet: bool):
                    "transient and leave it out; 0: keep everything).")
 @click.option("--channels", "show_channels", is_flag=True,
               help="Also print each recording's per-channel table (every raster channel).")
+@click.option("--jobs", "workers", type=click.IntRange(min=1), metavar="N",
+              help=f"Measure up to N recordings at once, in N processes (default: the cores available, at most "
+                   f"{MAX_DEFAULT_WORKERS}; 1: one at a time in this process). Sweeps are stored in the order given.")
 @click.option("--quiet", is_flag=True, help="Print only errors and the closing line.")
 @json_option
 def command(recordings, db_path, configuration, input_kind, band, channel_bw_khz, usable_fraction,
-            dc_guard_khz, fft_size, skip_ms, show_channels, quiet, as_json):
+            dc_guard_khz, fft_size, skip_ms, show_channels, workers, quiet, as_json):
     """Replay SigMF RECORDINGS (one sweep each) into the database at --db.
 
     Any SigMF recording of the band replays: ours (one capture per hop) or a foreign one
@@ -124,32 +128,40 @@ def command(recordings, db_path, configuration, input_kind, band, channel_bw_khz
                   "recordings": [str(p) for p in recordings]},
         seed=next((s.metadata_labels().get("seed") for s in sources if s.metadata_labels().get("seed") is not None), None),
     )
-    store = SurveyStore(db_path)
+    replay_jobs = [
+        ReplayJob(source, plan, settings, cfg, inp, recording=str(path), dc_notch_hz=settings.dc_guard_hz,
+                  notch_channels_hz=notch, notes="; ".join(notes_by_path.get(str(source.path), []) + [
+                      w.split(": ", 1)[1] for w in warnings_out if w.startswith(f"{source.path}:")]))
+        for path, source, cfg, inp, settings, plan, notch in jobs
+    ]
+    store = None
     summaries = []
     try:
-        with CaptureSession(store, info) as session, sweep_progress(len(jobs), quiet or as_json) as progress:
-            run_id = session.run_id
-            for path, source, cfg, inp, settings, plan, notch in jobs:
-                if session.stopped:
-                    break
-                progress.start_sweep(terminal_label(cfg) if progress.enabled else cfg)  # drawn only when shown
-                try:
-                    notes = "; ".join(notes_by_path.get(str(source.path), []) + [
-                        w.split(": ", 1)[1] for w in warnings_out if w.startswith(f"{source.path}:")])
-                    outcome = session.record(source, plan, settings, cfg, inp, recording=str(path), notes=notes,
-                                             dc_notch_hz=settings.dc_guard_hz, notch_channels_hz=notch,
-                                             on_hop=progress.on_hop)
-                except (SurveyError, OSError) as exc:
-                    done = f"; the sweeps of the {len(summaries)} earlier recording(s) are stored" if summaries else ""
-                    text = str(exc) if isinstance(exc, SurveyError) else (exc.strerror or str(exc))
-                    if str(path) not in text:
-                        text = f"{path}: {text}"
-                    raise (type(exc) if isinstance(exc, SurveyError) else RecordingError)(f"{text}{done}") from exc
-                summaries.append((path, outcome, plan))
-                progress.on_sweep()
-                source.close()
+        # The worker processes are forked first: before the database is opened and before the
+        # progress line starts its thread.
+        with ReplayMeasurer(replay_jobs, workers or default_workers()) as measurer:
+            store = SurveyStore(db_path)
+            with CaptureSession(store, info) as session, sweep_progress(len(jobs), quiet or as_json) as progress:
+                run_id = session.run_id
+                measured = measurer.results(should_stop=session.stop.is_set, on_hop=progress.on_hop)
+                for path, source, cfg, inp, settings, plan, notch in jobs:
+                    if session.stopped:
+                        break
+                    progress.start_sweep(terminal_label(cfg) if progress.enabled else cfg)  # drawn only when shown
+                    try:
+                        outcome = session.store_measured(next(measured))
+                    except (SurveyError, OSError) as exc:
+                        done = f"; the sweeps of the {len(summaries)} earlier recording(s) are stored" if summaries else ""
+                        text = str(exc) if isinstance(exc, SurveyError) else (exc.strerror or str(exc))
+                        if str(path) not in text:
+                            text = f"{path}: {text}"
+                        raise (type(exc) if isinstance(exc, SurveyError) else RecordingError)(f"{text}{done}") from exc
+                    summaries.append((path, outcome, plan))
+                    progress.on_sweep()
+                    source.close()
     finally:
-        store.close()
+        if store is not None:
+            store.close()
         for s in sources:
             s.close()
     summary = session.summary()

@@ -5,18 +5,23 @@ Run from the project root:  PYTHONPATH=. python tests/benchmarks/bench_replay.py
 
 Each repetition runs, in fresh interpreters and in a rotated order:
 
-* ``bandcensus replay``: ``python -m bandcensus replay <48 demo recordings> --db NEW --quiet``
-  (imports, SigMF parsing, SHA-512 and schema checks, planning, PSD, noise floor, database);
+* ``replay --jobs 1``: ``python -m bandcensus replay <48 demo recordings> --db NEW --quiet --jobs 1``
+  (imports, SigMF parsing, SHA-512 and schema checks, planning, PSD, noise floor, database), all
+  in one process;
+* ``replay, default jobs``: the same without ``--jobs``: the recordings are measured in as many
+  worker processes as there are cores (at most 4), the parent checks and stores;
 * ``plain baseline``: a short script that reads each ``.sigmf-meta`` with ``json``, each capture
   of the ``.sigmf-data`` with ``numpy.fromfile`` (its byte range), converts cu8 to complex64 and
   runs ``scipy.signal.welch`` (Hann, FFT 2048, no overlap) on it: the least any replay must do,
-  without checks, floor or database;
+  without checks, floor or database, in one process;
 * with ``--before DIR``: the same replay command run from another source tree (e.g. an older
   checkout), to quote the change.
 
-Prints wall seconds and CPU seconds of the child (user + system, from ``getrusage``; less
-sensitive to other work on a shared machine than wall time), best and median, and x real time
-(recorded seconds over those seconds); the load average is printed. Asserts nothing.
+Prints wall seconds and CPU seconds of the command and every process it started (user + system,
+from ``getrusage(RUSAGE_CHILDREN)``, which counts the worker processes the replay waited for;
+less sensitive to other work on a shared machine than wall time), best and median, and x real
+time (recorded seconds over those seconds); the core count and load average are printed.
+Asserts nothing.
 """
 
 from __future__ import annotations
@@ -77,25 +82,31 @@ def main(argv=None) -> int:
     if not metas:
         raise SystemExit("no demo recordings in recordings_demo/sigmf")
     seconds = recorded_seconds(metas)
-    variants = {"bandcensus replay": ROOT, "plain baseline": None}
+    variants: dict[str, tuple[Path | None, list[str]]] = {
+        "replay --jobs 1": (ROOT, ["--jobs", "1"]),
+        "replay, default jobs": (ROOT, []),
+        "plain baseline": (None, []),
+    }
     if args.before:
-        variants["replay, --before tree"] = args.before.resolve()
+        variants["replay, --before tree"] = (args.before.resolve(), [])
     times: dict[str, list[float]] = {name: [] for name in variants}
     cpu: dict[str, list[float]] = {name: [] for name in variants}
     print(f"{len(metas)} demo recordings, {seconds:.2f} s recorded at 2.4 MS/s; {args.reps} repetitions, "
           "fresh processes, interleaved")
-    print(f"load average at start: {' '.join(f'{x:.2f}' for x in os.getloadavg())} ({os.cpu_count()} CPUs, shared)")
+    cores = len(os.sched_getaffinity(0)) if hasattr(os, "sched_getaffinity") else os.cpu_count()
+    print(f"load average at start: {' '.join(f'{x:.2f}' for x in os.getloadavg())} ({cores} cores available, shared)")
     names = list(variants)
     with tempfile.TemporaryDirectory() as tmp:
         for rep in range(args.reps):
             for name in names[rep % len(names):] + names[: rep % len(names)]:
-                tree = variants[name]
+                tree, extra = variants[name]
                 if tree is None:
                     cmd = [sys.executable, "-c", BASELINE, *map(str, metas)]
                     env, cwd = dict(os.environ), ROOT
                 else:
-                    db = Path(tmp) / f"{rep}-{len(times[name])}-{name.split()[0]}.db"
-                    cmd = [sys.executable, "-m", "bandcensus", "replay", *map(str, metas), "--db", str(db), "--quiet"]
+                    db = Path(tmp) / f"{rep}-{names.index(name)}.db"
+                    cmd = [sys.executable, "-m", "bandcensus", "replay", *map(str, metas), "--db", str(db), "--quiet",
+                           *extra]
                     env, cwd = dict(os.environ, PYTHONPATH=str(tree)), tree
                 before = resource.getrusage(resource.RUSAGE_CHILDREN)
                 t0 = time.perf_counter()
@@ -111,9 +122,12 @@ def main(argv=None) -> int:
             best, median = _stats(table[name])
             print(f"  {name:<22} {best:6.2f} s best ({seconds / best:5.2f}x real time), {median:6.2f} s median "
                   f"({seconds / median:5.2f}x); {best / base_best:4.2f}x the plain baseline's time")
+        serial, parallel = _stats(table["replay --jobs 1"]), _stats(table["replay, default jobs"])
+        print(f"  default jobs over --jobs 1: {serial[0] / parallel[0]:.2f}x best, {serial[1] / parallel[1]:.2f}x median")
         if args.before:
-            old, new = _stats(table["replay, --before tree"]), _stats(table["bandcensus replay"])
-            print(f"  speed-up over the --before tree: {old[0] / new[0]:.2f}x best, {old[1] / new[1]:.2f}x median")
+            old = _stats(table["replay, --before tree"])
+            for name, new in (("--jobs 1", serial), ("default jobs", parallel)):
+                print(f"  {name} over the --before tree: {old[0] / new[0]:.2f}x best, {old[1] / new[1]:.2f}x median")
     return 0
 
 
