@@ -38,9 +38,11 @@ import os
 import signal
 import sys
 import threading
+import time
 from dataclasses import dataclass
 from typing import Any, Callable, Iterator, Sequence
 
+from survey.errors import RecordingError
 from survey.records import HopPlan, SweepSettings
 from survey.runner import MeasuredSweep, measure_sweep
 from survey.sweep import HopProgress
@@ -51,6 +53,12 @@ MAX_DEFAULT_WORKERS = 4
 
 #: Seconds between the parent's checks of its stop flag while it waits for a result.
 _POLL_S = 0.1
+
+#: Seconds the parent waits, once a stop is requested, for the sweep it is waiting on. A worker
+#: ends its sweep after the hop in flight (well under a second for a recording); one that died
+#: instead (a signal from outside between its sweep and the hand-over) never answers, and the
+#: stop must not wait for it forever.
+STOP_GRACE_S = 20.0
 
 
 @dataclass(frozen=True)
@@ -104,6 +112,7 @@ _PARENT_PID = 0
 _HOP_START: list[int] = []  # job k's hops are reported in _HOPS[3 * _HOP_START[k]:] ...
 _HOPS: Any = None          # ... as (hop index, centre Hz, floor dB(FS)/Hz) triples (RawArray of doubles)
 _HOPS_DONE: Any = None     # hops reported so far per job (RawArray of ints), written after the triple
+_MEASURED_BY: Any = None   # pid of the worker that took job k (RawArray of longs; 0: not taken yet)
 
 
 def _stop_requested() -> bool:
@@ -124,6 +133,7 @@ def _worker_start() -> None:
 
 
 def _measure_in_worker(index: int) -> MeasuredSweep:
+    _MEASURED_BY[index] = os.getpid()
     start, room = _HOP_START[index], len(_JOBS[index].plan.hops)
 
     def report(hop: HopProgress) -> None:  # shared memory the parent reads while it waits
@@ -148,6 +158,33 @@ def _relay_hops(index: int, reported: int, on_hop: Callable[[HopProgress], None]
             hop_index, center_hz, floor = _HOPS[3 * (_HOP_START[index] + k): 3 * (_HOP_START[index] + k + 1)]
             on_hop(HopProgress(int(hop_index), n_hops, center_hz, floor))
     return done
+
+
+def _gone(pid: int) -> bool:
+    """True when worker ``pid`` has ended (exited or killed; a zombie not yet reaped counts)."""
+    if pid <= 0:
+        return False
+    try:
+        os.kill(pid, 0)
+    except ProcessLookupError:
+        return True
+    except PermissionError:
+        return False
+    try:  # Linux: a zombie still answers the probe above
+        return open(f"/proc/{pid}/stat").read().rsplit(")", 1)[1].split()[0] in ("Z", "X")
+    except (OSError, IndexError):
+        return False
+
+
+def _last_chance(ordered: Any, index: int) -> MeasuredSweep:
+    """The result of job ``index`` whose worker has ended: it may still be in the pipe (the worker
+    handed it over, then ended); otherwise the sweep is lost and the replay stops with an error
+    naming the recording (the pool would wait for it for ever)."""
+    try:
+        return ordered.next(timeout=2.0)
+    except multiprocessing.TimeoutError:
+        raise RecordingError(f"{_JOBS[index].recording}: the worker process measuring it ended unexpectedly "
+                             "(killed by a signal or out of memory?); run again, or with --jobs 1") from None
 
 
 class ReplayMeasurer:
@@ -176,7 +213,7 @@ class ReplayMeasurer:
         return self._pool is not None
 
     def __enter__(self) -> "ReplayMeasurer":
-        global _JOBS, _STOP, _PARENT_PID, _HOP_START, _HOPS, _HOPS_DONE
+        global _JOBS, _STOP, _PARENT_PID, _HOP_START, _HOPS, _HOPS_DONE, _MEASURED_BY
         if self.workers > 1:
             context = multiprocessing.get_context("fork")
             _JOBS, _STOP, _PARENT_PID = self.jobs, context.RawValue(ctypes.c_bool, False), os.getpid()
@@ -184,6 +221,7 @@ class ReplayMeasurer:
             _HOP_START = [sum(rooms[:k]) for k in range(len(rooms))]
             _HOPS = context.RawArray(ctypes.c_double, 3 * max(1, sum(rooms)))
             _HOPS_DONE = context.RawArray(ctypes.c_int, len(rooms))
+            _MEASURED_BY = context.RawArray(ctypes.c_long, len(rooms))
             try:
                 self._pool = context.Pool(self.workers, initializer=_worker_start)
             except BaseException:
@@ -213,7 +251,8 @@ class ReplayMeasurer:
 
         ``should_stop`` is checked between hops (serial) or while waiting (parallel: then every
         worker stops after its hop in flight, and each sweep ended early comes back with
-        ``complete = False``). ``on_hop`` is called after each hop of the job being waited for
+        ``complete = False``; if the awaited sweep has not come back ``STOP_GRACE_S`` after the
+        stop, the results end there). ``on_hop`` is called after each hop of the job being waited for
         (a worker's hops are relayed through shared memory while the parent waits). An error raised measuring a job is raised here, when
         that job's result is asked for.
         """
@@ -224,14 +263,21 @@ class ReplayMeasurer:
         ordered = self._pool.imap(_measure_in_worker, range(len(self.jobs)), chunksize=1)
         for index in range(len(self.jobs)):
             reported = 0
+            give_up_at = None
             while True:
                 if should_stop is not None and should_stop():
                     _STOP.value = True
+                    give_up_at = give_up_at or time.monotonic() + STOP_GRACE_S
                 try:
                     measured = ordered.next(timeout=_POLL_S)
                 except multiprocessing.TimeoutError:
                     reported = _relay_hops(index, reported, on_hop)
-                    continue
+                    if give_up_at is not None and time.monotonic() > give_up_at:
+                        return  # stopping, and the awaited worker is gone: nothing more comes
+                    if _gone(_MEASURED_BY[index]):
+                        measured = _last_chance(ordered, index)
+                    else:
+                        continue
                 break
             _relay_hops(index, reported, on_hop)
             yield measured

@@ -149,7 +149,10 @@ def command(recordings, db_path, configuration, input_kind, band, channel_bw_khz
                         break
                     progress.start_sweep(terminal_label(cfg) if progress.enabled else cfg)  # drawn only when shown
                     try:
-                        outcome = session.store_measured(next(measured))
+                        sweep = next(measured, None)
+                        if sweep is None:  # stopped, and the sweep in flight never came back
+                            break
+                        outcome = session.store_measured(sweep)
                     except (SurveyError, OSError) as exc:
                         done = f"; the sweeps of the {len(summaries)} earlier recording(s) are stored" if summaries else ""
                         text = str(exc) if isinstance(exc, SurveyError) else (exc.strerror or str(exc))
