@@ -171,7 +171,8 @@ def _gone(pid: int) -> bool:
     except PermissionError:
         return False
     try:  # Linux: a zombie still answers the probe above
-        return open(f"/proc/{pid}/stat").read().rsplit(")", 1)[1].split()[0] in ("Z", "X")
+        with open(f"/proc/{pid}/stat") as stat:
+            return stat.read().rsplit(")", 1)[1].split()[0] in ("Z", "X")
     except (OSError, IndexError):
         return False
 

@@ -112,18 +112,33 @@ def _noise_cf32(n: int, seed: int) -> np.ndarray:
     return (0.05 * np.random.default_rng(seed).standard_normal(2 * n)).astype("<f4")
 
 
+def _disk_error(parent_pid: int) -> None:
+    raise OSError(5, "Input/output error")  # the disk fails while the third file is read
+
+
+def _killed_from_outside(parent_pid: int) -> None:
+    if os.getpid() != parent_pid:  # the out-of-memory killer or a stray kill -9 ends the worker
+        os.kill(os.getpid(), signal.SIGKILL)
+
+
 @pytest.mark.skipif(not LINUX, reason="worker processes are forked on Linux only in this check")
-def test_failure_mid_way_in_a_worker_is_one_line_and_keeps_earlier_sweeps(tmp_path, capsys, monkeypatch, measurers):
+@pytest.mark.parametrize("fault, said", [(_disk_error, "Input/output error"),
+                                         (_killed_from_outside, "ended unexpectedly")])
+def test_failure_mid_way_in_a_worker_is_one_line_and_keeps_earlier_sweeps(tmp_path, capsys, monkeypatch, measurers,
+                                                                          fault, said):
+    """A recording failing in a worker, or a worker ended from outside (the pool alone would wait
+    for its answer for ever), stops the replay with one line naming the recording."""
     names = ["a-good", "b-good", "c-bad", "d-good"]
     metas = [write_foreign(tmp_path, name, "cf32_le", [{"core:sample_start": 0, "core:frequency": 98e6}],
                            _noise_cf32(50_000, seed)) for seed, name in enumerate(names)]
     from survey.sources import recording as rec
 
     real_read = rec.RecordingSource.read
+    parent = os.getpid()
 
     def failing_read(self, n):
         if "bad" in self.path.name:
-            raise OSError(5, "Input/output error")  # the disk fails while the third file is read
+            fault(parent)
         return real_read(self, n)
 
     monkeypatch.setattr(rec.RecordingSource, "read", failing_read)  # inherited by the forked workers
@@ -133,41 +148,7 @@ def test_failure_mid_way_in_a_worker_is_one_line_and_keeps_earlier_sweeps(tmp_pa
     err = capsys.readouterr().err
     lines = [line for line in err.splitlines() if line.strip()]
     assert code == 1 and "Traceback" not in err and len(lines) == 1 and lines[0].startswith("Error: "), err
-    assert "Input/output error" in lines[0] and str(metas[2]) in lines[0]
-    assert "the sweeps of the 2 earlier recording(s) are stored" in lines[0]
-    assert measurers == [True]
-    conn = sqlite3.connect(db)
-    assert conn.execute("SELECT recording, complete FROM sweeps ORDER BY id").fetchall() == [
-        (str(metas[0]), 1), (str(metas[1]), 1)]
-    assert conn.execute("SELECT status FROM runs").fetchone()[0] == "failed"
-    conn.close()
-
-
-@pytest.mark.skipif(not LINUX, reason="worker processes are forked on Linux only in this check")
-def test_a_worker_killed_mid_sweep_is_one_line_and_keeps_earlier_sweeps(tmp_path, capsys, monkeypatch, measurers):
-    """A worker ended from outside (the kernel's out-of-memory killer, a stray ``kill -9``) loses
-    only its own sweep: the pool would wait for its answer for ever; the replay names it instead."""
-    names = ["a-good", "b-good", "c-killed", "d-good"]
-    metas = [write_foreign(tmp_path, name, "cf32_le", [{"core:sample_start": 0, "core:frequency": 98e6}],
-                           _noise_cf32(50_000, seed)) for seed, name in enumerate(names)]
-    from survey.sources import recording as rec
-
-    real_read = rec.RecordingSource.read
-    parent = os.getpid()
-
-    def killed_read(self, n):
-        if "killed" in self.path.name and os.getpid() != parent:
-            os.kill(os.getpid(), signal.SIGKILL)
-        return real_read(self, n)
-
-    monkeypatch.setattr(rec.RecordingSource, "read", killed_read)  # inherited by the forked workers
-    db = tmp_path / "k.db"
-    code = main(["replay", *map(str, metas), "--db", str(db), "--config", "x", "--band", "custom:97.8-98.2:100",
-                 "--jobs", "2"])
-    err = capsys.readouterr().err
-    lines = [line for line in err.splitlines() if line.strip()]
-    assert code == 1 and "Traceback" not in err and len(lines) == 1 and lines[0].startswith("Error: "), err
-    assert "ended unexpectedly" in lines[0] and str(metas[2]) in lines[0]
+    assert said in lines[0] and str(metas[2]) in lines[0]
     assert "the sweeps of the 2 earlier recording(s) are stored" in lines[0]
     assert measurers == [True]
     conn = sqlite3.connect(db)
