@@ -78,6 +78,24 @@ def column_mean_sd(values: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarr
     return mean, sd, n
 
 
+def _half_width_and_p(mean: np.ndarray, se: np.ndarray, dof: np.ndarray, have: np.ndarray,
+                      confidence: float) -> tuple[np.ndarray, np.ndarray]:
+    """Student t half-width ``t(1 - a/2, dof) * se`` and the two-sided p-value of ``mean / se``
+    per column, NaN where ``have`` is False; zero spread makes the sign certain when the mean is
+    not zero (p = 0)."""
+    half = np.full(mean.shape, np.nan)
+    p = np.full(mean.shape, np.nan)
+    if have.any():
+        q = _t_quantile(0.5 + confidence / 2.0, dof)
+        half = np.where(have, q * se, np.nan)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            t_stat = mean / se
+        p_all = _t_two_sided_p(np.where(np.isfinite(t_stat), t_stat, 0.0), dof)
+        p_all = np.where(se > 0, p_all, np.where(mean != 0, 0.0, 1.0))
+        p = np.where(have, p_all, np.nan)
+    return half, p
+
+
 def paired_t(diffs: np.ndarray, confidence: float = 0.95, min_pairs: int = MIN_PAIRS) -> Intervals:
     """Paired t interval of each column of ``diffs`` (rows = pairs); no interval under ``min_pairs``.
 
@@ -87,18 +105,7 @@ def paired_t(diffs: np.ndarray, confidence: float = 0.95, min_pairs: int = MIN_P
     mean, sd, n = column_mean_sd(diffs)
     have = n >= max(min_pairs, 2)
     dof = np.where(have, n - 1, 1).astype(np.float64)
-    half = np.full(mean.shape, np.nan)
-    p = np.full(mean.shape, np.nan)
-    if have.any():
-        se = sd / np.sqrt(np.maximum(n, 1))
-        q = _t_quantile(0.5 + confidence / 2.0, dof)
-        half = np.where(have, q * se, np.nan)
-        with np.errstate(invalid="ignore", divide="ignore"):
-            t_stat = mean / se
-        p_all = _t_two_sided_p(np.where(np.isfinite(t_stat), t_stat, 0.0), dof)
-        # zero spread: the sign is certain when the mean is not zero
-        p_all = np.where(se > 0, p_all, np.where(mean != 0, 0.0, 1.0))
-        p = np.where(have, p_all, np.nan)
+    half, p = _half_width_and_p(mean, sd / np.sqrt(np.maximum(n, 1)), dof, have, confidence)
     return Intervals(mean, mean - half, mean + half, p, n.astype(np.int64))
 
 
@@ -117,16 +124,7 @@ def welch_t(test: np.ndarray, base: np.ndarray, confidence: float = 0.95, min_pe
         se = np.sqrt(vt + vb)
         dof = (vt + vb) ** 2 / (vt**2 / (nt - 1) + vb**2 / (nb - 1))
     dof = np.where(have & np.isfinite(dof), dof, np.maximum(n - 1, 1)).astype(np.float64)
-    half = np.full(mean.shape, np.nan)
-    p = np.full(mean.shape, np.nan)
-    if have.any():
-        q = _t_quantile(0.5 + confidence / 2.0, dof)
-        half = np.where(have, q * se, np.nan)
-        with np.errstate(invalid="ignore", divide="ignore"):
-            t_stat = mean / se
-        p_all = _t_two_sided_p(np.where(np.isfinite(t_stat), t_stat, 0.0), dof)
-        p_all = np.where(se > 0, p_all, np.where(mean != 0, 0.0, 1.0))
-        p = np.where(have, p_all, np.nan)
+    half, p = _half_width_and_p(mean, se, dof, have, confidence)
     return Intervals(np.where(n > 0, mean, np.nan), mean - half, mean + half, p, n.astype(np.int64))
 
 
