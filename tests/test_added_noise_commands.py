@@ -64,3 +64,15 @@ def test_noise_json_carries_the_diagnosis_evidence_and_not_its_own_split(demo_db
     (finding,) = [f for f in diagnose["findings"] if f["kind"] == "added-noise"]
     assert noise["added_noise_after_preamp"]["evidence"]["added_noise_k"] == finding["evidence"]["added_noise_k"]
     assert not {"noise_after_gain_k", "preamp_nf_at_input_db"} & set(noise["summary"])
+
+
+def test_a_clean_preamp_reads_none_found_in_plain_words_and_the_fit_with_explain(demo_db, capsys):
+    db = str(demo_db)
+    argv = ["noise", "--db", db, "--receiver", "bare", "--system", "preamp-staggered", *ARGS]
+    plain = [line for line in _run(capsys, argv).splitlines() if line.startswith("Added noise after the preamp")]
+    explained = [line for line in _run(capsys, [*argv, "--explain"]).splitlines()
+                 if line.startswith("Added noise after the preamp")]
+    assert len(plain) == 1 and "none found" in plain[0] and "beta" not in plain[0], plain
+    assert len(explained) == 1 and "N = G N_base" in explained[0], explained  # the fit, for those who ask
+    diagnose = _run(capsys, ["diagnose", "--db", db, "--base", "bare", "--test", "preamp-staggered", *ARGS])
+    assert "added-noise" not in diagnose.split("Checked:")[0]  # no finding there either

@@ -123,6 +123,8 @@ def command(db_path, receiver, system, enr_db, enr_table, cold_k, receiver_nf_db
     print_fitted(f"Noise of '{receiver}'{what}, {s['summary_region']}",
                  [Column("quantity", justify="left"), Column("value")], rows)
     if system:
+        if finding is None and not explain and not added.startswith("added-noise: not checked"):
+            added = "none found (the chain diagnosis's check; --explain for its fit)"
         click.echo(f"Added noise after the preamp (the diagnosis's estimate): {added}")
     click.echo("Workflows: " + ", ".join(payload["workflows"]))
     n = len(payload["assumptions"])
